@@ -1,0 +1,1 @@
+"""The computing core of appraise. Imports no Qt; everything here runs headless."""

@@ -1,0 +1,218 @@
+"""The model file: what to fit, stated in a few readable lines of TOML.
+
+Example::
+
+    target = "price"            # column (or role name) holding the sale price
+    response = "log"            # "linear" or "log"
+    level = 0.90                # prediction-interval level
+    cov_type = "HC1"            # "classical", "HC1" or "HC3"
+    features = [
+        "log(living_area)",
+        "living_area * dist_km",
+        "poly(age, degree=2)",
+        "onehot(region, ref='Old Mill')",
+        "months",
+    ]
+
+    [derived]                   # named helper variables usable in features
+    dist_km = "distance_km(latitude, longitude, 44.0412, -71.3021)"
+    months = "months_between(sale_date, '2026-06-30')"
+    age = "2026 - year_built"
+
+    [[exclude]]
+    id = "S-0042"
+    reason = "sold to a relative"
+"""
+
+from __future__ import annotations
+
+import hashlib
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from types import MappingProxyType
+from typing import Literal
+
+from .errors import ModelFileError
+
+Response = Literal["linear", "log"]
+CovType = Literal["classical", "HC1", "HC3"]
+
+RESPONSES: tuple[str, ...] = ("linear", "log")
+COV_TYPES: tuple[str, ...] = ("classical", "HC1", "HC3")
+_KNOWN_KEYS = {"target", "response", "features", "derived", "level", "cov_type", "exclude",
+               "intercept", "title", "effective_date"}
+
+
+@dataclass(frozen=True)
+class ExcludedSale:
+    """A sale the model file leaves out, by sale id, with the reason."""
+
+    sale_id: str
+    reason: str
+
+
+@dataclass(frozen=True)
+class ModelSpec:
+    """A parsed model file. ``derived`` keeps its file order."""
+
+    target: str
+    features: tuple[str, ...]
+    response: Response = "linear"
+    derived: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
+    level: float = 0.90
+    cov_type: CovType = "classical"
+    exclude: tuple[ExcludedSale, ...] = ()
+    intercept: bool = True
+    title: str = ""
+    effective_date: str | None = None  # ISO date the value is as of; default: today
+
+    def with_features(self, features: tuple[str, ...]) -> ModelSpec:
+        return replace(self, features=tuple(features))
+
+    def to_dict(self) -> dict:
+        d: dict = {
+            "target": self.target,
+            "response": self.response,
+            "level": self.level,
+            "cov_type": self.cov_type,
+            "intercept": self.intercept,
+            "features": list(self.features),
+            "derived": dict(self.derived),
+            "exclude": [{"id": e.sale_id, "reason": e.reason} for e in self.exclude],
+        }
+        if self.title:
+            d["title"] = self.title
+        if self.effective_date:
+            d["effective_date"] = self.effective_date
+        return d
+
+    def to_toml(self) -> str:
+        """The spec as a TOML document that :func:`parse_model` reads back identically."""
+        lines = []
+        if self.title:
+            lines.append(f"title = {_toml_str(self.title)}")
+        lines.append(f"target = {_toml_str(self.target)}")
+        lines.append(f"response = {_toml_str(self.response)}")
+        lines.append(f"level = {self.level!r}")
+        lines.append(f"cov_type = {_toml_str(self.cov_type)}")
+        if not self.intercept:
+            lines.append("intercept = false")
+        if self.effective_date:
+            lines.append(f"effective_date = {_toml_str(self.effective_date)}")
+        lines.append("features = [")
+        lines.extend(f"    {_toml_str(f)}," for f in self.features)
+        lines.append("]")
+        if self.derived:
+            lines.append("")
+            lines.append("[derived]")
+            lines.extend(f"{_toml_key(k)} = {_toml_str(v)}" for k, v in self.derived.items())
+        for e in self.exclude:
+            lines.append("")
+            lines.append("[[exclude]]")
+            lines.append(f"id = {_toml_str(e.sale_id)}")
+            lines.append(f"reason = {_toml_str(e.reason)}")
+        return "\n".join(lines) + "\n"
+
+    def sha256(self) -> str:
+        """Hash of the canonical TOML text: the stamp a worksheet prints."""
+        return hashlib.sha256(self.to_toml().encode("utf-8")).hexdigest()
+
+
+def _toml_str(s: str) -> str:
+    out = s.replace("\\", "\\\\").replace('"', '\\"').replace("\n", "\\n").replace("\t", "\\t")
+    return f'"{out}"'
+
+
+def _toml_key(k: str) -> str:
+    if k and all(c.isalnum() or c in "_-" for c in k):
+        return k
+    return _toml_str(k)
+
+
+def load_model(path: str | Path) -> ModelSpec:
+    """Read and validate a model file."""
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise ModelFileError("model file not found", file=str(path)) from None
+    except OSError as exc:
+        raise ModelFileError(f"cannot read model file: {exc.strerror}", file=str(path)) from None
+    return parse_model(text, source=str(path))
+
+
+def parse_model(text: str, *, source: str = "<model>") -> ModelSpec:
+    """Parse model-file TOML text. Errors name ``source`` and the offending key."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ModelFileError(f"not valid TOML: {exc}", file=source) from None
+    return model_from_dict(data, source=source)
+
+
+def model_from_dict(data: Mapping, *, source: str = "<model>") -> ModelSpec:
+    """Validate a mapping (from TOML or a workfile) into a :class:`ModelSpec`."""
+
+    def err(msg: str, key: str | None = None) -> ModelFileError:
+        return ModelFileError(msg if key is None else f"'{key}': {msg}", file=source)
+
+    unknown = sorted(set(data) - _KNOWN_KEYS)
+    if unknown:
+        raise err(f"unknown setting(s) {', '.join(unknown)}; known: {', '.join(sorted(_KNOWN_KEYS))}")
+    target = data.get("target")
+    if not isinstance(target, str) or not target.strip():
+        raise err("must name the price column, e.g. target = \"price\"", "target")
+    response = data.get("response", "linear")
+    if response not in RESPONSES:
+        raise err(f"must be one of {', '.join(RESPONSES)}, not {response!r}", "response")
+    feats = data.get("features")
+    if not isinstance(feats, list) or not feats:
+        raise err("must be a non-empty list of expression strings", "features")
+    for i, f in enumerate(feats):
+        if not isinstance(f, str) or not f.strip():
+            raise err(f"item {i + 1} must be a non-empty string", "features")
+    derived = data.get("derived", {})
+    if not isinstance(derived, Mapping) or not all(
+        isinstance(k, str) and isinstance(v, str) and v.strip() for k, v in derived.items()
+    ):
+        raise err("must be a table of name = \"expression\" pairs", "derived")
+    level = data.get("level", 0.90)
+    if isinstance(level, bool) or not isinstance(level, int | float) or not 0 < level < 1:
+        raise err(f"must be a number strictly between 0 and 1, not {level!r}", "level")
+    cov = data.get("cov_type", "classical")
+    if cov not in COV_TYPES:
+        raise err(f"must be one of {', '.join(COV_TYPES)}, not {cov!r}", "cov_type")
+    intercept = data.get("intercept", True)
+    if not isinstance(intercept, bool):
+        raise err("must be true or false", "intercept")
+    excl_raw = data.get("exclude", [])
+    if not isinstance(excl_raw, list):
+        raise err("must be an array of tables [[exclude]] with id and reason", "exclude")
+    excl = []
+    for i, e in enumerate(excl_raw):
+        if not isinstance(e, Mapping) or "id" not in e:
+            raise err(f"entry {i + 1} needs an id", "exclude")
+        reason = e.get("reason", "")
+        if not isinstance(reason, str) or not reason.strip():
+            raise err(f"entry {i + 1} ({e['id']}) needs a reason", "exclude")
+        excl.append(ExcludedSale(str(e["id"]), reason.strip()))
+    title = data.get("title", "")
+    if not isinstance(title, str):
+        raise err("must be a string", "title")
+    eff = data.get("effective_date")
+    if eff is not None:
+        eff = str(eff)  # TOML dates arrive as datetime.date
+    return ModelSpec(
+        target=target.strip(),
+        features=tuple(f.strip() for f in feats),
+        response=response,
+        derived=MappingProxyType({k: v.strip() for k, v in derived.items()}),
+        level=float(level),
+        cov_type=cov,
+        exclude=tuple(excl),
+        intercept=intercept,
+        title=title,
+        effective_date=eff,
+    )
