@@ -41,8 +41,18 @@ CovType = Literal["classical", "HC1", "HC3"]
 
 RESPONSES: tuple[str, ...] = ("linear", "log")
 COV_TYPES: tuple[str, ...] = ("classical", "HC1", "HC3")
-_KNOWN_KEYS = {"target", "response", "features", "derived", "level", "cov_type", "exclude",
-               "intercept", "title", "effective_date"}
+_KNOWN_KEYS = {
+    "target",
+    "response",
+    "features",
+    "derived",
+    "level",
+    "cov_type",
+    "exclude",
+    "intercept",
+    "title",
+    "effective_date",
+}
 
 
 @dataclass(frozen=True)
@@ -160,10 +170,12 @@ def model_from_dict(data: Mapping, *, source: str = "<model>") -> ModelSpec:
 
     unknown = sorted(set(data) - _KNOWN_KEYS)
     if unknown:
-        raise err(f"unknown setting(s) {', '.join(unknown)}; known: {', '.join(sorted(_KNOWN_KEYS))}")
+        raise err(
+            f"unknown setting(s) {', '.join(unknown)}; known: {', '.join(sorted(_KNOWN_KEYS))}"
+        )
     target = data.get("target")
     if not isinstance(target, str) or not target.strip():
-        raise err("must name the price column, e.g. target = \"price\"", "target")
+        raise err('must name the price column, e.g. target = "price"', "target")
     response = data.get("response", "linear")
     if response not in RESPONSES:
         raise err(f"must be one of {', '.join(RESPONSES)}, not {response!r}", "response")
@@ -177,7 +189,7 @@ def model_from_dict(data: Mapping, *, source: str = "<model>") -> ModelSpec:
     if not isinstance(derived, Mapping) or not all(
         isinstance(k, str) and isinstance(v, str) and v.strip() for k, v in derived.items()
     ):
-        raise err("must be a table of name = \"expression\" pairs", "derived")
+        raise err('must be a table of name = "expression" pairs', "derived")
     level = data.get("level", 0.90)
     if isinstance(level, bool) or not isinstance(level, int | float) or not 0 < level < 1:
         raise err(f"must be a number strictly between 0 and 1, not {level!r}", "level")

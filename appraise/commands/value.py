@@ -1,0 +1,55 @@
+"""``appraise value SALES --model MODEL.toml --subject SUBJECT [--level 0.9] [--json]``."""
+
+from __future__ import annotations
+
+import argparse
+
+from ..engine.valuation import value_subject
+from .common import (
+    SHORT_CAUTION,
+    add_json_argument,
+    add_model_argument,
+    add_sales_arguments,
+    fit_from_args,
+    print_json,
+    read_subject_from_args,
+)
+from .text import format_valuation
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "value", help="value the subject property with a prediction interval", description=__doc__
+    )
+    add_sales_arguments(p)
+    add_model_argument(p)
+    p.add_argument(
+        "--subject",
+        "-s",
+        required=True,
+        metavar="SUBJECT",
+        help="the subject: a JSON object or a one-row CSV with the sales' columns",
+    )
+    p.add_argument(
+        "--level",
+        type=float,
+        default=None,
+        help="prediction-interval level (default: the model file's, else 0.90)",
+    )
+    add_json_argument(p)
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    sales, _, fit = fit_from_args(args)
+    subject = read_subject_from_args(args, sales)
+    val = value_subject(fit, subject, args.level)
+    if args.json:
+        d = val.to_dict()
+        d["caution"] = SHORT_CAUTION
+        print_json(d)
+    else:
+        print(format_valuation(val))
+        print()
+        print(SHORT_CAUTION)
+    return 0

@@ -1,0 +1,363 @@
+"""Fit the hedonic model: ordinary least squares with statsmodels as the estimator of record.
+
+The steps, each of which records what it leaves out:
+
+1. rows the importer already excluded stay excluded;
+2. the model file's ``[[exclude]]`` list and the user's exclusions drop sales by id/row;
+3. rows lacking a value a feature needs (or giving a non-finite feature) are excluded,
+   naming the column;
+4. the design is learned on the rows that remain (category levels, references),
+   checked for rank deficiency (naming the terms involved), and fitted.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+import statsmodels.api as sm
+
+from .design import DesignSpec, learn_design
+from .errors import CollinearityError, FitError, ModelFileError
+from .modelspec import ModelSpec
+from .sales import ROW_COLUMN, Exclusion, SalesTable
+
+COEF_CI_LEVEL = 0.95
+"""Level of the coefficient confidence intervals (the prediction level is the model's ``level``)."""
+
+STATSMODELS_COV = {"classical": "nonrobust", "HC1": "HC1", "HC3": "HC3"}
+MIN_SALES_PER_TERM = 10  # common practice: fewer than ~10 observations per term is thin
+
+
+@dataclass(frozen=True)
+class TermEstimate:
+    """One row of the coefficient table."""
+
+    name: str
+    coef: float
+    se: float
+    t: float
+    p: float
+    ci_low: float
+    ci_high: float
+
+    def to_dict(self) -> dict:
+        return {
+            "name": self.name,
+            "coef": self.coef,
+            "se": self.se,
+            "t": self.t,
+            "p": self.p,
+            "ci_low": self.ci_low,
+            "ci_high": self.ci_high,
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class FitResult:
+    """A fitted hedonic model and everything needed to value, check and report it.
+
+    ``y``, ``fitted`` and ``resid`` are on the response scale (log price for a log
+    response); ``price`` is always the sale price. ``rows`` are the file rows of the
+    sales used, in the order of ``X``'s rows. ``xtx_inv`` is the classical
+    :math:`(X'X)^{-1}`; ``cov_params`` the coefficient covariance of ``cov_type``.
+    ``smearing`` is Duan's factor :math:`\\frac1n\\sum e^{\\hat e_i}` for a log
+    response and 1.0 for a linear one.
+    """
+
+    spec: ModelSpec
+    design: DesignSpec
+    sales: SalesTable
+    frame: pd.DataFrame
+    X: np.ndarray
+    y: np.ndarray
+    price: np.ndarray
+    rows: np.ndarray
+    sale_ids: tuple[str | None, ...]
+    excluded: tuple[Exclusion, ...]
+    terms: tuple[TermEstimate, ...]
+    params: np.ndarray
+    n: int
+    p: int
+    df_resid: int
+    r2: float
+    adj_r2: float
+    sigma: float
+    aic: float
+    bic: float
+    llf: float
+    cov_type: str
+    fitted: np.ndarray
+    resid: np.ndarray
+    smearing: float
+    xtx_inv: np.ndarray
+    cov_params: np.ndarray
+    target: str
+    warnings: tuple[str, ...] = field(default=())
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        return self.design.names
+
+    @property
+    def response(self) -> str:
+        return self.spec.response
+
+    def fitted_price(self) -> np.ndarray:
+        """Fitted values in price units (smearing-corrected mean for a log response)."""
+        if self.spec.response == "log":
+            return np.exp(self.fitted) * self.smearing
+        return self.fitted
+
+    def leverage(self) -> np.ndarray:
+        """Hat diagonal :math:`h_i = x_i'(X'X)^{-1}x_i` of the sales used."""
+        return np.einsum("ij,jk,ik->i", self.X, self.xtx_inv, self.X)
+
+    def references(self) -> dict[str, str]:
+        """Reference level of each ``onehot`` feature."""
+        return {g.expression: g.reference for g in self.design.groups if g.kind == "onehot"}
+
+    def to_dict(self) -> dict:
+        """The stable JSON contract of ``appraise fit --json`` (extra keys may be added)."""
+        return {
+            "n": self.n,
+            "df_resid": self.df_resid,
+            "r2": self.r2,
+            "adj_r2": self.adj_r2,
+            "sigma": self.sigma,
+            "response": self.spec.response,
+            "cov_type": self.cov_type,
+            "target": self.target,
+            "ci_level": COEF_CI_LEVEL,
+            "aic": self.aic,
+            "bic": self.bic,
+            "smearing": self.smearing,
+            "references": self.references(),
+            "terms": [t.to_dict() for t in self.terms],
+            "excluded": [
+                {
+                    "row": e.row,
+                    "id": e.sale_id,
+                    "reason": e.reason,
+                    "column": e.column,
+                    "source": e.source,
+                }
+                for e in self.excluded
+            ],
+            "warnings": list(self.warnings),
+        }
+
+
+def resolve_target(sales: SalesTable, target: str) -> str:
+    """The frame column holding the target: a header, else a role name."""
+    if target in sales.frame.columns:
+        return target
+    col = sales.roles.column(target)
+    if col is not None and col in sales.frame.columns:
+        return col
+    raise ModelFileError(
+        f"'target': no column or role named {target!r}; columns are "
+        + ", ".join(c for c in sales.frame.columns if c != ROW_COLUMN),
+        file=sales.source.path,
+    )
+
+
+def _model_exclusions(
+    sales: SalesTable, spec: ModelSpec, user_exclusions: Iterable[Exclusion]
+) -> tuple[np.ndarray, list[Exclusion], list[str]]:
+    """Mask of rows kept after the model file's and the user's exclusions."""
+    frame = sales.frame
+    keep = np.ones(len(frame), dtype=bool)
+    out: list[Exclusion] = []
+    notes: list[str] = []
+    rows = frame[ROW_COLUMN].to_numpy()
+    id_col = sales.roles.column("sale_id")
+    ids = (
+        frame[id_col].astype("string").fillna("").str.strip().to_numpy()
+        if id_col in frame.columns
+        else None
+    )
+    if spec.exclude:
+        if ids is None:
+            raise ModelFileError(
+                "'exclude' lists sale ids but the sales have no sale-id column mapped",
+                file=sales.source.path,
+            )
+        for e in spec.exclude:
+            hit = np.flatnonzero((ids == e.sale_id) & keep)
+            if hit.size == 0:
+                notes.append(
+                    f"model file excludes sale {e.sale_id!r}, which is not among the sales used"
+                )
+            for i in hit:
+                keep[i] = False
+                out.append(Exclusion(int(rows[i]), e.sale_id, e.reason, None, "model"))
+    row_pos = {int(r): i for i, r in enumerate(rows)}
+    for e in user_exclusions:
+        i = row_pos.get(int(e.row))
+        if i is None or not keep[i]:
+            continue
+        keep[i] = False
+        sid = None if ids is None else (ids[i] or None)
+        out.append(Exclusion(int(rows[i]), sid, e.reason, e.column, "user"))
+    return keep, out, notes
+
+
+def _rank_problem(X: np.ndarray, names: tuple[str, ...]) -> tuple[str, ...] | None:
+    """Names of the columns caught in an exact linear dependence, or None when full rank.
+
+    Uses the SVD: right singular vectors of (numerically) zero singular values span
+    the null space; columns with a non-negligible loading there are involved.
+    """
+    scale = np.linalg.norm(X, axis=0)
+    zero_cols = [names[j] for j in np.flatnonzero(scale == 0)]
+    if zero_cols:
+        return tuple(zero_cols)
+    Xs = X / scale
+    _, s, vt = np.linalg.svd(Xs, full_matrices=False)
+    tol = s.max() * max(X.shape) * np.finfo(float).eps * 10
+    null = vt[s <= tol]
+    if null.shape[0] == 0:
+        return None
+    load = np.abs(null).max(axis=0)
+    return tuple(names[j] for j in np.flatnonzero(load > 1e-6))
+
+
+def fit_model(
+    sales: SalesTable,
+    spec: ModelSpec,
+    *,
+    user_exclusions: Iterable[Exclusion] = (),
+) -> FitResult:
+    """Fit ``spec`` to ``sales`` by OLS and return a frozen :class:`FitResult`.
+
+    Raises
+    ------
+    ModelFileError
+        Unknown target, or an exclude list without a sale-id column.
+    ExpressionError, DesignError
+        A feature cannot be parsed or evaluated.
+    FitError
+        Not more sales than terms.
+    CollinearityError
+        The design is rank deficient; the message names the terms involved.
+    """
+    target = resolve_target(sales, spec.target)
+    keep, excluded, notes = _model_exclusions(sales, spec, user_exclusions)
+    frame = sales.frame.loc[keep].reset_index(drop=True)
+    id_col = sales.roles.column("sale_id")
+
+    def sale_id(pos: int) -> str | None:
+        if id_col is None or id_col not in frame.columns:
+            return None
+        v = frame[id_col].iloc[pos]
+        return None if pd.isna(v) else str(v)
+
+    price_all = pd.to_numeric(frame[target], errors="coerce").to_numpy(dtype=float)
+    bad_price = ~np.isfinite(price_all) | ((price_all <= 0) if spec.response == "log" else False)
+    for pos in np.flatnonzero(bad_price):
+        excluded.append(
+            Exclusion(
+                int(frame[ROW_COLUMN].iloc[pos]),
+                sale_id(pos),
+                "target is missing"
+                if not np.isfinite(price_all[pos])
+                else "target must be positive for a log response",
+                target,
+                "model",
+            )
+        )
+    frame = frame.loc[~bad_price].reset_index(drop=True)
+
+    # Learn, build, drop rows the features cannot use, and learn again on what remains
+    # (a category level seen only in dropped rows must not get a column).
+    for _ in range(3):
+        design = learn_design(
+            spec.features, frame, derived=spec.derived, roles=sales.roles, intercept=spec.intercept
+        )
+        built = design.build(frame)
+        if built.row_ok.all():
+            break
+        for pos, reason, column in built.problems:
+            excluded.append(
+                Exclusion(int(frame[ROW_COLUMN].iloc[pos]), sale_id(pos), reason, column, "model")
+            )
+        frame = frame.loc[built.row_ok].reset_index(drop=True)
+    else:  # pragma: no cover - learning on clean rows cannot create new problems twice
+        raise FitError("could not settle the set of usable sales", file=sales.source.path)
+
+    X = np.asarray(built.matrix, dtype=float)
+    names = design.names
+    n, p = X.shape
+    if n <= p:
+        raise FitError(
+            f"{n} usable sales for {p} terms: a fit needs more sales than terms "
+            "(drop terms or add sales)",
+            file=sales.source.path,
+        )
+    involved = _rank_problem(X, names)
+    if involved is not None:
+        raise CollinearityError(
+            "the terms are perfectly collinear (one is an exact combination of others): "
+            + ", ".join(involved)
+            + ". Remove one of them, or give onehot() a reference level when an intercept is used.",
+            terms=involved,
+            file=sales.source.path,
+        )
+
+    price = pd.to_numeric(frame[target]).to_numpy(dtype=float)
+    y = np.log(price) if spec.response == "log" else price
+    res = sm.OLS(y, X).fit(cov_type=STATSMODELS_COV[spec.cov_type], use_t=True)
+    ci = np.asarray(res.conf_int(alpha=1 - COEF_CI_LEVEL))
+    terms = tuple(
+        TermEstimate(
+            names[j],
+            float(res.params[j]),
+            float(res.bse[j]),
+            float(res.tvalues[j]),
+            float(res.pvalues[j]),
+            float(ci[j, 0]),
+            float(ci[j, 1]),
+        )
+        for j in range(p)
+    )
+    resid = np.asarray(res.resid, dtype=float)
+    warnings = list(notes)
+    if n < MIN_SALES_PER_TERM * p:
+        warnings.append(
+            f"thin data: {n} sales for {p} terms ({n / p:.1f} per term; "
+            f"common practice asks for at least {MIN_SALES_PER_TERM})"
+        )
+    return FitResult(
+        spec=spec,
+        design=design,
+        sales=sales,
+        frame=frame,
+        X=X,
+        y=y,
+        price=price,
+        rows=frame[ROW_COLUMN].to_numpy(dtype=int),
+        sale_ids=tuple(sale_id(i) for i in range(n)),
+        excluded=tuple(sorted((*sales.excluded, *excluded), key=lambda e: e.row)),
+        terms=terms,
+        params=np.asarray(res.params, dtype=float),
+        n=n,
+        p=p,
+        df_resid=int(res.df_resid),
+        r2=float(res.rsquared),
+        adj_r2=float(res.rsquared_adj),
+        sigma=float(np.sqrt(res.scale)),
+        aic=float(res.aic),
+        bic=float(res.bic),
+        llf=float(res.llf),
+        cov_type=spec.cov_type,
+        fitted=np.asarray(res.fittedvalues, dtype=float),
+        resid=resid,
+        smearing=float(np.mean(np.exp(resid))) if spec.response == "log" else 1.0,
+        xtx_inv=np.asarray(res.normalized_cov_params, dtype=float),
+        cov_params=np.asarray(res.cov_params(), dtype=float),
+        target=target,
+        warnings=tuple(warnings),
+    )
