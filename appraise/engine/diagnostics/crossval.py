@@ -1,0 +1,223 @@
+"""Out-of-sample accuracy: leave-one-out from the hat diagonal, and seeded k-fold.
+
+Leave-one-out prediction interval
+---------------------------------
+Without sale i the coefficients are :math:`b_{(i)}` and the prediction
+:math:`\\hat y_{(i)} = x_i' b_{(i)}`. Its error :math:`y_i - \\hat y_{(i)} = e_i/(1-h_i)`
+has variance :math:`\\sigma^2\\big(1 + x_i'(X_{(i)}'X_{(i)})^{-1}x_i\\big)`, and by the
+Sherman-Morrison formula :math:`x_i'(X_{(i)}'X_{(i)})^{-1}x_i = h_i/(1-h_i)`, so the
+variance is :math:`\\sigma^2/(1-h_i)`. With :math:`\\sigma` estimated from the other
+n-1 sales (:math:`s_{(i)}`, df n-p-1) the interval is
+
+.. math:: \\hat y_{(i)} \\pm t_{1-\\alpha/2,\\,n-p-1}\\; s_{(i)} \\sqrt{1 + h_i/(1-h_i)},
+
+the ordinary prediction interval of the model fitted without sale i (classical
+variance, whatever ``cov_type`` says). Sale i lies inside it exactly when its
+externally studentized residual satisfies :math:`|t_i| \\le t_{1-\\alpha/2,n-p-1}`.
+
+Price units
+-----------
+For a log response the leave-one-out prediction in price is the mean estimate,
+:math:`e^{\\hat y_{(i)}}` times Duan's smearing factor of the full fit (the same
+retransformation as the valuation's point estimate; the factor without sale i differs
+by O(1/n)), and the interval is :math:`[e^{L}, e^{U}]` of the log-scale bounds. In
+k-fold cross-validation each fold's smearing factor comes from its training sales.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+from .influence import Influence
+from .plain import plain
+
+ESTIMABLE_TOL = 1e-8
+"""Relative size of a held-out row's component outside the training rows' span above
+which it cannot be predicted (e.g. a category level absent from the training folds)."""
+
+
+def to_price(pred: np.ndarray, response: str, smearing: float) -> np.ndarray:
+    """Response-scale predictions in price units (smearing-corrected mean for a log response)."""
+    return np.exp(pred) * smearing if response == "log" else np.asarray(pred, dtype=float)
+
+
+def mdape(pred: np.ndarray, price: np.ndarray) -> float:
+    """Median absolute percentage error, in percent: :math:`100\\,\\mathrm{median}|A-S|/S`."""
+    ok = np.isfinite(pred)
+    if not ok.any():
+        return float("nan")
+    return float(100.0 * np.median(np.abs(pred[ok] - price[ok]) / price[ok]))
+
+
+def rmse(pred: np.ndarray, actual: np.ndarray) -> float:
+    ok = np.isfinite(pred)
+    if not ok.any():
+        return float("nan")
+    return float(np.sqrt(np.mean((pred[ok] - actual[ok]) ** 2)))
+
+
+@dataclass(frozen=True, eq=False)
+class LeaveOneOut:
+    """Leave-one-out predictions, intervals and their summaries."""
+
+    price_prediction: np.ndarray
+    low: np.ndarray
+    high: np.ndarray
+    inside: np.ndarray
+    """Sale price inside its own leave-one-out interval (False where there is none)."""
+    press: float
+    """On the response scale (log price for a log response)."""
+    rmse: float
+    """Response scale: :math:`\\sqrt{PRESS/n}`."""
+    rmse_price: float
+    mdape: float
+    coverage: float
+    level: float
+    t_crit: float
+    n_used: int
+    n_without: int
+    """Sales with leverage 1, which have no leave-one-out prediction."""
+
+    def to_dict(self) -> dict:
+        return plain(
+            {
+                "press": self.press,
+                "rmse": self.rmse,
+                "rmse_price": self.rmse_price,
+                "mdape": self.mdape,
+                "coverage": {"nominal": self.level, "empirical": self.coverage, "n": self.n_used},
+                "n_used": self.n_used,
+                "n_without_prediction": self.n_without,
+            }
+        )
+
+
+def leave_one_out(
+    infl: Influence,
+    price: np.ndarray,
+    *,
+    response: str,
+    smearing: float,
+    level: float,
+) -> LeaveOneOut:
+    """Leave-one-out accuracy and interval coverage from the influence measures."""
+    price = np.asarray(price, dtype=float)
+    ok = infl.has_loo
+    t_crit = float(stats.t.ppf(0.5 + level / 2, infl.n - infl.p - 1))
+    half = t_crit * infl.loo_sigma / np.sqrt(1.0 - infl.leverage)
+    half = np.where(ok, half, np.nan)
+    lo = infl.loo_prediction - half
+    hi = infl.loo_prediction + half
+    if response == "log":
+        lo, hi = np.exp(lo), np.exp(hi)
+    pred = to_price(infl.loo_prediction, response, smearing)
+    inside = ok & (np.abs(infl.student_external) <= t_crit)
+    n_used = int(ok.sum())
+    press = infl.press()
+    return LeaveOneOut(
+        price_prediction=pred,
+        low=lo,
+        high=hi,
+        inside=inside,
+        press=press,
+        rmse=float(np.sqrt(press / n_used)) if n_used else float("nan"),
+        rmse_price=rmse(pred, price),
+        mdape=mdape(pred, price),
+        coverage=float(inside[ok].mean()) if n_used else float("nan"),
+        level=float(level),
+        t_crit=t_crit,
+        n_used=n_used,
+        n_without=int(infl.n - n_used),
+    )
+
+
+@dataclass(frozen=True, eq=False)
+class KFold:
+    """k-fold cross-validation in price units."""
+
+    folds: int
+    seed: int
+    fold: np.ndarray
+    """Fold number (0-based) of each sale."""
+    price_prediction: np.ndarray
+    """NaN where a sale could not be predicted from the other folds."""
+    rmse_price: float
+    mdape: float
+
+    @property
+    def n_predicted(self) -> int:
+        return int(np.isfinite(self.price_prediction).sum())
+
+    @property
+    def n_unpredictable(self) -> int:
+        return int(self.price_prediction.size - self.n_predicted)
+
+    def to_dict(self) -> dict:
+        return plain(
+            {
+                "folds": self.folds,
+                "seed": self.seed,
+                "rmse_price": self.rmse_price,
+                "mdape": self.mdape,
+                "n_predicted": self.n_predicted,
+                "n_unpredictable": self.n_unpredictable,
+            }
+        )
+
+
+def assign_folds(n: int, folds: int, seed: int) -> np.ndarray:
+    """Shuffle with ``numpy.random.default_rng(seed)`` and deal the sales into folds."""
+    order = np.random.default_rng(seed).permutation(n)
+    fold = np.empty(n, dtype=int)
+    fold[order] = np.arange(n) % folds
+    return fold
+
+
+def kfold(
+    X: np.ndarray,
+    y: np.ndarray,
+    price: np.ndarray,
+    *,
+    response: str,
+    folds: int = 10,
+    seed: int = 0,
+) -> KFold:
+    """Fit on k-1 folds by least squares (SVD), predict the held-out fold in price units.
+
+    A held-out sale whose row is not a combination of the training rows (its category
+    level, say, is missing from the other folds) gets no prediction rather than a
+    silent guess, and is counted in ``n_unpredictable``.
+    """
+    X = np.asarray(X, dtype=float)
+    y = np.asarray(y, dtype=float)
+    price = np.asarray(price, dtype=float)
+    n, p = X.shape
+    k = int(min(folds, n))
+    fold = assign_folds(n, k, seed)
+    pred = np.full(n, np.nan)
+    for f in range(k):
+        test = fold == f
+        train = ~test
+        u, s, vt = np.linalg.svd(X[train], full_matrices=False)
+        rank = int(np.sum(s > s[0] * max(X[train].shape) * np.finfo(float).eps))
+        coef = vt[:rank].T @ ((u[:, :rank].T @ y[train]) / s[:rank])
+        xt = X[test]
+        guess = xt @ coef
+        if rank < p:
+            outside = np.linalg.norm(xt @ vt[rank:].T, axis=1)
+            guess[outside > ESTIMABLE_TOL * np.linalg.norm(xt, axis=1)] = np.nan
+        smear = 1.0
+        if response == "log":
+            smear = float(np.mean(np.exp(y[train] - X[train] @ coef)))
+        pred[test] = to_price(guess, response, smear)
+    return KFold(
+        folds=k,
+        seed=int(seed),
+        fold=fold,
+        price_prediction=pred,
+        rmse_price=rmse(pred, price),
+        mdape=mdape(pred, price),
+    )
