@@ -1,0 +1,206 @@
+"""Print a worksheet to PDF (or any paged Qt device, such as a printer) with Qt's own
+rich-text engine: the same HTML as :func:`appraise.report.html.render_html`, with
+the figures registered as document resources.
+
+Each page gets a header (title, effective date) and a footer (workfile id,
+``Page x of y``, a one-line caution). Layout happens at 96 logical pixels per
+inch; the painter scales to the device's resolution, so text stays vector text
+and the figures keep their full pixel size.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..engine.errors import ReportError
+from ..report.cautions import ONE_LINE_CAUTION
+from ..report.content import Figure, Worksheet
+from ..report.html import render_html
+from .qtapp import ensure_app
+
+LOGICAL_DPI = 96.0
+MM = LOGICAL_DPI / 25.4  # logical pixels per millimetre
+
+
+@dataclass(frozen=True)
+class PageMargins:
+    """Margins in millimetres; the header and footer sit inside top and bottom."""
+
+    left: float = 18.0
+    right: float = 18.0
+    top: float = 22.0
+    bottom: float = 22.0
+
+
+def figure_resource(index: int, figure: Figure) -> str:
+    """Resource name under which figure ``index`` is registered with the document."""
+    return f"appraise-figure-{index}.png"
+
+
+def build_document(worksheet: Worksheet, *, text_width: float | None = None):
+    """A ``QTextDocument`` holding the worksheet, figures registered as resources.
+
+    ``text_width`` (logical pixels) sets the layout width, and figures are sized
+    to fit it; the PDF writer sets the page size itself afterwards.
+    """
+    ensure_app()
+    from PySide6.QtCore import QUrl
+    from PySide6.QtGui import QImage, QTextDocument
+
+    doc = QTextDocument()
+    doc.setDefaultFont(plain_font(9.5))
+    width = text_width or 640.0
+    doc.setTextWidth(width)
+    for i, fig in enumerate(worksheet.figures()):
+        image = QImage.fromData(fig.png, "PNG")
+        if image.isNull():
+            raise ReportError(f"figure {i + 1} ({fig.caption[:40]}) could not be decoded")
+        doc.addResource(
+            QTextDocument.ResourceType.ImageResource, QUrl(figure_resource(i, fig)), image
+        )
+    doc.setHtml(render_html(worksheet, image_src=figure_resource, image_width=int(width * 0.96)))
+    doc.setMetaInformation(QTextDocument.MetaInformation.DocumentTitle, worksheet.title)
+    return doc
+
+
+def plain_font(points: float, *, fixed_pixels: bool = False):
+    """The worksheet font with ligatures and kerning off, so that text copied or
+    extracted from the PDF reads "certified", not "certi\ufb01ed".
+
+    ``fixed_pixels`` sizes it in logical pixels (``points`` at 96 per inch) instead of
+    points, for text painted straight onto a device whose painter is already scaled.
+    """
+    from PySide6.QtGui import QFont
+
+    font = QFont("DejaVu Sans")
+    if fixed_pixels:
+        font.setPixelSize(max(1, round(points * LOGICAL_DPI / 72.0)))
+    else:
+        font.setPointSizeF(points)
+    font.setFeature(QFont.Tag("liga"), 0)
+    font.setFeature(QFont.Tag("kern"), 0)
+    return font
+
+
+def page_size_of(name: str):
+    from PySide6.QtGui import QPageSize
+
+    sizes = {"A4": QPageSize.PageSizeId.A4, "Letter": QPageSize.PageSizeId.Letter}
+    if name not in sizes:
+        raise ReportError(f"page size must be one of {', '.join(sizes)}, not {name!r}")
+    return QPageSize(sizes[name])
+
+
+def paint_pages(worksheet: Worksheet, device, margins: PageMargins = PageMargins()) -> int:
+    """Lay the worksheet out for ``device`` (a ``QPdfWriter`` or ``QPrinter``) and paint
+    every page with its header and footer. Returns the number of pages."""
+    from PySide6.QtCore import QRectF, QSizeF
+    from PySide6.QtGui import QPainter
+
+    scale = device.logicalDpiX() / LOGICAL_DPI
+    page_w = device.width() / scale
+    page_h = device.height() / scale
+    body = QRectF(
+        margins.left * MM,
+        margins.top * MM,
+        page_w - (margins.left + margins.right) * MM,
+        page_h - (margins.top + margins.bottom) * MM,
+    )
+    if body.width() < 100 or body.height() < 100:
+        raise ReportError("the page is too small for the margins")
+    doc = build_document(worksheet, text_width=body.width())
+    doc.setPageSize(QSizeF(body.width(), body.height()))
+    pages = doc.pageCount()
+
+    painter = QPainter()
+    if not painter.begin(device):
+        raise ReportError("cannot start painting on the output device")
+    try:
+        for i in range(pages):
+            if i > 0 and not device.newPage():
+                raise ReportError("cannot start a new page on the output device")
+            painter.save()
+            painter.scale(scale, scale)
+            painter.save()
+            painter.translate(body.left(), body.top() - i * body.height())
+            doc.drawContents(painter, QRectF(0, i * body.height(), body.width(), body.height()))
+            painter.restore()
+            _header_footer(painter, worksheet, i + 1, pages, page_w, page_h, body)
+            painter.restore()
+    finally:
+        painter.end()
+    return pages
+
+
+def _header_footer(painter, worksheet: Worksheet, page: int, pages: int, page_w, page_h, body):
+    from PySide6.QtCore import QPointF, QRectF, Qt
+    from PySide6.QtGui import QColor, QFontMetricsF, QPen
+
+    left, right = body.left(), body.right()
+    head_font = plain_font(8.5, fixed_pixels=True)
+    small = plain_font(7.0, fixed_pixels=True)
+    painter.setPen(QPen(QColor(40, 40, 40)))
+
+    # header: title left, effective date right, a rule below
+    painter.setFont(head_font)
+    fm = QFontMetricsF(head_font)
+    date_text = f"Effective date: {worksheet.effective_date}"
+    date_w = fm.horizontalAdvance(date_text)
+    title_room = body.width() - date_w - 12
+    title = fm.elidedText(worksheet.title, Qt.TextElideMode.ElideRight, max(title_room, 40))
+    base = body.top() - 5 * MM
+    painter.drawText(QPointF(left, base), title)
+    painter.drawText(QPointF(right - date_w, base), date_text)
+    painter.setPen(QPen(QColor(150, 150, 150), 0.6))
+    painter.drawLine(QPointF(left, base + 2 * MM), QPointF(right, base + 2 * MM))
+
+    # footer: a rule, workfile id left, page x of y right, the caution below
+    top = body.bottom() + 5 * MM
+    painter.drawLine(QPointF(left, top), QPointF(right, top))
+    painter.setPen(QPen(QColor(40, 40, 40)))
+    line1 = top + 1.5 * MM + fm.ascent()
+    page_text = f"Page {page} of {pages}"
+    painter.drawText(QPointF(left, line1), f"Workfile {worksheet.workfile_id}")
+    painter.drawText(QPointF(right - fm.horizontalAdvance(page_text), line1), page_text)
+    painter.setFont(small)
+    painter.setPen(QPen(QColor(90, 90, 90)))
+    painter.drawText(
+        QRectF(left, line1 + 1.5 * MM, body.width(), 9 * MM),
+        int(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop | Qt.TextFlag.TextWordWrap),
+        ONE_LINE_CAUTION,
+    )
+
+
+def write_pdf(
+    worksheet: Worksheet,
+    path: str | Path,
+    *,
+    page_size: str | None = None,
+    resolution: int = 600,
+) -> int:
+    """Write the worksheet as a PDF file; returns the number of pages.
+
+    ``page_size`` (``"A4"`` or ``"Letter"``) overrides the worksheet's own.
+    """
+    ensure_app()
+    from PySide6.QtCore import QMarginsF
+    from PySide6.QtGui import QPageLayout, QPdfWriter
+
+    from .. import __version__
+
+    p = Path(path)
+    if not p.parent.exists():
+        raise ReportError("the folder does not exist", file=str(p))
+    writer = QPdfWriter(str(p))
+    writer.setResolution(resolution)
+    writer.setPageSize(page_size_of(page_size or worksheet.page_size))
+    writer.setPageOrientation(QPageLayout.Orientation.Portrait)
+    writer.setPageMargins(QMarginsF(0, 0, 0, 0), QPageLayout.Unit.Millimeter)
+    writer.setTitle(worksheet.title)
+    writer.setCreator(f"appraise {__version__}")
+    pages = paint_pages(worksheet, writer)
+    del writer  # flushes and closes the file
+    if not p.is_file() or p.stat().st_size == 0:
+        raise ReportError("the PDF could not be written", file=str(p))
+    return pages

@@ -1,0 +1,131 @@
+"""Export worksheet tables to CSV and XLSX, safe to open in a spreadsheet.
+
+A text cell that begins with ``=``, ``+``, ``-``, ``@``, a tab or a carriage
+return could be taken for a formula by a spreadsheet program; such cells are
+written with a leading single quote so they stay text. Numbers are written as
+numbers (a negative coefficient is a number, not a formula), missing values as
+empty cells.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+from collections.abc import Iterable, Sequence
+from pathlib import Path
+
+from ..engine.errors import ReportError
+from .content import Cell, Table, Worksheet
+
+FORMULA_TRIGGERS: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
+
+DEFAULT_EXPORTS: tuple[str, ...] = ("coefficients", "exclusions")
+"""Keys of the tables written by :func:`export_tables` unless told otherwise."""
+
+
+def neutralise(value: Cell) -> Cell:
+    """Make one cell safe for a spreadsheet.
+
+    Text starting with a formula trigger gets a leading ``'``; numbers pass
+    through unchanged (non-finite numbers and ``None`` become empty).
+    """
+    if value is None:
+        return None
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, int | float):
+        v = float(value)
+        if not math.isfinite(v):
+            return None
+        return value
+    if hasattr(value, "item") and not isinstance(value, str):  # numpy scalar
+        return neutralise(value.item())
+    text = str(value)
+    if text.startswith(FORMULA_TRIGGERS):
+        return "'" + text
+    return text
+
+
+def safe_rows(table: Table) -> list[list[Cell]]:
+    """Header and rows of ``table`` with every cell neutralised."""
+    rows: list[list[Cell]] = [[neutralise(c) for c in table.columns]]
+    rows.extend([neutralise(c) for c in row] for row in table.export_rows())
+    return rows
+
+
+def write_csv(table: Table, path: str | Path) -> Path:
+    """Write one table as UTF-8 CSV (with a byte-order mark so spreadsheets read it as UTF-8)."""
+    p = Path(path)
+    try:
+        with p.open("w", encoding="utf-8-sig", newline="") as fh:
+            writer = csv.writer(fh)
+            for row in safe_rows(table):
+                writer.writerow(["" if c is None else _csv_text(c) for c in row])
+    except OSError as exc:
+        raise ReportError(f"cannot write CSV: {exc.strerror}", file=str(p)) from None
+    return p
+
+
+def _csv_text(c: Cell) -> str:
+    if isinstance(c, float):
+        return repr(c)  # shortest text that reads back to the same float
+    return str(c)
+
+
+def write_xlsx(tables: Sequence[Table], path: str | Path) -> Path:
+    """Write tables to one workbook, one sheet per table (named by the table key).
+
+    Strings are stored as strings, never as formulas, on top of the quote prefix.
+    """
+    from openpyxl import Workbook
+    from openpyxl.styles import Font
+
+    if not tables:
+        raise ReportError("no tables to write", file=str(path))
+    wb = Workbook()
+    wb.remove(wb.active)
+    for table in tables:
+        ws = wb.create_sheet(title=_sheet_name(table.key))
+        for r, row in enumerate(safe_rows(table), start=1):
+            for c, value in enumerate(row, start=1):
+                cell = ws.cell(row=r, column=c)
+                cell.value = value
+                if isinstance(value, str):
+                    cell.data_type = "s"  # openpyxl would otherwise read "=..." as a formula
+        for cell in ws[1]:
+            cell.font = Font(bold=True)
+    p = Path(path)
+    try:
+        wb.save(p)
+    except OSError as exc:
+        raise ReportError(f"cannot write XLSX: {exc.strerror}", file=str(p)) from None
+    return p
+
+
+def _sheet_name(key: str) -> str:
+    bad = set("[]:*?/\\")
+    name = "".join("_" if ch in bad else ch for ch in key)[:31]
+    return name or "table"
+
+
+def export_tables(
+    worksheet: Worksheet, directory: str | Path, keys: Iterable[str] = DEFAULT_EXPORTS
+) -> tuple[Path, ...]:
+    """Write each named table present in ``worksheet`` as ``<key>.csv`` and ``<key>.xlsx``.
+
+    Returns the paths written. Tables not in the worksheet (for example no
+    exclusions) are skipped.
+    """
+    d = Path(directory)
+    try:
+        d.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise ReportError(f"cannot create folder: {exc.strerror}", file=str(d)) from None
+    written: list[Path] = []
+    for key in keys:
+        table = worksheet.table(key)
+        if table is None:
+            continue
+        written.append(write_csv(table, d / f"{key}.csv"))
+        written.append(write_xlsx([table], d / f"{key}.xlsx"))
+    return tuple(written)
