@@ -15,6 +15,8 @@ import pyqtgraph as pg
 from PySide6.QtCore import QPoint, Qt, Signal
 from PySide6.QtGui import QColor
 
+from appraise.qtrender.figures import _money_axis
+
 # Okabe & Ito (2008), "Color Universal Design": eight colours told apart under the
 # common forms of colour-vision deficiency. Black is kept for the subject, so regions
 # draw from the other seven; after seven, colours repeat with another symbol.
@@ -73,39 +75,9 @@ def region_styles(levels: Sequence[str]) -> dict[str, PointStyle]:
 # --- axes ------------------------------------------------------------------------------------
 
 
-def money_text(value: float, currency: str = "$") -> str:
-    """Money with thousands separators and no decimals: ``-$12,500``."""
-    if not math.isfinite(value):
-        return "n/a"
-    sign = "-" if value < 0 else ""
-    return f"{sign}{currency}{abs(value):,.0f}"
-
-
-def short_money(value: float, currency: str = "$", step: float | None = None) -> str:
-    """A tick label: ``$350k``, ``$1.25M``, ``-$40k``; precise enough for the tick ``step``."""
-    sign = "-" if value < 0 else ""
-    v = abs(value)
-    if v >= 1e6:
-        digits = 0 if step is None or step >= 1e6 else (1 if step >= 1e5 else 2)
-        body = f"{v / 1e6:.{digits}f}M"
-    elif v >= 1e3:
-        digits = 0 if step is None or step >= 1e3 else 1
-        body = f"{v / 1e3:.{digits}f}k"
-    else:
-        body = f"{v:.0f}"
-    return f"{sign}{currency}{body}"
-
-
-class MoneyAxis(pg.AxisItem):
-    """An axis whose ticks read as money (``$350k``); no SI prefix games."""
-
-    def __init__(self, orientation: str, currency: str = "$", **kw) -> None:
-        super().__init__(orientation, **kw)
-        self.currency = currency
-        self.enableAutoSIPrefix(False)
-
-    def tickStrings(self, values, scale, spacing):  # noqa: N802 (Qt naming)
-        return [short_money(v * scale, self.currency, spacing * scale) for v in values]
+def money_axis(orientation: str, currency: str = "$") -> pg.AxisItem:
+    """An axis whose ticks read as money (``$350k``): the worksheet figures' own axis."""
+    return _money_axis(currency)(orientation=orientation)
 
 
 class GroupedAxis(pg.AxisItem):

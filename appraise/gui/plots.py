@@ -37,6 +37,7 @@ from PySide6.QtWidgets import (
 
 from appraise.engine.errors import AppraiseError
 from appraise.engine.sales import ROW_COLUMN, Exclusion, SalesTable
+from appraise.report.numbers import money
 
 from .plot_items import (
     AREA_UNIT_LABELS,
@@ -46,9 +47,8 @@ from .plot_items import (
     SUBJECT_COLOUR,
     TEXT_COLOUR,
     GroupedAxis,
-    MoneyAxis,
     SaleScatter,
-    money_text,
+    money_axis,
     reference_line,
     region_styles,
     sale_scatter,
@@ -107,13 +107,13 @@ class SalePoints:
     def describe(self, i: int, currency: str = "$") -> str:
         """What a hover shows for sale ``i``: id, price, living area, region, file row."""
         lines = [f"Sale {self.sale_ids[i]}" if self.sale_ids[i] is not None else "Sale"]
-        lines.append(f"Price {money_text(self.price[i], currency)}")
+        lines.append(f"Price {money(self.price[i], currency)}")
         if self.area is not None and math.isfinite(self.area[i]):
             lines.append(f"Living area {self.area[i]:,.0f} {self.unit_label}")
         if self.region is not None:
             lines.append(f"Region {self.region[i]}")
         if math.isfinite(self.fitted[i]):
-            lines.append(f"Model {money_text(self.fitted[i], currency)}")
+            lines.append(f"Model {money(self.fitted[i], currency)}")
         lines.append(f"File row {int(self.rows[i])}")
         if not self.used[i]:
             lines.append(f"Excluded: {self.reason[i]}")
@@ -363,7 +363,7 @@ def price_area_figure(
     """Sale price against living area; the subject's estimate with its prediction interval."""
     pts = sale_points(fit, sales=sales, user_exclusions=user_exclusions)
     plot = _new_plot(
-        "Price against living area", GroupedAxis("bottom"), MoneyAxis("left", currency), legend
+        "Price against living area", GroupedAxis("bottom"), money_axis("left", currency), legend
     )
     sp = SalePlot(plot)
     plot.setLabel("bottom", f"Gross living area ({pts.unit_label})")
@@ -402,8 +402,8 @@ def predicted_actual_figure(
     """The model's value against the sale price; on the dashed 45-degree line they agree."""
     plot = _new_plot(
         "Model value against sale price",
-        MoneyAxis("bottom", currency),
-        MoneyAxis("left", currency),
+        money_axis("bottom", currency),
+        money_axis("left", currency),
         legend,
     )
     sp = SalePlot(plot)
@@ -438,8 +438,8 @@ def residual_figure(
 ) -> SalePlot:
     """Residuals (response scale) against the model's value in price units; zero and ±2s."""
     log = fit is not None and fit.spec.response == "log"
-    left = GroupedAxis("left") if log or fit is None else MoneyAxis("left", currency)
-    plot = _new_plot("Residuals against model value", MoneyAxis("bottom", currency), left, legend)
+    left = GroupedAxis("left") if log or fit is None else money_axis("left", currency)
+    plot = _new_plot("Residuals against model value", money_axis("bottom", currency), left, legend)
     sp = SalePlot(plot)
     plot.setLabel("bottom", f"Model value ({currency})")
     plot.setLabel("left", "Residual (log of price)" if log else f"Residual ({currency})")
