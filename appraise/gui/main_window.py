@@ -1,0 +1,513 @@
+"""The workbench window: data on the left, the model in the middle, the subject on the right.
+
+The window only arranges views and routes commands; the state lives in the
+:class:`~appraise.gui.session.Session`, the commands in
+:class:`~appraise.gui.actions.Actions`.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtCore import QFileInfo, Qt, QTimer
+from PySide6.QtGui import QCloseEvent, QDragEnterEvent, QDropEvent
+from PySide6.QtWidgets import (
+    QDockWidget,
+    QFileDialog,
+    QLabel,
+    QMainWindow,
+    QMenu,
+    QMessageBox,
+    QProgressDialog,
+    QSplitter,
+    QTabWidget,
+    QWidget,
+)
+
+from appraise import __version__
+from appraise.report.cautions import FULL_CAUTIONS
+
+from .actions import Actions
+from .model_editor import ModelEditor
+from .plots import PlotsView
+from .preferences import Preferences
+from .results_view import ResultsView
+from .roles_view import RolesView
+from .sales_view import ExclusionLogView, SalesView, exclude_with_reason
+from .session import (
+    SALES_SUFFIXES,
+    WORKFILE_SUFFIX,
+    Session,
+    companion_files,
+    is_sales_file,
+    is_workfile,
+    sample_sales_path,
+)
+from .settings_dialog import SettingsDialog
+from .subject_view import SubjectView
+
+try:  # written in parallel by another helper; the guard goes once it has landed
+    from .worksheet_view import WorksheetView
+except ImportError:  # pragma: no cover
+    WorksheetView = None  # type: ignore[assignment,misc]
+try:
+    from .diagnostics_view import DiagnosticsView
+except ImportError:  # pragma: no cover
+    DiagnosticsView = None  # type: ignore[assignment,misc]
+
+SHORT_STATUS_CAUTION = "Statistical estimate — not an appraisal"
+OPEN_FILTER = (
+    f"Sales or workfiles (*{' *'.join(SALES_SUFFIXES)} *.json);;"
+    f"Sales files (*{' *'.join(SALES_SUFFIXES)});;Workfiles (*{WORKFILE_SUFFIX} *.json)"
+)
+LOAD_DIALOG_DELAY_MS = 400
+
+
+class MainWindow(QMainWindow):
+    """The appraise workbench for one session."""
+
+    def __init__(self, session: Session, prefs: Preferences, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.session = session
+        self.prefs = prefs
+        self.setWindowTitle("appraise[*]")
+        self.setAcceptDrops(True)
+        self.resize(1400, 860)
+        self.actions_ = Actions(self)
+
+        # views
+        self.sales_view = SalesView(session)
+        self.roles_view = RolesView(session)
+        self.exclusion_log = ExclusionLogView(session)
+        self.model_editor = ModelEditor(session)
+        self.results_view = ResultsView(session)
+        self.subject_view = SubjectView(session)
+        self.subject_view.set_currency(prefs.get("currency_symbol"))
+        self.plots_view = PlotsView(session)
+        self.worksheet_view = WorksheetView(session) if WorksheetView is not None else None
+        self.diagnostics_view = DiagnosticsView(session) if DiagnosticsView is not None else None
+
+        self.data_tabs = QTabWidget()
+        self.data_tabs.addTab(self.sales_view, "&Sales")
+        self.data_tabs.addTab(self.roles_view, "Column &roles")
+        self.data_tabs.addTab(self.exclusion_log, "&Left out")
+        self.data_dock = self._dock("Data", self.data_tabs, Qt.DockWidgetArea.LeftDockWidgetArea)
+        self.subject_dock = self._dock(
+            "Subject", self.subject_view, Qt.DockWidgetArea.RightDockWidgetArea
+        )
+
+        model_split = QSplitter(Qt.Orientation.Vertical)
+        model_split.addWidget(self.model_editor)
+        model_split.addWidget(self.results_view)
+        model_split.setStretchFactor(0, 1)
+        model_split.setStretchFactor(1, 1)
+        self.centre_tabs = QTabWidget()
+        self.centre_tabs.addTab(model_split, "&Model")
+        self.centre_tabs.addTab(self.plots_view, "&Plots")
+        if self.diagnostics_view is not None:
+            self.centre_tabs.addTab(self.diagnostics_view, "&Checks")
+        if self.worksheet_view is not None:
+            self.centre_tabs.addTab(self.worksheet_view, "&Worksheet")
+        self.setCentralWidget(self.centre_tabs)
+
+        # status bar
+        self.rows_label = QLabel()
+        self.fit_label = QLabel()
+        self.caution_label = QLabel(SHORT_STATUS_CAUTION)
+        self.caution_label.setToolTip(FULL_CAUTIONS[0][1])
+        bar = self.statusBar()
+        bar.addPermanentWidget(self.rows_label)
+        bar.addPermanentWidget(self.fit_label)
+        bar.addPermanentWidget(self.caution_label)
+
+        self._build_menus()
+        self._connect()
+        self._progress: QProgressDialog | None = None
+        self._progress_timer = QTimer(self)
+        self._progress_timer.setSingleShot(True)
+        self._progress_timer.setInterval(LOAD_DIALOG_DELAY_MS)
+        self._progress_timer.timeout.connect(self._show_progress)
+        self.update_status()
+        self.update_actions()
+
+    def _dock(self, title: str, widget: QWidget, area: Qt.DockWidgetArea) -> QDockWidget:
+        dock = QDockWidget(title, self)
+        dock.setObjectName(f"dock_{title.lower()}")
+        dock.setWidget(widget)
+        dock.setFeatures(
+            QDockWidget.DockWidgetFeature.DockWidgetMovable
+            | QDockWidget.DockWidgetFeature.DockWidgetFloatable
+            | QDockWidget.DockWidgetFeature.DockWidgetClosable
+        )
+        self.addDockWidget(area, dock)
+        return dock
+
+    # --- menus -------------------------------------------------------------------------
+    def _build_menus(self) -> None:
+        a = self.actions_
+        bar = self.menuBar()
+        file_menu = bar.addMenu("&File")
+        file_menu.addAction(a.open)
+        self.recent_menu = file_menu.addMenu("Open &recent")
+        file_menu.addAction(a.open_sample)
+        file_menu.addSeparator()
+        file_menu.addAction(a.save)
+        file_menu.addAction(a.save_as)
+        file_menu.addSeparator()
+        file_menu.addAction(a.print)
+        file_menu.addSeparator()
+        file_menu.addAction(a.quit)
+
+        edit_menu = bar.addMenu("&Edit")
+        edit_menu.addAction(a.find)
+        edit_menu.addAction(a.exclude)
+        edit_menu.addAction(a.include)
+        edit_menu.addSeparator()
+        edit_menu.addAction(a.preferences)
+
+        model_menu = bar.addMenu("&Model")
+        model_menu.addAction(a.refit)
+        for text, slot in (
+            ("Insert &polynomial…", self.model_editor.insert_polynomial),
+            ("Insert &interaction…", self.model_editor.insert_interaction),
+            ("Insert &ratio…", self.model_editor.insert_ratio),
+            ("Insert region &indicators…", self.model_editor.insert_indicators),
+        ):
+            model_menu.addAction(text, slot)
+
+        view_menu = bar.addMenu("&View")
+        view_menu.addAction(self.data_dock.toggleViewAction())
+        view_menu.addAction(self.subject_dock.toggleViewAction())
+
+        help_menu = bar.addMenu("&Help")
+        help_menu.addAction(a.caution)
+        help_menu.addAction(a.about)
+        self._fill_recent()
+
+    def _fill_recent(self) -> None:
+        menu: QMenu = self.recent_menu
+        menu.clear()
+        files = self.prefs.recent_files()
+        for i, path in enumerate(files, start=1):
+            act = menu.addAction(f"&{i} {Path(path).name}")
+            act.setToolTip(path)
+            act.setStatusTip(path)
+            act.triggered.connect(lambda _c=False, p=path: self.open_path(p))
+        if files:
+            menu.addSeparator()
+        menu.addAction(self.actions_.clear_recent)
+        self.actions_.clear_recent.setEnabled(bool(files))
+        menu.setEnabled(True)
+
+    def _connect(self) -> None:
+        a, s = self.actions_, self.session
+        a.open.triggered.connect(self.choose_and_open)
+        a.open_sample.triggered.connect(self.open_sample)
+        a.save.triggered.connect(self.save)
+        a.save_as.triggered.connect(self.save_as)
+        a.print.triggered.connect(self.print_worksheet)
+        a.clear_recent.triggered.connect(self.prefs.clear_recent)
+        a.quit.triggered.connect(self.close)
+        a.exclude.triggered.connect(self.exclude_selected)
+        a.include.triggered.connect(self.include_selected)
+        a.find.triggered.connect(self.find)
+        a.preferences.triggered.connect(self.edit_preferences)
+        a.refit.triggered.connect(s.refit_now)
+        a.about.triggered.connect(self.about)
+        a.caution.triggered.connect(self.show_caution)
+        self.prefs.recentChanged.connect(self._fill_recent)
+        self.sales_view.excludeRequested.connect(self.exclude_row)
+
+        for sig in (
+            s.salesChanged,
+            s.fitFinished,
+            s.fitFailed,
+            s.modelChanged,
+            s.selectionChanged,
+            s.valuationChanged,
+        ):
+            sig.connect(lambda *_: self.update_actions())
+        s.exclusionsChanged.connect(self.update_actions)
+        for sig in (s.salesChanged, s.fitFinished, s.fitFailed, s.exclusionsChanged):
+            sig.connect(lambda *_: self.update_status())
+        s.fitStarted.connect(self.update_status)
+        for sig in (s.modelChanged, s.subjectChanged):
+            sig.connect(lambda *_: self.setWindowModified(True))
+        s.exclusionsChanged.connect(lambda: self.setWindowModified(True))
+        s.loadStarted.connect(self._load_started)
+        s.loadFinished.connect(self._load_finished)
+        s.loadFailed.connect(self._load_failed)
+        s.loadCancelled.connect(self._load_ended)
+        s.workfileChanged.connect(lambda _p: self._update_title())
+        s.notice.connect(lambda text: self.statusBar().showMessage(text, 15_000))
+        s.valuationFailed.connect(
+            lambda m: self.statusBar().showMessage(f"Subject not valued: {m}", 10_000)
+        )
+
+    def update_actions(self) -> None:
+        self.actions_.update_actions(self.session, can_print=self.worksheet_view is not None)
+
+    # --- status bar ---------------------------------------------------------------------
+    def update_status(self) -> None:
+        s = self.session
+        if s.sales is None:
+            self.rows_label.setText("No sales loaded")
+        else:
+            fit = s.fit if s.results_current else None
+            used = fit.n if fit is not None else s.sales.n_used
+            left_out = s.sales.source.rows_in_file - used
+            self.rows_label.setText(f"{used:,} sales used · {left_out:,} left out")
+        if s.is_fitting:
+            self.fit_label.setText("fitting…")
+        elif s.fit_error is not None:
+            self.fit_label.setText("fit failed")
+        elif s.fit is not None:
+            f = s.fit
+            self.fit_label.setText(f"n={f.n:,}  R²={f.r2:.3f}  σ={f.sigma:.4g}")
+        else:
+            self.fit_label.setText("not fitted")
+
+    def _update_title(self) -> None:
+        path = self.session.workfile_path or self.session.sales_path
+        self.setWindowTitle(f"{Path(path).name}[*] — appraise" if path else "appraise[*]")
+
+    # --- opening ----------------------------------------------------------------------------
+    def choose_and_open(self) -> None:
+        start = str(self.session.sales_path.parent) if self.session.sales_path else ""
+        path, _f = QFileDialog.getOpenFileName(self, "Open sales or workfile", start, OPEN_FILTER)
+        if path:
+            self.open_path(path)
+
+    def open_path(self, path: str | Path, *, companions: bool | None = None) -> None:
+        """Open a sales file or a workfile.
+
+        For a sales file, a model and a subject file lying beside it are loaded
+        with it when ``companions`` is True, offered when it is None, ignored when False.
+        """
+        p = Path(path)
+        if not p.is_file():
+            self._error("Cannot open", f"{p}: no such file")
+            return
+        if is_sales_file(p):
+            model, subject = companion_files(p)
+            if companions is None and (model or subject):
+                found = ", ".join(x.name for x in (model, subject) if x)
+                answer = QMessageBox.question(
+                    self,
+                    "Load the files beside it?",
+                    f"{found} lie(s) beside {p.name}. Load them too?",
+                )
+                companions = answer == QMessageBox.StandardButton.Yes
+            if not companions:
+                model = subject = None
+            self.session.load_sales(p, model_path=model, subject_path=subject)
+        elif is_workfile(p):
+            self.session.open_workfile(p)
+        else:
+            self._error(
+                "Cannot open",
+                f"{p.name}: not a sales file ({', '.join(SALES_SUFFIXES)}) or a workfile",
+            )
+            return
+        self.prefs.add_recent(str(p.resolve()))
+
+    def open_sample(self) -> None:
+        """Open the invented sample town with its model and subject."""
+        try:
+            path = sample_sales_path()
+        except Exception as exc:  # noqa: BLE001 - shown to the user, not raised
+            self._error("Sample data not found", str(exc))
+            return
+        self.open_path(path, companions=True)
+
+    def _load_started(self, label: str) -> None:
+        self.statusBar().showMessage(f"Reading {Path(label).name}…")
+        self._progress_label = label
+        self._progress_timer.start()
+
+    def _show_progress(self) -> None:
+        if not self.session.is_loading:
+            return
+        dlg = QProgressDialog(f"Reading {Path(self._progress_label).name}…", "&Cancel", 0, 0, self)
+        dlg.setWindowTitle("appraise")
+        dlg.setWindowModality(Qt.WindowModality.WindowModal)
+        dlg.setMinimumDuration(0)
+        dlg.canceled.connect(self.session.cancel_load)
+        dlg.show()
+        self._progress = dlg
+
+    def _load_ended(self) -> None:
+        self._progress_timer.stop()
+        if self._progress is not None:
+            self._progress.canceled.disconnect(self.session.cancel_load)
+            self._progress.close()
+            self._progress.deleteLater()
+            self._progress = None
+        self.statusBar().clearMessage()
+
+    def _load_finished(self, label: str) -> None:
+        self._load_ended()
+        s = self.session
+        sales = s.sales
+        self._update_title()
+        self.setWindowModified(False)
+        if sales is not None:
+            notes = "; ".join(sales.notes)
+            self.statusBar().showMessage(
+                f"Read {sales.source.rows_in_file:,} rows from {Path(label).name}: "
+                f"{sales.n_used:,} usable, {len(sales.excluded):,} left out at import"
+                + (f". {notes}" if notes else ""),
+                15_000,
+            )
+
+    def _load_failed(self, message: str) -> None:
+        self._load_ended()
+        self._error("Could not open the file", message)
+
+    def _error(self, title: str, message: str) -> None:
+        """Say what went wrong without blocking (the box is window-modal, not app-modal)."""
+        self.statusBar().showMessage(message, 15_000)
+        box = QMessageBox(
+            QMessageBox.Icon.Warning, title, message, QMessageBox.StandardButton.Ok, self
+        )
+        box.setObjectName("errorBox")
+        box.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        box.open()
+
+    # --- saving -----------------------------------------------------------------------------
+    def save(self) -> bool:
+        if self.session.workfile_path is None:
+            return self.save_as()
+        return self.save_to(self.session.workfile_path)
+
+    def save_as(self) -> bool:
+        s = self.session
+        stem = s.sales_path.stem if s.sales_path else "valuation"
+        folder = (
+            s.workfile_path.parent
+            if s.workfile_path
+            else (s.sales_path.parent if s.sales_path else Path.cwd())
+        )
+        path, _f = QFileDialog.getSaveFileName(
+            self,
+            "Save workfile",
+            str(folder / f"{stem}{WORKFILE_SUFFIX}"),
+            f"Workfiles (*{WORKFILE_SUFFIX})",
+        )
+        if not path:
+            return False
+        if not path.endswith(".json"):
+            path += WORKFILE_SUFFIX
+        return self.save_to(Path(path))
+
+    def save_to(self, path: Path) -> bool:
+        try:
+            written = self.session.save_workfile(
+                path, settings=self.prefs.values(), embed=bool(self.prefs.get("embed_sales"))
+            )
+        except Exception as exc:  # noqa: BLE001 - any failure is shown; the old file is intact
+            self._error("Could not save", str(exc))
+            return False
+        self.setWindowModified(False)
+        self.prefs.add_recent(str(Path(written).resolve()))
+        self.statusBar().showMessage(f"Saved {Path(written).name}", 8_000)
+        return True
+
+    def print_worksheet(self) -> None:
+        if self.worksheet_view is not None:
+            self.centre_tabs.setCurrentWidget(self.worksheet_view)
+            self.worksheet_view.print_worksheet()
+
+    # --- editing ------------------------------------------------------------------------
+    def find(self) -> None:
+        self.data_dock.show()
+        self.data_tabs.setCurrentWidget(self.sales_view)
+        self.sales_view.focus_filter()
+
+    def exclude_row(self, row: int) -> None:
+        exclude_with_reason(self, self.session, row)
+
+    def exclude_selected(self) -> None:
+        row = self.session.selection
+        if row is not None and self.session.sale_record(row) is not None:
+            self.exclude_row(row)
+
+    def include_selected(self) -> None:
+        row = self.session.selection
+        if row is not None:
+            self.session.include_sale(row)
+
+    def edit_preferences(self) -> None:
+        dlg = SettingsDialog(self.prefs, self)
+        if dlg.exec() == SettingsDialog.DialogCode.Accepted:
+            self.apply_preferences()
+
+    def apply_preferences(self) -> None:
+        self.subject_view.set_currency(self.prefs.get("currency_symbol"))
+        self.session.set_import_settings(self.prefs.import_settings(self.session.import_settings))
+
+    # --- help -------------------------------------------------------------------------------
+    def about(self) -> None:
+        QMessageBox.about(
+            self,
+            "About appraise",
+            f"<b>appraise {__version__}</b><br>Values a subject property from comparable "
+            "sales with a hedonic regression (OLS).<br><br>" + FULL_CAUTIONS[0][1],
+        )
+
+    def show_caution(self) -> None:
+        text = "".join(f"<p><b>{title}</b><br>{body}</p>" for title, body in FULL_CAUTIONS)
+        box = QMessageBox(
+            QMessageBox.Icon.Information,
+            "What the estimate is",
+            "",
+            QMessageBox.StandardButton.Ok,
+            self,
+        )
+        box.setText(text)
+        box.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        box.open()
+
+    # --- drag and drop ----------------------------------------------------------------------
+    def dragEnterEvent(self, event: QDragEnterEvent) -> None:
+        if self._dropped_path(event) is not None:
+            event.acceptProposedAction()
+        else:
+            event.ignore()
+
+    def dropEvent(self, event: QDropEvent) -> None:
+        path = self._dropped_path(event)
+        if path is None:
+            event.ignore()
+            return
+        event.acceptProposedAction()
+        # open after the drop returns, so the dragging application is not kept waiting
+        QTimer.singleShot(0, lambda: self.open_path(path))
+
+    @staticmethod
+    def _dropped_path(event) -> Path | None:
+        urls = event.mimeData().urls() if event.mimeData().hasUrls() else []
+        local = [Path(u.toLocalFile()) for u in urls if u.isLocalFile()]
+        if len(local) != 1:
+            return None
+        p = local[0]
+        return p if QFileInfo(str(p)).isFile() and (is_sales_file(p) or is_workfile(p)) else None
+
+    # --- closing ----------------------------------------------------------------------------
+    def closeEvent(self, event: QCloseEvent) -> None:
+        if self.isWindowModified() and self.session.sales is not None:
+            answer = QMessageBox.question(
+                self,
+                "Save the valuation?",
+                "The valuation has unsaved changes. Save them?",
+                QMessageBox.StandardButton.Save
+                | QMessageBox.StandardButton.Discard
+                | QMessageBox.StandardButton.Cancel,
+            )
+            if answer == QMessageBox.StandardButton.Cancel or (
+                answer == QMessageBox.StandardButton.Save and not self.save()
+            ):
+                event.ignore()
+                return
+        self.session.shutdown()
+        event.accept()

@@ -1,0 +1,521 @@
+"""The sales as read: a sortable, filterable table, and the log of every sale left out.
+
+Sorting and filtering are done on numpy/pandas columns inside the model (one
+``argsort``, one vectorised ``str.contains``), not row by row through Qt, so a table
+of 50,000 sales sorts and filters at once. Sales that are not used are drawn grey
+with the reason beside them.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from PySide6.QtCore import (
+    QAbstractTableModel,
+    QItemSelectionModel,
+    QModelIndex,
+    QPersistentModelIndex,
+    QPoint,
+    Qt,
+    QTimer,
+    Signal,
+)
+from PySide6.QtGui import QAction, QBrush, QColor, QKeySequence, QShortcut
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QHBoxLayout,
+    QHeaderView,
+    QInputDialog,
+    QLabel,
+    QLineEdit,
+    QMenu,
+    QPushButton,
+    QTableView,
+    QVBoxLayout,
+    QWidget,
+)
+
+from appraise.engine.sales import ROW_COLUMN, Exclusion
+from appraise.report.numbers import plain
+
+from .session import Session
+
+GREY = QColor(128, 128, 128)
+_ROOT = QModelIndex()
+SOURCE_LABELS = {"import": "import", "model": "model", "user": "you"}
+
+COMMON_REASONS: tuple[str, ...] = (
+    "not arm's length (sale between relatives or related parties)",
+    "forced or distressed sale (foreclosure, bank-owned, auction)",
+    "duplicate record of another sale",
+    "recording error (price or area checked and wrong)",
+    "property changed materially after the sale",
+    "not comparable (use or type differs from the subject)",
+)
+"""Offered in the reason box; any other text may be typed."""
+
+
+def ask_exclusion_reason(parent: QWidget, label: str, current: str = "") -> str | None:
+    """Ask why a sale should be left out; None when the user cancels or gives no reason."""
+    items = list(COMMON_REASONS)
+    if current and current not in items:
+        items.insert(0, current)
+    text, ok = QInputDialog.getItem(
+        parent,
+        "Exclude sale",
+        f"Why leave {label} out of the model?",
+        items,
+        items.index(current) if current in items else 0,
+        True,
+    )
+    text = text.strip()
+    return text if ok and text else None
+
+
+def sale_label(session: Session, row: int) -> str:
+    """``sale AV-0042 (row 43)``, or ``the sale at row 43`` when there is no id."""
+    sid = session.sale_id(row)
+    return f"sale {sid} (row {row})" if sid else f"the sale at row {row}"
+
+
+def exclude_with_reason(parent: QWidget, session: Session, row: int) -> bool:
+    """Ask for a reason and exclude the sale at ``row``; True when it was excluded."""
+    current = next((e.reason for e in session.user_exclusions if e.row == row), "")
+    reason = ask_exclusion_reason(parent, sale_label(session, row), current)
+    if reason is None:
+        return False
+    session.exclude_sale(row, reason)
+    return True
+
+
+# --- the sales table -------------------------------------------------------------
+class SalesTableModel(QAbstractTableModel):
+    """All rows of the file: the used rows, then the rows the importer left out.
+
+    Columns: file row, why it is left out (empty when used), then the file's columns.
+    ``Qt.UserRole`` of any cell gives the file row.
+    """
+
+    FIXED = ("Row", "Left out because")
+
+    def __init__(self, session: Session) -> None:
+        super().__init__()
+        self._session = session
+        self._headers: list[str] = []
+        self._values: list[np.ndarray] = []
+        self._rows = np.zeros(0, dtype=int)
+        self._reasons: list[str] = []
+        self._order = np.zeros(0, dtype=int)
+        self._all_order = np.zeros(0, dtype=int)
+        self._haystack: pd.Series | None = None
+        self._filter = ""
+        self._sort: tuple[int, Qt.SortOrder] | None = None
+        self.reload()
+
+    # contents
+    def reload(self) -> None:
+        self.beginResetModel()
+        sales = self._session.sales
+        if sales is None:
+            self._headers, self._values = [], []
+            self._rows = np.zeros(0, dtype=int)
+        else:
+            frame = sales.frame
+            self._headers = [c for c in frame.columns if c != ROW_COLUMN]
+            k = len(sales.excluded)
+            self._values = [
+                np.concatenate([frame[c].to_numpy(dtype=object), np.full(k, None, dtype=object)])
+                for c in self._headers
+            ]
+            self._rows = np.concatenate(
+                [frame[ROW_COLUMN].to_numpy(dtype=int), [e.row for e in sales.excluded]]
+            ).astype(int)
+        self._haystack = None
+        self._refresh_reasons()
+        self._apply_order()
+        self.endResetModel()
+
+    def refresh_reasons(self) -> None:
+        """Exclusions changed: recompute the reason column and repaint."""
+        self._refresh_reasons()
+        if self._filter:  # the reason text is searchable
+            self.beginResetModel()
+            self._haystack = None
+            self._apply_order()
+            self.endResetModel()
+        elif len(self._order):
+            self.dataChanged.emit(
+                self.index(0, 0), self.index(len(self._order) - 1, self.columnCount() - 1)
+            )
+
+    def _refresh_reasons(self) -> None:
+        why: dict[int, Exclusion] = {}
+        sales = self._session.sales
+        if sales is not None:
+            why.update((e.row, e) for e in sales.excluded)
+        fit = self._session.fit
+        if fit is not None and self._session.results_current:
+            why.update((e.row, e) for e in fit.excluded)
+        why.update((e.row, e) for e in self._session.user_exclusions)
+        self._reasons = [
+            f"{e.reason} ({SOURCE_LABELS.get(e.source, e.source)})"
+            if (e := why.get(int(r)))
+            else ""
+            for r in self._rows
+        ]
+
+    # sorting and filtering, on whole columns
+    def set_filter(self, text: str) -> None:
+        text = text.strip().lower()
+        if text == self._filter:
+            return
+        self.beginResetModel()
+        self._filter = text
+        self._apply_order()
+        self.endResetModel()
+
+    def sort(self, column: int, order: Qt.SortOrder = Qt.SortOrder.AscendingOrder) -> None:
+        self.layoutAboutToBeChanged.emit()
+        self._sort = (column, order)
+        self._apply_order()
+        self.layoutChanged.emit()
+
+    def _apply_order(self) -> None:
+        n = len(self._rows)
+        order = np.argsort(self._rows, kind="stable")
+        if self._sort is not None and n:
+            column, direction = self._sort
+            keys = self._sort_keys(column)
+            order = _stable_sort(keys, direction == Qt.SortOrder.DescendingOrder)
+        if self._filter and n:
+            mask = self._search_text().str.contains(self._filter, regex=False).to_numpy()
+            order = order[mask[order]]
+        self._order = order
+
+    def _sort_keys(self, column: int) -> pd.Series:
+        if column == 0:
+            return pd.Series(self._rows)
+        if column == 1:
+            return pd.Series(self._reasons, dtype=object).replace("", None)
+        values = pd.Series(self._values[column - 2])
+        numeric = pd.to_numeric(values, errors="coerce")
+        if numeric.notna().sum() == values.notna().sum():
+            return numeric
+        return values.map(lambda v: None if v is None or v != v else str(v).lower())
+
+    def _search_text(self) -> pd.Series:
+        if self._haystack is None:
+            parts = [pd.Series(self._rows).astype(str), pd.Series(self._reasons, dtype=object)]
+            parts += [pd.Series(v).map(plain) for v in self._values]
+            text = parts[0]
+            for p in parts[1:]:
+                text = text.str.cat(p.astype(str), sep="\t")
+            self._haystack = text.str.lower()
+        return self._haystack
+
+    # Qt interface
+    def rowCount(self, parent: QModelIndex | QPersistentModelIndex = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self._order)
+
+    def columnCount(self, parent: QModelIndex | QPersistentModelIndex = _ROOT) -> int:
+        return 0 if parent.isValid() or self._session.sales is None else 2 + len(self._headers)
+
+    def headerData(self, section: int, orientation: Qt.Orientation, role: int = 0):
+        if role != Qt.ItemDataRole.DisplayRole or orientation != Qt.Orientation.Horizontal:
+            return None
+        return self.FIXED[section] if section < 2 else self._headers[section - 2]
+
+    def data(self, index: QModelIndex | QPersistentModelIndex, role: int = 0):
+        if not index.isValid():
+            return None
+        i = int(self._order[index.row()])
+        col = index.column()
+        if role == Qt.ItemDataRole.DisplayRole:
+            if col == 0:
+                return str(self._rows[i])
+            if col == 1:
+                return self._reasons[i]
+            return plain(self._values[col - 2][i]) if self._values[col - 2][i] is not None else ""
+        if role == Qt.ItemDataRole.ForegroundRole and self._reasons[i]:
+            return QBrush(GREY)
+        if role == Qt.ItemDataRole.ToolTipRole and self._reasons[i]:
+            return f"Left out: {self._reasons[i]}"
+        if role == Qt.ItemDataRole.UserRole:
+            return int(self._rows[i])
+        if role == Qt.ItemDataRole.TextAlignmentRole and col != 1 and col >= 2:
+            v = self._values[col - 2][i]
+            if isinstance(v, int | float | np.number):
+                return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        return None
+
+    def position_of(self, row: int) -> int | None:
+        """Where file row ``row`` is shown, or None when filtered out or unknown."""
+        hit = np.flatnonzero(self._rows[self._order] == row)
+        return int(hit[0]) if hit.size else None
+
+    def row_at(self, position: int) -> int:
+        return int(self._rows[self._order[position]])
+
+
+def _stable_sort(keys: pd.Series, descending: bool) -> np.ndarray:
+    """Order of ``keys``, missing values last in either direction."""
+    missing = keys.isna().to_numpy()
+    present = np.flatnonzero(~missing)
+    vals = keys.to_numpy()[present]
+    idx = (
+        np.argsort(vals, kind="stable")
+        if vals.dtype != object
+        else np.array(sorted(range(len(vals)), key=lambda j: vals[j]), dtype=int)
+    )
+    if descending:
+        idx = idx[::-1]
+    return np.concatenate([present[idx], np.flatnonzero(missing)]).astype(int)
+
+
+class SalesView(QWidget):
+    """The sales table with a filter box; selecting a row selects the sale everywhere."""
+
+    excludeRequested = Signal(int)
+
+    def __init__(self, session: Session, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self._session = session
+        self.model = SalesTableModel(session)
+
+        self.filter_edit = QLineEdit()
+        self.filter_edit.setPlaceholderText("Filter sales (any column, or a reason)…")
+        self.filter_edit.setClearButtonEnabled(True)
+        self.count_label = QLabel()
+        self._filter_timer = QTimer(self)
+        self._filter_timer.setSingleShot(True)
+        self._filter_timer.setInterval(150)
+        self._filter_timer.timeout.connect(self._apply_filter)
+        self.filter_edit.textChanged.connect(lambda _t: self._filter_timer.start())
+
+        self.table = QTableView()
+        self.table.setModel(self.model)
+        self.table.setSortingEnabled(True)
+        self.table.sortByColumn(0, Qt.SortOrder.AscendingOrder)
+        self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.table.verticalHeader().setVisible(False)
+        self.table.verticalHeader().setDefaultSectionSize(self.table.fontMetrics().height() + 6)
+        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
+        self.table.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
+        self.table.customContextMenuRequested.connect(self._context_menu)
+        self.table.selectionModel().currentRowChanged.connect(self._current_changed)
+        self.table.setWordWrap(False)
+        delete = QShortcut(QKeySequence(QKeySequence.StandardKey.Delete), self.table)
+        delete.setContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
+        delete.activated.connect(self._exclude_current)
+
+        top = QHBoxLayout()
+        top.addWidget(self.filter_edit, 1)
+        top.addWidget(self.count_label)
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.addLayout(top)
+        lay.addWidget(self.table)
+
+        session.salesChanged.connect(self._sales_changed)
+        session.exclusionsChanged.connect(self.model.refresh_reasons)
+        session.fitFinished.connect(lambda _f: self._reasons_changed())
+        session.fitFailed.connect(lambda _m: self._reasons_changed())
+        session.selectionChanged.connect(self._show_selection)
+        self._update_count()
+
+    def focus_filter(self) -> None:
+        self.filter_edit.setFocus(Qt.FocusReason.ShortcutFocusReason)
+        self.filter_edit.selectAll()
+
+    def _apply_filter(self) -> None:
+        self.model.set_filter(self.filter_edit.text())
+        self._update_count()
+        self._show_selection(self._session.selection)
+
+    def _sales_changed(self, _sales) -> None:
+        self.model.reload()
+        self.table.resizeColumnsToContents()
+        self._update_count()
+        self._show_selection(self._session.selection)
+
+    def _reasons_changed(self) -> None:
+        self.model.refresh_reasons()
+        self._update_count()
+
+    def _update_count(self) -> None:
+        sales = self._session.sales
+        if sales is None:
+            self.count_label.setText("no sales loaded")
+            return
+        total = sales.source.rows_in_file
+        shown = self.model.rowCount()
+        self.count_label.setText(
+            f"{shown:,} of {total:,} shown" if shown != total else f"{total:,} rows"
+        )
+
+    def _current_changed(self, current: QModelIndex, _previous: QModelIndex) -> None:
+        if current.isValid():
+            self._session.select_sale(self.model.row_at(current.row()))
+
+    def _show_selection(self, row: int | None) -> None:
+        sel = self.table.selectionModel()
+        pos = None if row is None else self.model.position_of(row)
+        if pos is None:
+            sel.clearSelection()
+            return
+        index = self.model.index(pos, 0)
+        if sel.currentIndex().row() != pos:
+            sel.setCurrentIndex(
+                index,
+                QItemSelectionModel.SelectionFlag.ClearAndSelect
+                | QItemSelectionModel.SelectionFlag.Rows,
+            )
+        self.table.scrollTo(index)
+
+    def _exclude_current(self) -> None:
+        row = self._session.selection
+        if row is not None:
+            self.excludeRequested.emit(row)
+
+    def _context_menu(self, pos: QPoint) -> None:
+        index = self.table.indexAt(pos)
+        if not index.isValid():
+            return
+        row = self.model.row_at(index.row())
+        self._session.select_sale(row)
+        menu = QMenu(self)
+        used = self._session.sale_record(row) is not None
+        excl = QAction("E&xclude this sale…", menu)
+        excl.setEnabled(used)
+        excl.triggered.connect(lambda: self.excludeRequested.emit(row))
+        back = QAction("&Use this sale again", menu)
+        back.setEnabled(self._session.can_include(row))
+        back.triggered.connect(lambda: self._session.include_sale(row))
+        menu.addAction(excl)
+        menu.addAction(back)
+        menu.exec(self.table.viewport().mapToGlobal(pos))
+
+
+# --- the exclusion log -------------------------------------------------------------
+class ExclusionLogModel(QAbstractTableModel):
+    """Every sale left out, by whom and why: the importer, the model, or the user."""
+
+    HEADERS = ("Row", "Sale", "Left out by", "Column", "Reason")
+
+    def __init__(self, session: Session) -> None:
+        super().__init__()
+        self._session = session
+        self.entries: list[Exclusion] = []
+
+    def reload(self) -> None:
+        self.beginResetModel()
+        s = self._session
+        entries: dict[int, Exclusion] = {}
+        if s.sales is not None:
+            entries.update((e.row, e) for e in s.sales.excluded)
+        if s.fit is not None and s.results_current:
+            entries.update((e.row, e) for e in s.fit.excluded)
+        entries.update((e.row, e) for e in s.user_exclusions)
+        self.entries = sorted(entries.values(), key=lambda e: e.row)
+        self.endResetModel()
+
+    def rowCount(self, parent: QModelIndex | QPersistentModelIndex = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self.entries)
+
+    def columnCount(self, parent: QModelIndex | QPersistentModelIndex = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self.HEADERS)
+
+    def headerData(self, section: int, orientation: Qt.Orientation, role: int = 0):
+        if role == Qt.ItemDataRole.DisplayRole and orientation == Qt.Orientation.Horizontal:
+            return self.HEADERS[section]
+        return None
+
+    def data(self, index: QModelIndex | QPersistentModelIndex, role: int = 0):
+        if not index.isValid():
+            return None
+        e = self.entries[index.row()]
+        if role == Qt.ItemDataRole.DisplayRole:
+            return (
+                str(e.row),
+                e.sale_id or "",
+                SOURCE_LABELS.get(e.source, e.source),
+                e.column or "",
+                e.reason,
+            )[index.column()]
+        if role == Qt.ItemDataRole.UserRole:
+            return e.row
+        if role == Qt.ItemDataRole.ToolTipRole:
+            return e.reason
+        return None
+
+
+class ExclusionLogView(QWidget):
+    """The exclusion log, with a button to use a sale again."""
+
+    def __init__(self, session: Session, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self._session = session
+        self.model = ExclusionLogModel(session)
+        self.table = QTableView()
+        self.table.setModel(self.model)
+        self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.table.verticalHeader().setVisible(False)
+        self.table.horizontalHeader().setStretchLastSection(True)
+        self.table.selectionModel().currentRowChanged.connect(self._current_changed)
+        self.summary = QLabel()
+        self.summary.setWordWrap(True)
+        self.use_again = QPushButton("&Use selected sale again")
+        self.use_again.setEnabled(False)
+        self.use_again.clicked.connect(self._use_again)
+
+        bottom = QHBoxLayout()
+        bottom.addWidget(self.summary, 1)
+        bottom.addWidget(self.use_again)
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.addWidget(self.table)
+        lay.addLayout(bottom)
+
+        for sig in (session.salesChanged, session.fitFinished, session.fitFailed):
+            sig.connect(lambda *_: self.refresh())
+        session.exclusionsChanged.connect(self.refresh)
+        session.modelChanged.connect(lambda _s: self._update_button())
+        session.selectionChanged.connect(lambda _r: self._update_button())
+        self.refresh()
+
+    def refresh(self) -> None:
+        self.model.reload()
+        counts: dict[str, int] = {}
+        for e in self.model.entries:
+            label = SOURCE_LABELS.get(e.source, e.source)
+            counts[label] = counts.get(label, 0) + 1
+        if counts:
+            parts = ", ".join(f"{n} by {who}" for who, n in counts.items())
+            self.summary.setText(f"{len(self.model.entries)} sales left out: {parts}")
+        else:
+            self.summary.setText("No sale is left out.")
+        self._update_button()
+
+    def _current_changed(self, current: QModelIndex, _previous: QModelIndex) -> None:
+        if current.isValid():
+            row = self.model.entries[current.row()].row
+            if self._session.sale_record(row) is not None:
+                self._session.select_sale(row)
+        self._update_button()
+
+    def _selected_row(self) -> int | None:
+        current = self.table.selectionModel().currentIndex()
+        return self.model.entries[current.row()].row if current.isValid() else None
+
+    def _update_button(self) -> None:
+        row = self._selected_row()
+        self.use_again.setEnabled(row is not None and self._session.can_include(row))
+
+    def _use_again(self) -> None:
+        row = self._selected_row()
+        if row is not None:
+            self._session.include_sale(row)

@@ -1,0 +1,165 @@
+"""Work that must not run on the UI thread: reading a sales file, fitting, valuing.
+
+The jobs themselves are plain functions of frozen inputs (:func:`run_fit_job`,
+:func:`run_load_job`); they know nothing of Qt and can be called directly. A
+:class:`Task` runs one of them on a :class:`~PySide6.QtCore.QThreadPool` thread and
+reports through a :class:`TaskSignals` object that lives on the UI thread, so the
+session receives every result there (queued connection). Each task carries the
+generation number it was started for; the session drops any report whose generation
+is no longer current, which is how a stale fit or a cancelled load is discarded.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import traceback
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from PySide6.QtCore import QObject, QRunnable, Signal
+
+from appraise.engine.diagnostics import diagnose
+from appraise.engine.errors import AppraiseError
+from appraise.engine.fitting import FitResult, fit_model
+from appraise.engine.importing import load_sales
+from appraise.engine.modelspec import ModelSpec, load_model
+from appraise.engine.roles import RoleMap
+from appraise.engine.sales import Exclusion, SalesTable
+from appraise.engine.settings import ImportSettings
+from appraise.engine.subject import read_subject
+from appraise.engine.valuation import Valuation, value_subject
+
+log = logging.getLogger(__name__)
+
+Report = Callable[[str, object], None]
+"""How a job hands over a partial result: ``report(stage, payload)``."""
+
+
+# --- the jobs (no Qt) ----------------------------------------------------------
+@dataclass(frozen=True)
+class FitJob:
+    """Everything one refit needs, frozen at the moment it was asked for.
+
+    ``reuse`` is a fit already made from the same sales, spec and exclusions: the
+    job then only values the subject (a subject edit does not refit).
+    """
+
+    sales: SalesTable
+    spec: ModelSpec
+    user_exclusions: tuple[Exclusion, ...] = ()
+    subject: Mapping[str, Any] = field(default_factory=dict)
+    import_settings: ImportSettings = ImportSettings()
+    reuse: FitResult | None = None
+
+
+def run_fit_job(job: FitJob, report: Report) -> None:
+    """Fit (unless reusing), then value the subject, then compute diagnostics.
+
+    Reports, in this order: ``("fit", FitResult)``; ``("valuation", Valuation | None)``
+    or ``("valuation_error", message)``; ``("diagnostics", Diagnostics)`` (new fits
+    only). A failing fit raises; the task turns that into a ``failed`` report.
+    """
+    fit = job.reuse
+    if fit is None:
+        fit = fit_model(job.sales, job.spec, user_exclusions=job.user_exclusions)
+        report("fit", fit)
+    try:
+        report("valuation", value_job_subject(fit, job.subject, job.import_settings))
+    except AppraiseError as exc:
+        report("valuation_error", str(exc))
+    if job.reuse is None:
+        report("diagnostics", diagnose(fit))
+
+
+def value_job_subject(
+    fit: FitResult, subject: Mapping[str, Any], settings: ImportSettings
+) -> Valuation | None:
+    """The subject's valuation under ``fit``; None while no attribute is filled in."""
+    filled = {k: v for k, v in subject.items() if v is not None and str(v).strip() != ""}
+    if not filled:
+        return None
+    frame = read_subject(filled, fit.sales, settings)
+    return value_subject(fit, frame, level=fit.spec.level)
+
+
+@dataclass(frozen=True)
+class LoadJob:
+    """Read a sales file, and optionally a model file and a subject file beside it."""
+
+    path: Path
+    settings: ImportSettings = ImportSettings()
+    roles: RoleMap | None = None
+    model_path: Path | None = None
+    subject_path: Path | None = None
+
+
+@dataclass(frozen=True)
+class LoadOutcome:
+    sales: SalesTable
+    spec: ModelSpec | None = None
+    subject: dict | None = None
+
+
+def run_load_job(job: LoadJob, report: Report) -> LoadOutcome:
+    """Read the files of ``job``; companion files that fail raise like the sales file."""
+    sales = load_sales(job.path, job.settings, job.roles)
+    spec = load_model(job.model_path) if job.model_path is not None else None
+    subject = read_subject_file(job.subject_path) if job.subject_path is not None else None
+    return LoadOutcome(sales, spec, subject)
+
+
+def read_subject_file(path: Path) -> dict:
+    """The attributes of a subject JSON file as a plain dict (values not yet cleaned)."""
+    try:
+        data = json.loads(Path(path).read_text(encoding="utf-8-sig"))
+    except OSError as exc:
+        raise AppraiseError(f"cannot read subject file: {exc.strerror}", file=str(path)) from None
+    except json.JSONDecodeError as exc:
+        raise AppraiseError(f"not valid JSON: {exc.msg}", file=str(path), row=exc.lineno) from None
+    if not isinstance(data, dict):
+        raise AppraiseError("a subject file holds one JSON object of attributes", file=str(path))
+    return data
+
+
+# --- running a job on a pool thread ----------------------------------------------
+class TaskSignals(QObject):
+    """Reports of a :class:`Task`, each tagged with the task's generation.
+
+    Created on the UI thread; signals emitted from the pool thread are queued to it.
+    """
+
+    stage = Signal(int, str, object)
+    finished = Signal(int, object)
+    failed = Signal(int, str)
+
+
+class Task(QRunnable):
+    """Run ``job(report)`` on a pool thread; never touches a widget.
+
+    A user error (:class:`AppraiseError`) becomes a one-line ``failed`` message; any
+    other exception too, prefixed with its type, and its traceback goes to the log.
+    """
+
+    def __init__(
+        self, generation: int, job: Callable[[Report], object], signals: TaskSignals
+    ) -> None:
+        super().__init__()
+        self.setAutoDelete(False)  # the session keeps the Python object alive
+        self.generation = generation
+        self._job = job
+        self.signals = signals
+
+    def run(self) -> None:  # runs on the pool thread
+        gen = self.generation
+        try:
+            result = self._job(lambda stage, payload: self.signals.stage.emit(gen, stage, payload))
+        except AppraiseError as exc:
+            self.signals.failed.emit(gen, str(exc))
+        except Exception as exc:  # noqa: BLE001 - a worker must report, never die silently
+            log.error("background task failed:\n%s", traceback.format_exc())
+            self.signals.failed.emit(gen, f"unexpected {type(exc).__name__}: {exc}")
+        else:
+            self.signals.finished.emit(gen, result)
