@@ -1,0 +1,788 @@
+"""Read a comparable-sales export (CSV, XLSX or Parquet) into a :class:`SalesTable`.
+
+Every cell is read as it stands (text stays text until parsed here; typed
+spreadsheet and Parquet values pass through the same cleaning), so nothing is
+guessed by a library. Each column gets a kind -- number, date, text, or the
+yes/no flag of the arm's-length role -- from its role when it has one, else
+from its content.
+
+Rows that cannot be used are excluded with a reason, never dropped:
+unparseable, missing or non-positive price; missing or unreadable sale date
+(when that role is mapped); a sale not at arm's length or with an unreadable
+flag; a duplicate sale id (the first is kept); an empty row; a CSV row with
+more values than the header has columns. A bad cell anywhere else becomes
+missing and is listed in the notes with its row and column.
+
+Row numbers are file rows as a spreadsheet shows them: the header is row 1.
+"""
+
+from __future__ import annotations
+
+import codecs
+import csv
+import hashlib
+import io
+import re
+import zipfile
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field, replace
+from datetime import datetime
+from functools import partial
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .cells import (
+    area_unit_of,
+    clean_text,
+    is_missing,
+    parse_date,
+    parse_flag,
+    parse_number,
+)
+from .errors import DataError, RoleError
+from .roles import AREA_ROLES, ROLE_KINDS, RoleMap, list_headers, resolve_roles
+from .sales import ROW_COLUMN, Exclusion, SalesTable, SourceInfo
+from .settings import SQFT_PER_M2, AreaUnit, ImportSettings
+
+FORMATS: dict[str, str] = {
+    ".csv": "csv",
+    ".tsv": "csv",
+    ".txt": "csv",
+    ".xlsx": "xlsx",
+    ".xlsm": "xlsx",
+    ".parquet": "parquet",
+    ".pq": "parquet",
+}
+"""File suffix -> format read."""
+
+DELIMITERS: tuple[str, ...] = (",", ";", "\t", "|")
+"""Delimiters a CSV file may use, in order of preference when the evidence ties."""
+
+UNIT_TEXT: dict[str, str] = {"ft2": "ft²", "m2": "m²"}
+FIRST_DATA_ROW = 2  # the header is row 1
+_NOTE_EXAMPLES = 8  # bad cells listed per column in a note before "and N more"
+
+
+# --- raw tables ----------------------------------------------------------------------
+
+
+@dataclass
+class _Raw:
+    """A file's cells before cleaning: header cells, one list per column, notes."""
+
+    headers: list[object]
+    columns: list[list[object]]
+    fmt: str
+    notes: list[str] = field(default_factory=list)
+    long_rows: dict[int, int] = field(default_factory=dict)  # position -> values in the row
+    serial_dates: bool = False  # numbers in a date column are spreadsheet day numbers
+
+    @property
+    def n_rows(self) -> int:
+        return len(self.columns[0]) if self.columns else 0
+
+
+def _columns_from_rows(
+    rows: list[Sequence[object]], width: int, fill: object
+) -> list[list[object]]:
+    """Rows (possibly ragged) as ``width`` column lists, short rows padded with ``fill``."""
+    cols: list[list[object]] = [[] for _ in range(width)]
+    for row in rows:
+        n = len(row)
+        for j in range(width):
+            cols[j].append(row[j] if j < n else fill)
+    return cols
+
+
+def _blank(value: object) -> bool:
+    return value is None or (isinstance(value, str) and not value.strip())
+
+
+def _trim_trailing_blank_rows(rows: list[Sequence[object]], notes: list[str]) -> None:
+    """Remove rows after the last row holding anything, and say how many."""
+    n = len(rows)
+    while rows and all(_blank(v) for v in rows[-1]):
+        rows.pop()
+    if n - len(rows):
+        k = n - len(rows)
+        notes.append(f"{k} blank row{'s' if k > 1 else ''} after the last sale ignored")
+
+
+def _decode(data: bytes, notes: list[str]) -> str:
+    """Text of a CSV file: UTF-8 (with or without BOM), UTF-16 with BOM, else Windows-1252."""
+    if data.startswith(codecs.BOM_UTF8):
+        data = data[len(codecs.BOM_UTF8) :]
+    elif data.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        notes.append("file is UTF-16 text")
+        return data.decode("utf-16")
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        first_bad = exc.start
+    try:
+        text = data.decode("cp1252")
+        notes.append(f"file is not UTF-8 (byte {first_bad}); read as Windows-1252 (cp1252) text")
+    except UnicodeDecodeError:
+        text = data.decode("latin-1")
+        notes.append(f"file is not UTF-8 (byte {first_bad}); read as Latin-1 text")
+    return text
+
+
+def sniff_delimiter(text: str, candidates: Sequence[str] = DELIMITERS) -> str:
+    """The delimiter that splits the first rows most consistently.
+
+    For each candidate the first 50 non-blank records are split (quotes
+    respected); the winner has the largest share of rows with the header's
+    number of fields, then the most fields. A candidate that leaves the
+    header in one piece never wins. Falls back to ``","``.
+    """
+    sample = text[:65536]
+    best: tuple[float, int] | None = None
+    chosen = ","
+    for d in candidates:
+        try:
+            rows = [r for r in csv.reader(io.StringIO(sample), delimiter=d) if any(r)][:50]
+        except csv.Error:
+            continue
+        if not rows or len(rows[0]) < 2:
+            continue
+        width = len(rows[0])
+        body = rows[1:-1] if len(rows) > 2 else rows[1:]  # the last sampled row may be cut
+        agree = sum(len(r) == width for r in body) / len(body) if body else 1.0
+        score = (agree, width)
+        if best is None or score > best:
+            best, chosen = score, d
+    return chosen
+
+
+_DELIMITER_NAMES = {",": "commas", ";": "semicolons", "\t": "tabs", "|": "vertical bars"}
+
+
+def _read_csv(path: Path, data: bytes) -> _Raw:
+    notes: list[str] = []
+    text = _decode(data, notes)
+    if not text.strip():
+        raise DataError("the file is empty", file=str(path))
+    delimiter = sniff_delimiter(text)
+    if delimiter != ",":
+        notes.append(f"values separated by {_DELIMITER_NAMES[delimiter]}")
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    try:
+        rows = list(reader)
+    except csv.Error as exc:
+        raise DataError(
+            f"cannot read the CSV: {exc}", file=str(path), row=reader.line_num
+        ) from None
+    _trim_trailing_blank_rows(rows, notes)
+    header, body = rows[0], rows[1:]
+    width = len(header)
+    long_rows = {}
+    for i, row in enumerate(body):
+        if len(row) > width:
+            if any(v.strip() for v in row[width:]):
+                long_rows[i] = len(row)
+            else:
+                body[i] = row[:width]
+    return _Raw(list(header), _columns_from_rows(body, width, ""), "csv", notes, long_rows)
+
+
+def _read_xlsx(path: Path, sheet: str | int) -> _Raw:
+    from openpyxl import load_workbook
+    from openpyxl.utils.exceptions import InvalidFileException
+
+    try:
+        wb = load_workbook(path, read_only=True, data_only=True)
+    except (zipfile.BadZipFile, InvalidFileException, KeyError, OSError, ValueError) as exc:
+        raise DataError(
+            f"cannot be read as an .xlsx workbook ({type(exc).__name__}: {exc})", file=str(path)
+        ) from None
+    try:
+        names = list(wb.sheetnames)
+        name: str | None = None
+        if isinstance(sheet, str) and sheet in names:
+            name = sheet
+        elif isinstance(sheet, int) or (isinstance(sheet, str) and sheet.strip().isdigit()):
+            k = int(sheet)
+            name = names[k] if 0 <= k < len(names) else None
+        if name is None:
+            raise DataError(
+                f"there is no sheet {sheet!r}; sheets are {list_headers(names)} "
+                "(give a name or a 0-based index)",
+                file=str(path),
+            )
+        ws = wb[name]
+        if hasattr(ws, "reset_dimensions"):
+            ws.reset_dimensions()  # do not trust the size a writer recorded
+        rows = [list(r) for r in ws.iter_rows(values_only=True)]
+    finally:
+        wb.close()
+    notes: list[str] = [f"sheet '{name}'"] if len(names) > 1 else []
+    _trim_trailing_blank_rows(rows, notes)
+    if not rows:
+        raise DataError(f"sheet '{name}' is empty", file=str(path))
+    if all(_blank(v) for v in rows[0]):
+        raise DataError(
+            f"row 1 of sheet '{name}' is empty; the header must be on the first row",
+            file=str(path),
+            row=1,
+        )
+    width = max(len(r) for r in rows)
+    header = rows[0] + [None] * (width - len(rows[0]))
+    return _Raw(header, _columns_from_rows(rows[1:], width, None), "xlsx", notes, {}, True)
+
+
+def _read_parquet(path: Path) -> _Raw:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        table = pq.read_table(path)
+    except (pa.ArrowException, OSError) as exc:
+        raise DataError(f"cannot be read as a Parquet file ({exc})", file=str(path)) from None
+    if table.num_columns == 0:
+        raise DataError("the Parquet file has no columns", file=str(path))
+    columns = [table.column(i).to_pylist() for i in range(table.num_columns)]
+    return _Raw(list(table.column_names), columns, "parquet")
+
+
+# --- headers -------------------------------------------------------------------------
+
+
+def clean_headers(raw: Sequence[object]) -> tuple[list[str], list[str]]:
+    """Cleaned header names and notes on what changed.
+
+    Stripped, BOM characters removed, inner white space collapsed; an empty
+    header becomes ``column_<k>`` (k = 1-based position); a repeated name
+    becomes ``name_2``, ``name_3``... ``_row`` is reserved for the file row.
+    """
+    names: list[str] = []
+    notes: list[str] = []
+    taken = {ROW_COLUMN}
+    for k, h in enumerate(raw, start=1):
+        text = "" if is_missing(h) and not isinstance(h, str) else clean_text(h)
+        text = " ".join(text.replace("\ufeff", "").split())
+        if not text:
+            text = f"column_{k}"
+            notes.append(f"column {k} has no header; named '{text}'")
+        name, n = text, 1
+        while name in taken:
+            n += 1
+            name = f"{text}_{n}"
+        if name != text:
+            notes.append(f"header '{text}' repeats; column {k} renamed '{name}'")
+        taken.add(name)
+        names.append(name)
+    return names, notes
+
+
+def header_area_unit(header: str) -> AreaUnit | None:
+    """The area unit a header names, in brackets or at its end (``Living Area (m²)``)."""
+    parts = re.findall(r"[(\[]([^)\]]*)[)\]]", header)
+    parts.append(re.sub(r"[(\[][^)\]]*[)\]]", " ", header))
+    for part in parts:
+        unit = area_unit_of(part)
+        if unit is not None:
+            return unit
+    return None
+
+
+# --- columns -------------------------------------------------------------------------
+
+
+@dataclass
+class _Clean:
+    """One column after cleaning: values, cells that could not be read, counts for notes."""
+
+    kind: str  # "number" | "date" | "text" | "flag"
+    values: np.ndarray
+    bad: dict[int, str] = field(default_factory=dict)  # position -> reason
+    forms: dict[str, int] = field(default_factory=dict)  # date forms seen -> count
+    units: dict[str, int] = field(default_factory=dict)  # area units written in cells -> count
+
+
+def _memo(parse: Callable[[object], object]) -> Callable[[object], tuple[bool, object]]:
+    """``parse`` returning ``(ok, value or reason)``, cached for repeated texts."""
+    cache: dict[str, tuple[bool, object]] = {}
+
+    def run(v: object) -> tuple[bool, object]:
+        if isinstance(v, str):
+            hit = cache.get(v)
+            if hit is None:
+                try:
+                    hit = (True, parse(v))
+                except ValueError as exc:
+                    hit = (False, str(exc))
+                cache[v] = hit
+            return hit
+        try:
+            return True, parse(v)
+        except ValueError as exc:
+            return False, str(exc)
+
+    return run
+
+
+def _number_parser(settings: ImportSettings):
+    return _memo(
+        lambda v: parse_number(
+            v, decimal=settings.decimal, currency_symbol=settings.currency_symbol
+        )
+    )
+
+
+_LEADING_ZERO = re.compile(r"\s*0\d+\s*")
+
+
+def infer_kind(values: Sequence[object], settings: ImportSettings) -> str:
+    """``"number"``, ``"date"`` or ``"text"`` for a column without a role.
+
+    Number when nearly every non-missing cell reads as one (at most one bad
+    cell in five, and more good than bad) and none is a code with a leading
+    zero such as ``02134``; else date by the same rule; else text.
+    """
+    present = [v for v in values if not is_missing(v)]
+    if not present:
+        return "text"
+    n = len(present)
+    allowed_bad = max(1, n // 5)
+    if not any(isinstance(v, str) and _LEADING_ZERO.fullmatch(v) for v in present):
+        number = _memo(
+            partial(
+                parse_number, decimal=settings.decimal, currency_symbol=settings.currency_symbol
+            )
+        )
+        ok = sum(number(v)[0] for v in present)
+        if n - ok <= allowed_bad and ok > n - ok:
+            return "number"
+    date = _memo(lambda v: parse_date(v, order="DMY"))  # any order: only the kind is asked
+    ok = sum(date(v)[0] for v in present)
+    if n - ok <= allowed_bad and ok > n - ok:
+        return "date"
+    return "text"
+
+
+def _clean_floats(
+    values: Sequence[object], kind: str, parse: Callable[[object], object], area: bool = False
+) -> _Clean:
+    """Numbers, or flags as 1.0/0.0: NaN where missing, reasons where unreadable."""
+    out = np.full(len(values), np.nan)
+    col = _Clean(kind, out)
+    run = _memo(parse)
+    for i, v in enumerate(values):
+        if is_missing(v):
+            continue
+        ok, got = run(v)
+        if not ok:
+            col.bad[i] = str(got)
+            continue
+        out[i] = float(got)
+        if area and isinstance(v, str):
+            unit = area_unit_of(v)
+            if unit is not None:
+                col.units[unit] = col.units.get(unit, 0) + 1
+    return col
+
+
+def _clean_dates(
+    values: Sequence[object],
+    settings: ImportSettings,
+    serial_ok: bool,
+    *,
+    file: str,
+    column: str,
+) -> _Clean:
+    order = settings.date_order
+    out: list[datetime | None] = [None] * len(values)
+    col = _Clean("date", np.empty(0))
+    first: dict[str, tuple[int, str]] = {}
+    date = _memo(lambda v: parse_date(v, order=order, serial_ok=serial_ok))
+    for i, v in enumerate(values):
+        if is_missing(v):
+            continue
+        ok, got = date(v)
+        if not ok:
+            col.bad[i] = str(got)
+            continue
+        col.forms[got.form] = col.forms.get(got.form, 0) + 1
+        first.setdefault(got.form, (i, clean_text(v)))
+        out[i] = got.value
+    _check_date_order(first, order, file=file, column=column)
+    col.values = np.array(out, dtype="datetime64[ns]")
+    return col
+
+
+def _check_date_order(
+    first: dict[str, tuple[int, str]], order: str, *, file: str, column: str
+) -> None:
+    """Refuse what the date order cannot settle: never swap day and month silently."""
+    day_first, month_first = first.get("day_first"), first.get("month_first")
+    if order == "ISO" and "ambiguous" in first:
+        i, text = first["ambiguous"]
+        seen = ""
+        if day_first or month_first:
+            j, other = day_first or month_first
+            way = "day/month" if day_first else "month/day"
+            seen = f"; row {j + FIRST_DATA_ROW} ('{other}') can only be {way}"
+        raise DataError(
+            f"'{text}' could be day/month or month/day{seen}. Set the date order "
+            "(--date-order DMY or MDY) to say how this file writes dates",
+            file=file,
+            row=i + FIRST_DATA_ROW,
+            column=column,
+        )
+    clash = {"MDY": day_first, "DMY": month_first}.get(order)
+    if clash is not None:
+        i, text = clash
+        way = "day/month" if order == "MDY" else "month/day"
+        raise DataError(
+            f"'{text}' can only be read as {way}, which contradicts the date order {order}; "
+            "check the date order setting (--date-order) or the cell",
+            file=file,
+            row=i + FIRST_DATA_ROW,
+            column=column,
+        )
+    if day_first and month_first:
+        (i, a), (j, b) = sorted([day_first, month_first])
+        raise DataError(
+            f"dates are written both day/month and month/day: row {i + FIRST_DATA_ROW} "
+            f"'{a}' and row {j + FIRST_DATA_ROW} '{b}' cannot both be right",
+            file=file,
+            row=j + FIRST_DATA_ROW,
+            column=column,
+        )
+
+
+def _clean_texts(values: Sequence[object]) -> _Clean:
+    out = np.array([None if is_missing(v) else clean_text(v) for v in values], dtype=object)
+    return _Clean("text", out)
+
+
+def _clean_column(
+    values: Sequence[object],
+    kind: str,
+    settings: ImportSettings,
+    *,
+    serial_ok: bool,
+    area: bool,
+    file: str,
+    column: str,
+) -> _Clean:
+    if kind == "number":
+        number = partial(
+            parse_number, decimal=settings.decimal, currency_symbol=settings.currency_symbol
+        )
+        return _clean_floats(values, kind, number, area)
+    if kind == "date":
+        return _clean_dates(values, settings, serial_ok, file=file, column=column)
+    if kind == "flag":
+        return _clean_floats(values, kind, parse_flag)
+    return _clean_texts(values)
+
+
+# --- the whole file ------------------------------------------------------------------
+
+
+def _read_raw(path: Path, data: bytes, fmt: str, settings: ImportSettings) -> _Raw:
+    if fmt == "csv":
+        return _read_csv(path, data)
+    if fmt == "xlsx":
+        return _read_xlsx(path, settings.sheet)
+    return _read_parquet(path)
+
+
+def _format_of(path: Path) -> str:
+    fmt = FORMATS.get(path.suffix.lower())
+    if fmt is None:
+        known = ", ".join(sorted(FORMATS))
+        extra = " (save it as .xlsx)" if path.suffix.lower() == ".xls" else ""
+        raise DataError(
+            f"unknown file type '{path.suffix or '(none)'}'{extra}; sales files are {known}",
+            file=str(path),
+        )
+    return fmt
+
+
+def _read_bytes(path: Path) -> bytes:
+    if not path.exists():
+        raise DataError("file not found", file=str(path))
+    if not path.is_file():
+        raise DataError("not a file", file=str(path))
+    try:
+        return path.read_bytes()
+    except OSError as exc:
+        raise DataError(f"cannot read the file: {exc.strerror}", file=str(path)) from None
+
+
+def _no_price_error(headers: Sequence[str], file: str) -> RoleError:
+    return RoleError(
+        "no column has the price role. Headers found: "
+        f"{list_headers(headers)}. Map one with a role map such as "
+        '{"format": "appraise-roles", "version": 1, "roles": {"price": "<header>"}} '
+        "given with --roles",
+        file=file,
+    )
+
+
+def _raw_text(v: object) -> str:
+    return "" if v is None else clean_text(v)
+
+
+def load_sales(
+    path: str | Path,
+    settings: ImportSettings = ImportSettings(),  # noqa: B008 - frozen, safe as a default
+    roles: RoleMap | None = None,
+) -> SalesTable:
+    """Read a sales export and clean it.
+
+    Parameters
+    ----------
+    path:
+        A ``.csv`` (also ``.tsv``/``.txt``), ``.xlsx`` or ``.parquet`` file.
+    settings:
+        Decimal mark, date order, area unit, sheet, currency symbol.
+    roles:
+        A role map to use as it stands; ``None`` suggests one from the headers.
+
+    Returns
+    -------
+    SalesTable
+        Used rows in ``frame`` (with ``_row``), every other row in ``excluded``
+        with a reason, and ``len(frame) + len(excluded) == source.rows_in_file``.
+
+    Raises
+    ------
+    DataError
+        Missing, unreadable or empty file, unknown file type, no such sheet, a
+        CSV quoting error, an ambiguous or contradictory date (naming row and
+        column and the setting that settles it).
+    RoleError
+        No price column, or a role map naming a column the file does not have.
+    """
+    p = Path(path)
+    fmt = _format_of(p)
+    data = _read_bytes(p)
+    file = str(path)
+    if not data:
+        raise DataError("the file is empty", file=file)
+    raw = _read_raw(p, data, fmt, settings)
+    if raw.n_rows == 0:
+        raise DataError("the file has a header but no rows of sales", file=file)
+    headers, header_notes = clean_headers(raw.headers)
+    role_map = resolve_roles(headers, roles, file=file)
+    if role_map.column("price") is None:
+        raise _no_price_error(headers, file)
+    n = raw.n_rows
+    notes = list(raw.notes) + header_notes
+    for pos in raw.long_rows:  # misaligned values: read nothing from them
+        for col in raw.columns:
+            col[pos] = None
+
+    cleaned: dict[str, _Clean] = {}
+    for name, values in zip(headers, raw.columns, strict=True):
+        role = role_map.role_of(name)
+        kind = ROLE_KINDS[role] if role else infer_kind(values, settings)
+        cleaned[name] = _clean_column(
+            values,
+            kind,
+            settings,
+            serial_ok=raw.serial_dates,
+            area=role in AREA_ROLES,
+            file=file,
+            column=name,
+        )
+
+    excluded = _exclusions(raw, headers, role_map, cleaned)
+    used = np.ones(n, dtype=bool)
+    for e in excluded:
+        used[e.row - FIRST_DATA_ROW] = False
+    notes += _column_notes(headers, role_map, cleaned, used, settings)
+
+    frame = pd.DataFrame(
+        {name: _series(cleaned[name], used) for name in headers}
+        | {ROW_COLUMN: np.flatnonzero(used).astype(np.int64) + FIRST_DATA_ROW}
+    )
+    source = SourceInfo(
+        path=file, sha256=hashlib.sha256(data).hexdigest(), format=fmt, rows_in_file=n
+    )
+    return SalesTable(
+        frame=frame,
+        excluded=tuple(sorted(excluded, key=lambda e: e.row)),
+        roles=role_map,
+        source=source,
+        area_unit=settings.area_unit,
+        notes=tuple(notes),
+    )
+
+
+def _series(col: _Clean, used: np.ndarray) -> pd.Series:
+    values = col.values[used]
+    if col.kind == "text":
+        return pd.Series(values, dtype="str")
+    return pd.Series(values)
+
+
+def _exclusions(
+    raw: _Raw, headers: list[str], roles: RoleMap, cleaned: dict[str, _Clean]
+) -> list[Exclusion]:
+    """One exclusion per unusable row, the first reason that applies."""
+    n = raw.n_rows
+    price_col = roles.column("price")
+    date_col = roles.column("sale_date")
+    flag_col = roles.column("arms_length")
+    id_col = roles.column("sale_id")
+    raw_of = dict(zip(headers, raw.columns, strict=True))
+    ids = cleaned[id_col].values if id_col else None
+    width = len(headers)
+    out: list[Exclusion] = []
+    first_of_id: dict[str, int] = {}
+
+    def sid(i: int) -> str | None:
+        return None if ids is None or ids[i] is None else str(ids[i])
+
+    for i in range(n):
+        row = i + FIRST_DATA_ROW
+        if i in raw.long_rows:
+            reason = (
+                f"row has {raw.long_rows[i]} values but the header has {width} columns "
+                "(a value holding the delimiter may be missing its quotes)"
+            )
+            out.append(Exclusion(row, None, reason, None))
+            continue
+        if all(is_missing(c[i]) for c in raw.columns):
+            out.append(Exclusion(row, None, "empty row", None))
+            continue
+        reason, column = _row_problem(i, raw_of, cleaned, price_col, date_col, flag_col)
+        if reason is None and ids is not None and sid(i) is not None:
+            key = sid(i)
+            if key in first_of_id:
+                reason = f"duplicate sale id '{key}' (first seen on row {first_of_id[key]})"
+                column = id_col
+            else:
+                first_of_id[key] = row
+        if reason is not None:
+            out.append(Exclusion(row, sid(i), reason, column))
+    return out
+
+
+def _row_problem(
+    i: int,
+    raw_of: dict[str, list[object]],
+    cleaned: dict[str, _Clean],
+    price_col: str,
+    date_col: str | None,
+    flag_col: str | None,
+) -> tuple[str | None, str | None]:
+    price = cleaned[price_col]
+    if i in price.bad:
+        return f"price {price.bad[i]}", price_col
+    if np.isnan(price.values[i]):
+        return "price is missing", price_col
+    if price.values[i] <= 0:
+        return f"price '{_raw_text(raw_of[price_col][i])}' is not positive", price_col
+    if date_col is not None:
+        dates = cleaned[date_col]
+        if i in dates.bad:
+            return f"sale date {dates.bad[i]}", date_col
+        if np.isnat(dates.values[i]):
+            return "sale date is missing", date_col
+    if flag_col is not None:
+        flags = cleaned[flag_col]
+        if i in flags.bad:
+            return f"arm's-length flag {flags.bad[i]}", flag_col
+        if flags.values[i] == 0.0:
+            return f"not an arm's-length sale ('{_raw_text(raw_of[flag_col][i])}')", flag_col
+    return None, None
+
+
+def _column_notes(
+    headers: list[str],
+    roles: RoleMap,
+    cleaned: dict[str, _Clean],
+    used: np.ndarray,
+    settings: ImportSettings,
+) -> list[str]:
+    """Notes on the used rows: bad cells left blank, dates resolved, units, missing flags."""
+    notes: list[str] = []
+    unit = settings.area_unit
+    for name in headers:
+        col = cleaned[name]
+        role = roles.role_of(name)
+        if role in AREA_ROLES:
+            named = header_area_unit(name)
+            if named is not None and named != unit:
+                notes.append(
+                    f"header '{name}' names {UNIT_TEXT[named]} but the area unit setting is "
+                    f"{UNIT_TEXT[unit]}; values are kept as read (set the area unit to "
+                    f"{named} if the file is in {UNIT_TEXT[named]})"
+                )
+            for other, count in col.units.items():
+                if other != unit:
+                    notes.append(
+                        f"{count} cell{'s' if count > 1 else ''} in '{name}' marked "
+                        f"{UNIT_TEXT[other]} while the area unit setting is {UNIT_TEXT[unit]}; "
+                        "values are kept as read"
+                    )
+        if role in ("price", "sale_date"):
+            pass  # their bad cells exclude the row; the exclusion says why
+        elif role == "arms_length":
+            missing = int(np.count_nonzero(np.isnan(col.values) & used))
+            if missing:
+                notes.append(
+                    f"{missing} used row{'s' if missing > 1 else ''} have no arm's-length flag "
+                    f"in '{name}'; kept as arm's-length sales"
+                )
+        else:
+            bad = [(i, r) for i, r in sorted(col.bad.items()) if used[i]]
+            if bad:
+                shown = "; ".join(f"row {i + FIRST_DATA_ROW}: {r}" for i, r in bad[:_NOTE_EXAMPLES])
+                more = len(bad) - _NOTE_EXAMPLES
+                notes.append(
+                    f"column '{name}': {len(bad)} cell{'s' if len(bad) > 1 else ''} could not be "
+                    f"read as {'a ' + col.kind if col.kind != 'flag' else 'yes/no'} and "
+                    f"{'are' if len(bad) > 1 else 'is'} left blank ({shown}"
+                    f"{f'; and {more} more' if more > 0 else ''})"
+                )
+        if col.kind == "date":
+            ambiguous = col.forms.get("ambiguous", 0)
+            if ambiguous:
+                way = "day/month" if settings.date_order == "DMY" else "month/day"
+                notes.append(
+                    f"{ambiguous} ambiguous date{'s' if ambiguous > 1 else ''} in '{name}' read "
+                    f"as {way} (date order {settings.date_order})"
+                )
+            serial = col.forms.get("serial", 0)
+            if serial:
+                notes.append(f"{serial} date(s) in '{name}' read from spreadsheet day numbers")
+    return notes
+
+
+# --- units ---------------------------------------------------------------------------
+
+
+def convert_area(table: SalesTable, to_unit: AreaUnit) -> SalesTable:
+    """The table with its living and lot areas in ``to_unit``.
+
+    1 m² = 10.763910416709722 ft² (0.3048 m to the foot, exactly). Only the
+    columns with the ``living_area`` and ``lot_area`` roles change; headers
+    stay as they are; a note records the conversion. Same unit: returned as is.
+    """
+    if to_unit not in UNIT_TEXT:
+        raise DataError(f"unknown area unit '{to_unit}'; use ft2 or m2")
+    if to_unit == table.area_unit:
+        return table
+    factor = SQFT_PER_M2 if to_unit == "ft2" else 1.0 / SQFT_PER_M2
+    frame = table.frame.copy()
+    changed = []
+    for role in AREA_ROLES:
+        col = table.roles.column(role)
+        if col is not None and col in frame.columns:
+            frame[col] = frame[col] * factor
+            changed.append(f"'{col}'")
+    what = ", ".join(changed) if changed else "no area columns"
+    note = (
+        f"areas converted from {UNIT_TEXT[table.area_unit]} to {UNIT_TEXT[to_unit]} "
+        f"({what}; 1 m² = {SQFT_PER_M2} ft²)"
+    )
+    return replace(table, frame=frame, area_unit=to_unit, notes=(*table.notes, note))
