@@ -24,7 +24,7 @@ import hashlib
 import io
 import re
 import zipfile
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field, replace
 from datetime import datetime
 from functools import partial
@@ -363,20 +363,28 @@ def infer_kind(values: Sequence[object], settings: ImportSettings) -> str:
     return "text"
 
 
+def _readable(
+    values: Sequence[object], parse: Callable[[object], object], col: _Clean
+) -> Iterator[tuple[int, object, object]]:
+    """``(position, cell, parsed)`` for each readable cell; unreadable ones go to ``col.bad``."""
+    run = _memo(parse)
+    for i, v in enumerate(values):
+        if is_missing(v):
+            continue
+        ok, got = run(v)
+        if ok:
+            yield i, v, got
+        else:
+            col.bad[i] = str(got)
+
+
 def _clean_floats(
     values: Sequence[object], kind: str, parse: Callable[[object], object], area: bool = False
 ) -> _Clean:
     """Numbers, or flags as 1.0/0.0: NaN where missing, reasons where unreadable."""
     out = np.full(len(values), np.nan)
     col = _Clean(kind, out)
-    run = _memo(parse)
-    for i, v in enumerate(values):
-        if is_missing(v):
-            continue
-        ok, got = run(v)
-        if not ok:
-            col.bad[i] = str(got)
-            continue
+    for i, v, got in _readable(values, parse, col):
         out[i] = float(got)
         if area and isinstance(v, str):
             unit = area_unit_of(v)
@@ -397,14 +405,8 @@ def _clean_dates(
     out: list[datetime | None] = [None] * len(values)
     col = _Clean("date", np.empty(0))
     first: dict[str, tuple[int, str]] = {}
-    date = _memo(lambda v: parse_date(v, order=order, serial_ok=serial_ok))
-    for i, v in enumerate(values):
-        if is_missing(v):
-            continue
-        ok, got = date(v)
-        if not ok:
-            col.bad[i] = str(got)
-            continue
+    date = partial(parse_date, order=order, serial_ok=serial_ok)
+    for i, v, got in _readable(values, date, col):
         col.forms[got.form] = col.forms.get(got.form, 0) + 1
         first.setdefault(got.form, (i, clean_text(v)))
         out[i] = got.value

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numpy as np
 import pandas as pd
 
 from .roles import RoleMap
@@ -71,3 +72,89 @@ class SalesTable:
     @property
     def n_used(self) -> int:
         return len(self.frame)
+
+    def column_summaries(self, max_levels: int = 20) -> tuple[ColumnSummary, ...]:
+        """One :class:`ColumnSummary` per column of the used rows (``_row`` left out)."""
+        return tuple(
+            summarize_column(self.frame[name], name, self.roles.role_of(name), max_levels)
+            for name in self.frame.columns
+            if name != ROW_COLUMN
+        )
+
+
+@dataclass(frozen=True)
+class ColumnSummary:
+    """What a column of the used rows holds.
+
+    ``kind`` is "number", "date" or "text"; ``count`` non-missing values,
+    ``missing`` the rest. Numbers have ``min``/``max``/``mean``; dates ``min``/``max``;
+    text ``levels`` (the most frequent values with their counts, at most
+    ``max_levels``) and ``distinct`` (how many different values there are).
+    """
+
+    name: str
+    role: str | None
+    kind: str
+    count: int
+    missing: int
+    min: float | pd.Timestamp | None = None
+    max: float | pd.Timestamp | None = None
+    mean: float | None = None
+    levels: tuple[tuple[str, int], ...] = ()
+    distinct: int | None = None
+
+    def to_dict(self) -> dict:
+        def plain(v):
+            if isinstance(v, pd.Timestamp):
+                return v.date().isoformat() if v == v.normalize() else v.isoformat()
+            return v
+
+        out = {
+            "name": self.name,
+            "role": self.role,
+            "kind": self.kind,
+            "count": self.count,
+            "missing": self.missing,
+            "min": plain(self.min),
+            "max": plain(self.max),
+        }
+        if self.kind == "number":
+            out["mean"] = self.mean
+        if self.kind == "text":
+            out["levels"] = dict(self.levels)
+            out["distinct"] = self.distinct
+        return out
+
+
+def column_kind(series: pd.Series) -> str:
+    """ "number", "date" or "text" from a cleaned column's dtype."""
+    if pd.api.types.is_datetime64_any_dtype(series.dtype):
+        return "date"
+    if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
+        return "number"
+    return "text"
+
+
+def summarize_column(
+    series: pd.Series, name: str, role: str | None = None, max_levels: int = 20
+) -> ColumnSummary:
+    """Summary of one cleaned column (see :class:`ColumnSummary`)."""
+    kind = column_kind(series)
+    present = series.dropna()
+    count, missing = int(len(present)), int(len(series) - len(present))
+    if kind == "number":
+        values = present.to_numpy(dtype=float)
+        if not count:
+            return ColumnSummary(name, role, kind, count, missing)
+        return ColumnSummary(
+            name, role, kind, count, missing,
+            float(np.min(values)), float(np.max(values)), float(np.mean(values)),
+        )  # fmt: skip
+    if kind == "date":
+        if not count:
+            return ColumnSummary(name, role, kind, count, missing)
+        return ColumnSummary(name, role, kind, count, missing, present.min(), present.max())
+    counts = present.astype(str).value_counts(sort=False)
+    ordered = sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+    levels = tuple((str(k), int(v)) for k, v in ordered[:max_levels])
+    return ColumnSummary(name, role, kind, count, missing, levels=levels, distinct=int(len(counts)))
