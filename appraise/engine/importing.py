@@ -69,8 +69,13 @@ _NOTE_EXAMPLES = 8  # bad cells listed per column in a note before "and N more"
 
 
 @dataclass
-class _Raw:
-    """A file's cells before cleaning: header cells, one list per column, notes."""
+class RawTable:
+    """A file's cells before cleaning: header cells, one list per column, notes.
+
+    ``long_rows`` maps the position of a CSV row holding more values than the
+    header has columns to its number of values; ``serial_dates`` says whether
+    numbers in a date column are spreadsheet day numbers (XLSX).
+    """
 
     headers: list[object]
     columns: list[list[object]]
@@ -160,7 +165,7 @@ def sniff_delimiter(text: str, candidates: Sequence[str] = DELIMITERS) -> str:
 _DELIMITER_NAMES = {",": "commas", ";": "semicolons", "\t": "tabs", "|": "vertical bars"}
 
 
-def _read_csv(path: Path, data: bytes) -> _Raw:
+def _read_csv(path: Path, data: bytes) -> RawTable:
     notes: list[str] = []
     text = _decode(data, notes)
     if not text.strip():
@@ -185,10 +190,10 @@ def _read_csv(path: Path, data: bytes) -> _Raw:
                 long_rows[i] = len(row)
             else:
                 body[i] = row[:width]
-    return _Raw(list(header), _columns_from_rows(body, width, ""), "csv", notes, long_rows)
+    return RawTable(list(header), _columns_from_rows(body, width, ""), "csv", notes, long_rows)
 
 
-def _read_xlsx(path: Path, sheet: str | int) -> _Raw:
+def _read_xlsx(path: Path, sheet: str | int) -> RawTable:
     from openpyxl import load_workbook
     from openpyxl.utils.exceptions import InvalidFileException
 
@@ -230,10 +235,10 @@ def _read_xlsx(path: Path, sheet: str | int) -> _Raw:
         )
     width = max(len(r) for r in rows)
     header = rows[0] + [None] * (width - len(rows[0]))
-    return _Raw(header, _columns_from_rows(rows[1:], width, None), "xlsx", notes, {}, True)
+    return RawTable(header, _columns_from_rows(rows[1:], width, None), "xlsx", notes, {}, True)
 
 
-def _read_parquet(path: Path) -> _Raw:
+def _read_parquet(path: Path) -> RawTable:
     import pyarrow as pa
     import pyarrow.parquet as pq
 
@@ -244,7 +249,7 @@ def _read_parquet(path: Path) -> _Raw:
     if table.num_columns == 0:
         raise DataError("the Parquet file has no columns", file=str(path))
     columns = [table.column(i).to_pylist() for i in range(table.num_columns)]
-    return _Raw(list(table.column_names), columns, "parquet")
+    return RawTable(list(table.column_names), columns, "parquet")
 
 
 # --- headers -------------------------------------------------------------------------
@@ -410,15 +415,22 @@ def _clean_dates(
         col.forms[got.form] = col.forms.get(got.form, 0) + 1
         first.setdefault(got.form, (i, clean_text(v)))
         out[i] = got.value
-    _check_date_order(first, order, file=file, column=column)
+    problem = date_order_problem(first, order)
+    if problem is not None:
+        raise DataError(problem[1], file=file, row=problem[0] + FIRST_DATA_ROW, column=column)
     col.values = np.array(out, dtype="datetime64[ns]")
     return col
 
 
-def _check_date_order(
-    first: dict[str, tuple[int, str]], order: str, *, file: str, column: str
-) -> None:
-    """Refuse what the date order cannot settle: never swap day and month silently."""
+def date_order_problem(first: dict[str, tuple[int, str]], order: str) -> tuple[int, str] | None:
+    """What the date order cannot settle in a column, if anything: ``(position, message)``.
+
+    ``first`` maps each date form seen (see :class:`~appraise.engine.cells.DateReading`)
+    to the position and text of its first cell. Day and month are never swapped
+    silently: an ambiguous date under "ISO", a date that can only be read
+    against the chosen order, or a column holding both unambiguous orders is a
+    problem.
+    """
     day_first, month_first = first.get("day_first"), first.get("month_first")
     if order == "ISO" and "ambiguous" in first:
         i, text = first["ambiguous"]
@@ -427,33 +439,25 @@ def _check_date_order(
             j, other = day_first or month_first
             way = "day/month" if day_first else "month/day"
             seen = f"; row {j + FIRST_DATA_ROW} ('{other}') can only be {way}"
-        raise DataError(
+        return i, (
             f"'{text}' could be day/month or month/day{seen}. Set the date order "
-            "(--date-order DMY or MDY) to say how this file writes dates",
-            file=file,
-            row=i + FIRST_DATA_ROW,
-            column=column,
+            "(--date-order DMY or MDY) to say how dates are written"
         )
     clash = {"MDY": day_first, "DMY": month_first}.get(order)
     if clash is not None:
         i, text = clash
         way = "day/month" if order == "MDY" else "month/day"
-        raise DataError(
+        return i, (
             f"'{text}' can only be read as {way}, which contradicts the date order {order}; "
-            "check the date order setting (--date-order) or the cell",
-            file=file,
-            row=i + FIRST_DATA_ROW,
-            column=column,
+            "check the date order setting (--date-order) or the cell"
         )
     if day_first and month_first:
         (i, a), (j, b) = sorted([day_first, month_first])
-        raise DataError(
+        return j, (
             f"dates are written both day/month and month/day: row {i + FIRST_DATA_ROW} "
-            f"'{a}' and row {j + FIRST_DATA_ROW} '{b}' cannot both be right",
-            file=file,
-            row=j + FIRST_DATA_ROW,
-            column=column,
+            f"'{a}' and row {j + FIRST_DATA_ROW} '{b}' cannot both be right"
         )
+    return None
 
 
 def _clean_texts(values: Sequence[object]) -> _Clean:
@@ -486,7 +490,11 @@ def _clean_column(
 # --- the whole file ------------------------------------------------------------------
 
 
-def _read_raw(path: Path, data: bytes, fmt: str, settings: ImportSettings) -> _Raw:
+def read_raw_table(path: Path, data: bytes, fmt: str, settings: ImportSettings) -> RawTable:
+    """The cells of a file of format ``fmt`` ("csv", "xlsx", "parquet"), not yet cleaned.
+
+    ``data`` is the file's bytes (only CSV uses them; the others reopen ``path``).
+    """
     if fmt == "csv":
         return _read_csv(path, data)
     if fmt == "xlsx":
@@ -494,7 +502,8 @@ def _read_raw(path: Path, data: bytes, fmt: str, settings: ImportSettings) -> _R
     return _read_parquet(path)
 
 
-def _format_of(path: Path) -> str:
+def format_of(path: Path) -> str:
+    """The format read for ``path``'s suffix; DataError for an unknown one."""
     fmt = FORMATS.get(path.suffix.lower())
     if fmt is None:
         known = ", ".join(sorted(FORMATS))
@@ -506,7 +515,8 @@ def _format_of(path: Path) -> str:
     return fmt
 
 
-def _read_bytes(path: Path) -> bytes:
+def read_file_bytes(path: Path) -> bytes:
+    """The bytes of ``path``; DataError when missing, not a file or unreadable."""
     if not path.exists():
         raise DataError("file not found", file=str(path))
     if not path.is_file():
@@ -563,12 +573,12 @@ def load_sales(
         No price column, or a role map naming a column the file does not have.
     """
     p = Path(path)
-    fmt = _format_of(p)
-    data = _read_bytes(p)
+    fmt = format_of(p)
+    data = read_file_bytes(p)
     file = str(path)
     if not data:
         raise DataError("the file is empty", file=file)
-    raw = _read_raw(p, data, fmt, settings)
+    raw = read_raw_table(p, data, fmt, settings)
     if raw.n_rows == 0:
         raise DataError("the file has a header but no rows of sales", file=file)
     headers, header_notes = clean_headers(raw.headers)
@@ -626,7 +636,7 @@ def _series(col: _Clean, used: np.ndarray) -> pd.Series:
 
 
 def _exclusions(
-    raw: _Raw, headers: list[str], roles: RoleMap, cleaned: dict[str, _Clean]
+    raw: RawTable, headers: list[str], roles: RoleMap, cleaned: dict[str, _Clean]
 ) -> list[Exclusion]:
     """One exclusion per unusable row, the first reason that applies."""
     n = raw.n_rows
