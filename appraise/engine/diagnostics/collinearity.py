@@ -167,7 +167,8 @@ def vifs(X: np.ndarray, qr: QRDecomposition | None = None) -> np.ndarray:
     """VIF of every column; NaN for the intercept (constant) column.
 
     Matches ``statsmodels.stats.outliers_influence.variance_inflation_factor`` on a
-    design with an intercept (centred R²) and on one without (uncentred R²).
+    design with an intercept (centred R²); on one without, the R² is uncentred, as
+    statsmodels computes it with ``standardize=False``.
     """
     X = np.asarray(X, dtype=float)
     qr = decompose(X) if qr is None else qr
