@@ -77,6 +77,23 @@ def add_model_argument(parser: argparse.ArgumentParser, *, multiple: bool = Fals
         )
 
 
+def add_subject_arguments(parser: argparse.ArgumentParser) -> None:
+    """--subject and --level, for the commands that value the subject."""
+    parser.add_argument(
+        "--subject",
+        "-s",
+        required=True,
+        metavar="SUBJECT",
+        help="the subject: a JSON object or a one-row CSV with the sales' columns",
+    )
+    parser.add_argument(
+        "--level",
+        type=float,
+        default=None,
+        help="prediction-interval level (default: the model file's, else 0.90)",
+    )
+
+
 def add_json_argument(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print machine-readable JSON")
 

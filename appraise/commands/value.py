@@ -10,6 +10,7 @@ from .common import (
     add_json_argument,
     add_model_argument,
     add_sales_arguments,
+    add_subject_arguments,
     fit_from_args,
     print_json,
     read_subject_from_args,
@@ -23,19 +24,7 @@ def register(sub) -> None:
     )
     add_sales_arguments(p)
     add_model_argument(p)
-    p.add_argument(
-        "--subject",
-        "-s",
-        required=True,
-        metavar="SUBJECT",
-        help="the subject: a JSON object or a one-row CSV with the sales' columns",
-    )
-    p.add_argument(
-        "--level",
-        type=float,
-        default=None,
-        help="prediction-interval level (default: the model file's, else 0.90)",
-    )
+    add_subject_arguments(p)
     add_json_argument(p)
     p.set_defaults(func=run)
 

@@ -117,6 +117,7 @@ def scatter_chart(
         ax.setPen(pg.mkPen(60, 60, 60))
         ax.setTextPen(pg.mkPen(20, 20, 20))
         ax.setStyle(tickFont=tick_font)
+        ax.enableAutoSIPrefix(False)  # no "(x0.001)" scale factors in printed labels
     plot.getAxis("left").setWidth(78)
     plot.setTitle(title, color="#111111", size="13pt")
     label_style = {"color": "#111111", "font-size": "11pt"}
@@ -177,7 +178,7 @@ def _png_bytes(image) -> bytes:
     data = QByteArray()
     buffer = QBuffer(data)
     buffer.open(QIODevice.OpenModeFlag.WriteOnly)
-    image.save(buffer, "PNG")
+    image.save(buffer, "PNG", 50)  # mid compression: about as small as the default, faster
     buffer.close()
     return bytes(data.data())
 

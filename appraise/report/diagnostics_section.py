@@ -1,89 +1,211 @@
 """The diagnostics section of the worksheet, read from ``Diagnostics.to_dict()``.
 
-Reads the plain dictionary, not the engine's classes, so the worksheet keeps
-working as diagnostics grow: scalars become label/value facts, lists of records
-become tables, nested mappings become sub-headed groups.
+Reads the plain dictionary (the stable JSON contract of ``appraise diagnose``),
+not the engine's classes, and picks what a reviewer needs on paper: the flagged
+sales, collinearity, residual tests, out-of-sample accuracy and the ratio study
+with its acceptable ranges. The per-sale table is left to the CSV/JSON output.
 """
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from typing import Any
 
-from .content import Block, Facts, Paragraph, Table
-from .numbers import plain
+from .content import Block, Facts, Notice, Paragraph, Table
+from .numbers import MISSING, fixed, money, number, percent, plain, pvalue
 
 
-def diagnostics_blocks(diagnostics: Any) -> tuple[Block, ...]:
-    """Blocks describing ``diagnostics`` (anything with ``to_dict()`` or a mapping)."""
-    data = diagnostics.to_dict() if hasattr(diagnostics, "to_dict") else diagnostics
-    if not isinstance(data, Mapping) or not data:
-        return (Paragraph("No diagnostics were computed."),)
-    return tuple(_blocks(data, title="", key="diagnostics"))
+def diagnostics_blocks(diagnostics: Any, currency: str = "$") -> tuple[Block, ...]:
+    """Blocks describing ``diagnostics`` (anything with ``to_dict()``, or that dict)."""
+    d = diagnostics.to_dict() if hasattr(diagnostics, "to_dict") else dict(diagnostics)
+    overall = d.get("overall", {}) or {}
+    blocks: list[Block] = []
+    blocks.extend(_flagged(d))
+    blocks.extend(_collinearity(d, overall.get("condition") or {}))
+    blocks.extend(_residual_tests(overall.get("residual_tests") or {}))
+    blocks.extend(_accuracy(overall.get("accuracy") or {}, currency))
+    blocks.extend(_ratio_study(overall.get("ratio_study") or {}))
+    return tuple(blocks) or (Paragraph("No diagnostics were computed."),)
 
 
-def _label(key: str) -> str:
-    return str(key).replace("_", " ").strip().capitalize()
+def diagnostics_warnings(diagnostics: Any) -> tuple[str, ...]:
+    d = diagnostics.to_dict() if hasattr(diagnostics, "to_dict") else dict(diagnostics)
+    return tuple(str(w) for w in d.get("warnings", ()) or ())
 
 
-def _blocks(data: Mapping, *, title: str, key: str) -> list[Block]:
-    scalars = []
-    nested: list[Block] = []
-    for k, v in data.items():
-        if isinstance(v, Mapping):
-            nested.extend(_blocks(v, title=_label(k), key=f"{key}-{k}"))
-        elif _is_records(v):
-            nested.append(_records_table(v, title=_label(k), key=f"{key}-{k}"))
-        elif isinstance(v, Sequence) and not isinstance(v, str):
-            scalars.append((_label(k), ", ".join(plain(x) for x in v) if v else "none"))
-        else:
-            scalars.append((_label(k), plain(v)))
+def _flagged(d: Mapping) -> list[Block]:
+    flagged = d.get("flagged") or []
+    if not flagged:
+        return [Facts((("Flagged sales", "none"),), "Sales to look at")]
+    rows, values = [], []
+    for f in flagged:
+        texts = "; ".join(str(x.get("text", "")) for x in f.get("findings", ()) or ())
+        sid = "" if f.get("sale_id") is None else str(f.get("sale_id"))
+        rows.append((plain(f.get("row")), sid, texts))
+        values.append((f.get("row"), sid, texts))
+    rules = d.get("thresholds") or {}
+    note = "; ".join(
+        str(t.get("rule")) for t in rules.values() if isinstance(t, Mapping) and t.get("rule")
+    )
+    return [
+        Table(
+            key="flagged",
+            title="Sales to look at",
+            columns=("File row", "Sale id", "Findings"),
+            rows=tuple(rows),
+            values=tuple(values),
+            align=("r", "l", "l"),
+            note=(f"Rules: {note}. " if note else "")
+            + "A flag asks for a second look at the sale; it is not a reason to drop it.",
+        )
+    ]
+
+
+def _collinearity(d: Mapping, condition: Mapping) -> list[Block]:
+    terms = d.get("terms") or []
     out: list[Block] = []
-    if scalars:
-        out.append(Facts(tuple(scalars), title))
-    elif title and nested:
-        out.append(Facts((), title))
-    out.extend(nested)
+    if terms:
+        rows, values = [], []
+        for t in terms:
+            rows.append(
+                (
+                    str(t.get("term", "")),
+                    plain(t.get("df")),
+                    number(t.get("gvif"), 4),
+                    number(t.get("gvif_root"), 4),
+                    "yes" if t.get("flagged") else "",
+                )
+            )
+            values.append(
+                (
+                    t.get("term"),
+                    t.get("df"),
+                    t.get("gvif"),
+                    t.get("gvif_root"),
+                    bool(t.get("flagged")),
+                )
+            )
+        rules = sorted({str(t.get("rule")) for t in terms if t.get("rule")})
+        out.append(
+            Table(
+                key="collinearity",
+                title="Collinearity (generalized variance inflation)",
+                columns=("Term", "Columns", "GVIF", "GVIF^(1/(2 df))", "Flagged"),
+                rows=tuple(rows),
+                values=tuple(values),
+                align=("l", "r", "r", "r", "l"),
+                note=("Flag rules: " + "; ".join(rules) + ".") if rules else "",
+            )
+        )
+    if condition:
+        verdict = "above" if condition.get("exceeds") else "below"
+        out.append(
+            Facts(
+                (
+                    (
+                        "Condition number",
+                        f"{number(condition.get('number'), 4)} ({verdict} the threshold "
+                        f"{plain(condition.get('threshold'))})",
+                    ),
+                    ("Scaling", str(condition.get("scaling", MISSING))),
+                )
+            )
+        )
     return out
 
 
-def _is_records(v: Any) -> bool:
-    return (
-        isinstance(v, Sequence)
-        and not isinstance(v, str)
-        and len(v) > 0
-        and all(isinstance(r, Mapping) for r in v)
-    )
-
-
-def _records_table(records: Sequence[Mapping], *, title: str, key: str) -> Table:
-    columns: list[str] = []
-    for r in records:
-        for c in r:
-            if c not in columns:
-                columns.append(c)
-    rows = tuple(tuple(_cell_text(r.get(c)) for c in columns) for r in records)
-    values = tuple(tuple(_cell_value(r.get(c)) for c in columns) for r in records)
-    return Table(
-        key=key,
-        title=title,
-        columns=tuple(_label(c) for c in columns),
-        rows=rows,
-        values=values,
-    )
-
-
-def _cell_text(v: Any) -> str:
-    if isinstance(v, Mapping | list | tuple):
-        return (
-            ", ".join(f"{k}: {plain(x)}" for k, x in v.items())
-            if isinstance(v, Mapping)
-            else ", ".join(plain(x) for x in v)
+def _residual_tests(rt: Mapping) -> list[Block]:
+    if not rt:
+        return []
+    rows = []
+    bp = rt.get("breusch_pagan") or {}
+    if bp:
+        rows.append(
+            (
+                f"Breusch-Pagan ({bp.get('form', '')}) LM",
+                f"{number(bp.get('statistic'), 5)} on {plain(bp.get('df'))} df, "
+                f"p = {pvalue(bp.get('p_value'))}",
+            )
         )
-    return plain(v)
+    jb = rt.get("jarque_bera") or {}
+    if jb:
+        rows.append(
+            (
+                "Jarque-Bera",
+                f"{number(jb.get('statistic'), 5)}, p = {pvalue(jb.get('p_value'))} "
+                f"(skewness {fixed(jb.get('skewness'), 2)}, kurtosis {fixed(jb.get('kurtosis'), 2)})",
+            )
+        )
+    out: list[Block] = [Facts(tuple(rows), "Residual tests")] if rows else []
+    suggestions = tuple(str(s) for s in rt.get("suggestions", ()) or ())
+    if suggestions:
+        out.append(Notice("note", suggestions, "What the tests suggest"))
+    return out
 
 
-def _cell_value(v: Any):
-    if v is None or isinstance(v, bool | int | float | str):
-        return v
-    return _cell_text(v)
+def _accuracy(acc: Mapping, currency: str) -> list[Block]:
+    rows = []
+    loo = acc.get("leave_one_out") or {}
+    if loo:
+        cov = loo.get("coverage") or {}
+        rows.append(("Leave-one-out RMSE", money(loo.get("rmse_price"), currency)))
+        rows.append(("Leave-one-out median absolute % error", _pct_points(loo.get("mdape"))))
+        if cov:
+            rows.append(
+                (
+                    "Sales inside their leave-one-out interval",
+                    f"{percent(cov.get('empirical'), 1)} (nominal {percent(cov.get('nominal'), 1)}, "
+                    f"{plain(cov.get('n'))} sales)",
+                )
+            )
+    kf = acc.get("kfold") or {}
+    if kf:
+        rows.append((f"{plain(kf.get('folds'))}-fold RMSE", money(kf.get("rmse_price"), currency)))
+        rows.append(
+            (f"{plain(kf.get('folds'))}-fold median absolute % error", _pct_points(kf.get("mdape")))
+        )
+    return [Facts(tuple(rows), "Accuracy on sales left out of the fit")] if rows else []
+
+
+def _pct_points(x: Any) -> str:
+    """A value already in percent (12.8 -> "12.8%")."""
+    text = fixed(x, 1)
+    return text if text == MISSING else f"{text}%"
+
+
+def _ratio_study(rs: Mapping) -> list[Block]:
+    measures = rs.get("measures") or []
+    if not measures:
+        return []
+    rows, values = [], []
+    for m in measures:
+        lo, hi = m.get("range_low"), m.get("range_high")
+        rng = f"{plain(lo)} to {plain(hi)}" if lo is not None and hi is not None else ""
+        ci = ""
+        if m.get("ci_low") is not None and m.get("ci_high") is not None:
+            ci = f" [{number(m.get('ci_low'), 4)}, {number(m.get('ci_high'), 4)}]"
+        source = "; ".join(s for s in (str(m.get("source") or ""), str(m.get("note") or "")) if s)
+        rows.append(
+            (
+                str(m.get("label", m.get("name", ""))),
+                number(m.get("value"), 4) + ci,
+                rng,
+                str(m.get("verdict", "")),
+                source,
+            )
+        )
+        values.append((m.get("label"), m.get("value"), rng, m.get("verdict"), source))
+    trimmed = rs.get("trimmed") or []
+    note = f"Ratio = model value / sale price, {plain(rs.get('n'))} sales"
+    note += f"; {len(trimmed)} trimmed as outliers." if rs.get("trim") else "; no trimming."
+    return [
+        Table(
+            key="ratio_study",
+            title="Ratio study",
+            columns=("Measure", "Value", "Acceptable range", "Verdict", "Source and notes"),
+            rows=tuple(rows),
+            values=tuple(values),
+            align=("l", "r", "l", "l", "l"),
+            note=note,
+        )
+    ]

@@ -26,7 +26,7 @@ h3 { font-size: 10.5pt; margin-top: 8pt; margin-bottom: 3pt; }
 p.meta { color: #444444; margin-top: 0; }
 table.data { border-collapse: collapse; margin-bottom: 4pt; }
 table.data th { background-color: #e6ebf2; font-weight: bold; }
-table.facts td.label { color: #444444; padding-right: 12pt; }
+table.facts td.label { color: #444444; }
 p.note { font-size: 8.5pt; color: #444444; }
 p.caption { font-size: 8.5pt; color: #333333; margin-bottom: 10pt; }
 p.fill { margin-top: 10pt; }
@@ -110,7 +110,10 @@ def _facts(block: Facts) -> str:
     parts = [f"<h3>{escape(block.title)}</h3>"] if block.title else []
     parts.append('<table class="facts" cellspacing="0" cellpadding="2">')
     for label, value in block.rows:
-        parts.append(f'<tr><td class="label">{_text(label)}</td><td>{_text(value)}</td></tr>')
+        parts.append(
+            f'<tr><td class="label" style="padding-right: 14px">{_text(label)}</td>'
+            f"<td>{_text(value)}</td></tr>"
+        )
     parts.append("</table>")
     return "\n".join(parts)
 

@@ -23,7 +23,7 @@ from .cautions import (
     SHORT_CAUTION,
 )
 from .content import Facts, Figure, Notice, Paragraph, Section, SignatureBlock, Table, Worksheet
-from .diagnostics_section import diagnostics_blocks
+from .diagnostics_section import diagnostics_blocks, diagnostics_warnings
 from .numbers import MISSING, fixed, money, number, plain, pvalue
 from .settings import ReportSettings
 
@@ -91,6 +91,8 @@ def build_worksheet(
     )
     estimate_table = _estimate_table(fit, valuation, cur)
     warnings = _warnings(fit, valuation)
+    if diagnostics is not None:
+        warnings.extend(w for w in diagnostics_warnings(diagnostics) if w not in warnings)
 
     sections = [
         Section("summary", "Result in brief", _summary(fit, valuation, effective, warnings, cur)),
@@ -109,9 +111,9 @@ def build_worksheet(
         ),
     ]
     if diagnostics is not None:
-        sections.append(Section("diagnostics", "Diagnostics", diagnostics_blocks(diagnostics)))
+        sections.append(Section("diagnostics", "Diagnostics", diagnostics_blocks(diagnostics, cur)))
     if figures:
-        sections.append(Section("figures", "Figures", tuple(figures)))
+        sections.append(Section("figures", "Figures", tuple(figures), new_page=True))
     sections.append(
         Section(
             "certification",
@@ -317,6 +319,7 @@ def _fit_facts(fit: Any) -> Facts:
 
 def _estimate_table(fit: Any, valuation: Any, cur: str) -> Table:
     lvl = level_text(valuation.level)
+    typical = "median" if fit.spec.response == "log" else "average"
     rows: list[tuple[str, str]] = []
     values: list[tuple[str, float | None]] = []
 
@@ -340,16 +343,13 @@ def _estimate_table(fit: Any, valuation: Any, cur: str) -> Table:
     add(f"{lvl} prediction interval: low", money(valuation.low, cur), _f(valuation.low))
     add(f"{lvl} prediction interval: high", money(valuation.high, cur), _f(valuation.high))
     add("Interval level", lvl, float(valuation.level))
-    add(
-        f"{lvl} interval for the average price of similar properties: low",
-        money(valuation.mean_low, cur),
-        _f(valuation.mean_low),
-    )
-    add(
-        f"{lvl} interval for the average price of similar properties: high",
-        money(valuation.mean_high, cur),
-        _f(valuation.mean_high),
-    )
+    # For a log response the interval for the mean of log price maps to the median price.
+    for end, value in (("low", valuation.mean_low), ("high", valuation.mean_high)):
+        add(
+            f"{lvl} interval for the {typical} price of similar properties: {end}",
+            money(value, cur),
+            _f(value),
+        )
     add("Leverage of the subject", fixed(valuation.leverage, 4), _f(valuation.leverage))
     add(
         "Largest leverage among the sales",
@@ -365,8 +365,8 @@ def _estimate_table(fit: Any, valuation: Any, cur: str) -> Table:
         align=("l", "r"),
         note=(
             "The prediction interval is for the price of this one property; the interval "
-            "for the average is narrower because it leaves out the scatter of single sales. "
-            "Amounts are rounded to whole currency units."
+            f"for the {typical} of similar properties is narrower because it leaves out the "
+            "scatter of single sales. Amounts are rounded to whole currency units."
         ),
     )
 

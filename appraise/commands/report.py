@@ -1,0 +1,103 @@
+"""``appraise report SALES --model MODEL.toml --subject SUBJECT -o worksheet.pdf``
+
+Writes the valuation worksheet as a PDF (Qt's own PDF writer, works without a
+display), optionally the same content as HTML, and the coefficient and exclusion
+tables as CSV and XLSX.
+"""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from ..engine.errors import ReportError
+from ..report.cautions import ONE_LINE_CAUTION
+from ..report.content import PAGE_SIZES
+from ..report.numbers import money
+from .common import (
+    add_model_argument,
+    add_sales_arguments,
+    add_subject_arguments,
+    fit_from_args,
+    read_subject_from_args,
+)
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "report",
+        help="write the valuation worksheet (PDF, optional HTML and tables)",
+        description=__doc__,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    add_sales_arguments(p)
+    add_model_argument(p)
+    add_subject_arguments(p)
+    p.add_argument("-o", "--output", required=True, metavar="WORKSHEET.pdf", help="PDF to write")
+    p.add_argument("--html", metavar="WORKSHEET.html", help="also write the worksheet as HTML")
+    p.add_argument(
+        "--page-size", choices=PAGE_SIZES, default="A4", help="paper size of the PDF (default A4)"
+    )
+    p.add_argument(
+        "--tables-dir",
+        metavar="DIR",
+        help="also write coefficients and exclusions as CSV and XLSX into DIR",
+    )
+    p.add_argument("--currency", default="$", help="currency symbol printed (default '$')")
+    p.add_argument(
+        "--no-diagnostics", action="store_true", help="leave the diagnostics section out"
+    )
+    p.add_argument(
+        "--workfile-id", help="identifier printed in every footer (default: from the file hashes)"
+    )
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from ..engine.valuation import value_subject
+    from ..qtrender.figures import worksheet_figures
+    from ..qtrender.pdf import write_pdf
+    from ..report.html import render_html
+    from ..report.settings import ReportSettings
+    from ..report.tables import export_tables
+    from ..report.worksheet import build_worksheet
+
+    out = Path(args.output)
+    if out.suffix.lower() != ".pdf":
+        raise ReportError("the output file should end in .pdf", file=str(out))
+    sales, _, fit = fit_from_args(args)
+    subject = read_subject_from_args(args, sales)
+    valuation = value_subject(fit, subject, args.level)
+    diagnostics = None
+    if not args.no_diagnostics:
+        from ..engine.diagnostics import diagnose
+
+        diagnostics = diagnose(fit)
+    settings = ReportSettings(currency=args.currency, page_size=args.page_size)
+    worksheet = build_worksheet(
+        fit,
+        valuation,
+        diagnostics=diagnostics,
+        figures=worksheet_figures(fit, valuation, currency=args.currency),
+        settings=settings,
+        workfile_id=args.workfile_id,
+    )
+    pages = write_pdf(worksheet, out, page_size=args.page_size)
+    print(f"Wrote {out} ({pages} pages, {args.page_size})")
+    if args.html:
+        html_path = Path(args.html)
+        try:
+            html_path.write_text(render_html(worksheet), encoding="utf-8")
+        except OSError as exc:
+            raise ReportError(f"cannot write HTML: {exc.strerror}", file=str(html_path)) from None
+        print(f"Wrote {html_path}")
+    if args.tables_dir:
+        for path in export_tables(worksheet, args.tables_dir):
+            print(f"Wrote {path}")
+    cur = args.currency
+    print(
+        f"Estimate {money(valuation.estimate, cur)}; {100 * valuation.level:g}% prediction "
+        f"interval {money(valuation.low, cur)} to {money(valuation.high, cur)}"
+    )
+    print(ONE_LINE_CAUTION)
+    return 0
