@@ -375,32 +375,26 @@ def _read_column(s: pd.Series) -> _ColumnData:
         v = s.to_numpy(dtype="datetime64[ns]")
         return _ColumnData("date", v, np.isnat(v))
     obj = s.to_numpy(dtype=object)
-    missing = np.array(
-        [x is None or (isinstance(x, str) and not x.strip()) or _is_na(x) for x in obj],
-        dtype=bool,
-    )
-    present = obj[~missing]
     n = len(obj)
-    if len(present) == 0:
+    missing = np.asarray(pd.isna(obj), dtype=bool)
+    if any(issubclass(t, str) for t in set(map(type, obj[~missing]))):
+        stripped = pd.Series(obj, dtype=object).str.strip()
+        missing |= stripped.eq("").to_numpy(dtype=bool, na_value=False)
+    present = obj[~missing]
+    types = set(map(type, present))
+    if not types:
         return _ColumnData("empty", np.full(n, np.nan), missing)
-    if all(isinstance(x, int | float | np.number) for x in present):
+    if all(issubclass(t, int | float | np.number) for t in types):
         v = np.full(n, np.nan)
         v[~missing] = present.astype(float)
         return _ColumnData("number", v, missing)
-    if all(isinstance(x, _dt.date | np.datetime64) for x in present):
+    if all(issubclass(t, _dt.date | np.datetime64) for t in types):
         v = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
         v[~missing] = pd.to_datetime(pd.Series(present)).to_numpy(dtype="datetime64[ns]")
         return _ColumnData("date", v, missing)
-    v = np.empty(n, dtype=object)
-    v[~missing] = [str(x) for x in present]
+    v = np.full(n, None, dtype=object)
+    v[~missing] = list(map(str, present))
     return _ColumnData("text", v, missing)
-
-
-def _is_na(x: object) -> bool:
-    try:
-        return bool(pd.isna(x))
-    except (TypeError, ValueError):
-        return False
 
 
 # --- evaluation ---------------------------------------------------------------------------
@@ -569,13 +563,12 @@ def _labels(ev: _Evaluator, t: _Term) -> np.ndarray:
     v = ev.value(arg, t.feature)
     if isinstance(v, str):
         raise ExpressionError(f"in '{t.feature}': onehot(...) needs a column, not quoted text")
-    out = np.empty(len(v), dtype=object)
-    if v.dtype.kind == "f":
-        for i, x in enumerate(v):
-            out[i] = None if np.isnan(x) else level_label(float(x))
-    elif v.dtype.kind == "M":
-        for i, x in enumerate(v):
-            out[i] = None if np.isnat(x) else level_label(x)
+    out = np.full(len(v), None, dtype=object)
+    if v.dtype.kind in "fM":
+        present = ~(np.isnan(v) if v.dtype.kind == "f" else np.isnat(v))
+        uniq, inverse = np.unique(v[present], return_inverse=True)
+        written = np.array([level_label(u) for u in uniq], dtype=object)
+        out[present] = written[inverse]
     else:
         out[:] = v
     return out
@@ -588,7 +581,7 @@ def level_label(value: float | str | np.datetime64) -> str:
     if isinstance(value, np.datetime64):
         day = value.astype("datetime64[D]")
         return str(day) if day == value else str(value.astype("datetime64[s]")).replace("T", " ")
-    x = float(value)
+    x = float(value)  # type: ignore[arg-type]
     if x.is_integer() and abs(x) < 1e15:
         return str(int(x))
     return repr(x)
@@ -609,7 +602,7 @@ def _sort_levels(levels: set[str]) -> list[str]:
 
 def _learn_levels(t: _Term, labels: np.ndarray, usable: np.ndarray) -> _Term:
     col = t.single_input
-    seen = labels[usable & np.array([x is not None for x in labels], dtype=bool)]
+    seen = labels[usable & ~pd.isna(labels)]
     if len(seen) == 0:
         raise DesignError(
             f"'{t.feature}': no usable sales to learn the levels of {t.text} from", column=col
@@ -639,26 +632,30 @@ def _learn_levels(t: _Term, labels: np.ndarray, usable: np.ndarray) -> _Term:
 
 
 def _check_levels(t: _Term, labels: np.ndarray, ok: np.ndarray, frame: pd.DataFrame) -> None:
-    known = set(t.levels)
-    for i in np.flatnonzero(ok):
-        if labels[i] is not None and labels[i] not in known:
-            row = None
-            if ROW_COLUMN in frame.columns:
-                r = frame[ROW_COLUMN].iloc[i]
-                row = int(r) if pd.notna(r) else None
-            raise DesignError(
-                f"{t.text}: level '{labels[i]}' (row position {i}) was not among the levels "
-                f"learned from the sales ({', '.join(t.levels)}); the model cannot value it",
-                column=t.single_input,
-                row=row,
-            )
+    unseen = ok & ~pd.isna(labels) & ~pd.Series(labels, dtype=object).isin(t.levels).to_numpy()
+    if not unseen.any():
+        return
+    i = int(np.flatnonzero(unseen)[0])
+    row = None
+    if ROW_COLUMN in frame.columns:
+        r = frame[ROW_COLUMN].iloc[i]
+        row = int(r) if pd.notna(r) else None
+    raise DesignError(
+        f"{t.text}: level '{labels[i]}' (row position {i}) was not among the levels "
+        f"learned from the sales ({', '.join(t.levels)}); the model cannot value it",
+        column=t.single_input,
+        row=row,
+    )
 
 
 def _indicators(t: _Term, labels: np.ndarray) -> np.ndarray:
-    missing = np.array([x is None for x in labels], dtype=bool)
+    """0/1 columns for every level but the reference; NaN where the level is missing
+    (or unknown, which only happens in rows that are not ok)."""
+    index = {lv: float(j) for j, lv in enumerate(t.levels)}
+    codes = pd.Series(labels, dtype=object).map(index).to_numpy(dtype=float, na_value=np.nan)
     cols = [
-        np.where(missing, np.nan, (labels == lv).astype(float))
-        for lv in t.levels
+        np.where(np.isnan(codes), np.nan, (codes == j).astype(float))
+        for j, lv in enumerate(t.levels)
         if lv != t.reference
     ]
     return np.column_stack(cols) if cols else np.empty((len(labels), 0))

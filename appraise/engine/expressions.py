@@ -252,8 +252,10 @@ def parse_expression(expr: str, *, allow_expanding: bool = True) -> Node:
     except SyntaxError as exc:
         where = f" at position {exc.offset}" if exc.offset else ""
         raise ExpressionError(f"cannot read '{expr}': {exc.msg}{where}") from None
-    except (RecursionError, MemoryError, ValueError):
+    except (RecursionError, MemoryError):
         raise ExpressionError(f"cannot read '{expr}': nested too deeply") from None
+    except ValueError as exc:  # e.g. a NUL character
+        raise ExpressionError(f"cannot read '{expr}': {exc}") from None
     if _depth(tree) > MAX_DEPTH:
         raise ExpressionError(f"'{expr}' is nested more than {MAX_DEPTH} levels deep")
     return _Walker(expr, prot, allow_expanding).convert(tree.body, top=True)

@@ -113,6 +113,24 @@ def test_normalised_text_parses_back_to_the_same_tree(tree):
     assert parse_expression(to_text(tree)) == tree
 
 
+_alphabet = st.sampled_from(
+    list("ab_`'\"()+-*/.,=[]{}<>!~%&|@:;#\\ \n\t\x00é0123456789")
+    + ["log", "poly", "onehot", "degree=", "ref=", "lambda", "__", "**", "1e999", "months_between"]
+)
+
+
+@settings(max_examples=500, deadline=None)
+@given(st.lists(_alphabet, max_size=30).map("".join))
+def test_any_text_either_parses_or_raises_expression_error(text):
+    # Property: the parser never fails with anything but its own error class, and
+    # whatever it accepts prints to text that parses back to the same tree.
+    try:
+        tree = parse_expression(text)
+    except ExpressionError:
+        return
+    assert parse_expression(to_text(tree)) == tree
+
+
 # --- the whitelist ---------------------------------------------------------------------------
 @pytest.mark.parametrize(
     ("text", "piece"),
