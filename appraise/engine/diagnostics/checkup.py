@@ -223,10 +223,16 @@ def diagnose_arrays(
 
 
 def term_groups(names: Sequence[str], groups: Sequence) -> tuple[TermGroupRef, ...]:
-    """Design-column positions of each ``TermGroup`` (expression, columns by name, kind)."""
+    """Design-column positions of each ``TermGroup`` (expression, columns by name, kind,
+    inputs)."""
     pos = {name: j for j, name in enumerate(names)}
     return tuple(
-        TermGroupRef(g.expression, g.kind, tuple(pos[c] for c in g.columns if c in pos))
+        TermGroupRef(
+            g.expression,
+            g.kind,
+            tuple(pos[c] for c in g.columns if c in pos),
+            tuple(getattr(g, "inputs", ()) or ()),
+        )
         for g in groups
     )
 

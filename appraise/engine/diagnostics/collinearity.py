@@ -46,6 +46,8 @@ class TermGroupRef:
     expression: str
     kind: str
     columns: tuple[int, ...]
+    inputs: tuple[str, ...] = ()
+    """Raw columns the term reads; terms sharing one are collinear by construction."""
 
 
 @dataclass(frozen=True)
@@ -258,9 +260,17 @@ def collinearity(
         )
         if flagged:
             shown = f"VIF {gvif:.1f}" if df == 1 else f"GVIF^(1/(2df)) {root:.2f}"
+            kin = [o.expression for o in groups if o is not g and set(o.inputs) & set(g.inputs)]
+            why = (
+                f"; partly by construction, as it reads the same inputs as "
+                f"{', '.join(repr(k) for k in kin)}: the joint effect of those terms is still "
+                "estimated well"
+                if kin
+                else ""
+            )
             warnings.append(
                 f"'{g.expression}' is largely explained by the other terms ({shown}; "
-                f"{rule}): its coefficient is unstable"
+                f"{rule}): its own coefficient is unstable{why}"
             )
     cond = condition_number(X, names, condition_threshold, qr)
     if cond.exceeds:

@@ -240,12 +240,24 @@ def flag_sales(
     rows: Sequence[int] | np.ndarray,
     sale_ids: Sequence[str | None],
 ) -> tuple[SaleFlag, ...]:
-    """Sales beyond any cut-off, most influential (largest Cook's distance) first."""
+    """Sales beyond any cut-off, most influential (largest Cook's distance) first.
+
+    The comparisons are vectorised; only flagged sales are visited one by one.
+    """
     h, t, d, f = infl.leverage, infl.student_external, infl.cooks_distance, infl.dffits
+    own = ~infl.has_loo
+    with np.errstate(invalid="ignore"):
+        high_h = ~own & (h > limits.leverage)
+        far = ~own & (np.abs(t) > limits.student)
+        cook = ~own & (d > limits.cooks)
+        moved = ~own & np.isfinite(limits.dffits) & (np.abs(f) > limits.dffits)
+    any_flag = own | high_h | far | cook | moved
+    ranked = np.flatnonzero(any_flag)
+    ranked = ranked[np.argsort(-np.nan_to_num(d[ranked], nan=np.inf), kind="stable")]
     flags = []
-    for i in range(infl.n):
+    for i in ranked:
         found: list[Finding] = []
-        if not np.isfinite(infl.loo_error[i]):
+        if own[i]:
             found.append(
                 Finding(
                     "own_fit",
@@ -255,46 +267,42 @@ def flag_sales(
                     "category level): it cannot be checked against the others",
                 )
             )
-        else:
-            if h[i] > limits.leverage:
-                found.append(
-                    Finding(
-                        "leverage",
-                        float(h[i]),
-                        limits.leverage,
-                        f"unusual attributes (leverage {h[i]:.3f} > {limits.leverage:.3f})",
-                    )
+        if high_h[i]:
+            found.append(
+                Finding(
+                    "leverage",
+                    float(h[i]),
+                    limits.leverage,
+                    f"unusual attributes (leverage {h[i]:.3f} > {limits.leverage:.3f})",
                 )
-            if abs(t[i]) > limits.student:
-                found.append(
-                    Finding(
-                        "outlier",
-                        float(t[i]),
-                        limits.student,
-                        f"price far from the model (studentized residual "
-                        f"{t[i]:+.2f}, limit ±{limits.student:g})",
-                    )
+            )
+        if far[i]:
+            found.append(
+                Finding(
+                    "outlier",
+                    float(t[i]),
+                    limits.student,
+                    f"price far from the model (studentized residual "
+                    f"{t[i]:+.2f}, limit ±{limits.student:g})",
                 )
-            if d[i] > limits.cooks:
-                found.append(
-                    Finding(
-                        "cooks",
-                        float(d[i]),
-                        limits.cooks,
-                        f"moves the coefficients (Cook's distance {d[i]:.3g} > {limits.cooks:.3g})",
-                    )
+            )
+        if cook[i]:
+            found.append(
+                Finding(
+                    "cooks",
+                    float(d[i]),
+                    limits.cooks,
+                    f"moves the coefficients (Cook's distance {d[i]:.3g} > {limits.cooks:.3g})",
                 )
-            if np.isfinite(limits.dffits) and abs(f[i]) > limits.dffits:
-                found.append(
-                    Finding(
-                        "dffits",
-                        float(f[i]),
-                        limits.dffits,
-                        f"moves its own fitted value (DFFITS {f[i]:+.3f}, "
-                        f"limit ±{limits.dffits:.3f})",
-                    )
+            )
+        if moved[i]:
+            found.append(
+                Finding(
+                    "dffits",
+                    float(f[i]),
+                    limits.dffits,
+                    f"moves its own fitted value (DFFITS {f[i]:+.3f}, limit ±{limits.dffits:.3f})",
                 )
-        if found:
-            flags.append(SaleFlag(i, int(rows[i]), sale_ids[i], tuple(found)))
-    order = np.nan_to_num(d, nan=np.inf)
-    return tuple(sorted(flags, key=lambda fl: -order[fl.position]))
+            )
+        flags.append(SaleFlag(int(i), int(rows[i]), sale_ids[i], tuple(found)))
+    return tuple(flags)
