@@ -122,7 +122,7 @@ def build_worksheet(
             new_page=True,
         )
     )
-    sections.append(Section("stamp", "Reproducibility", (_stamp(fit, model_sha, when),)))
+    sections.append(Section("stamp", "Reproducibility", _stamp(fit, model_sha, when)))
     sections.append(
         Section("appendix-exclusions", "Appendix: excluded sales", _exclusion_blocks(fit), True)
     )
@@ -203,7 +203,6 @@ def _data_blocks(fit: Any) -> tuple:
     )
     rows = [
         ("Source file", PurePath(str(src.path)).name),
-        ("SHA-256 of the file", str(src.sha256)),
         ("Rows read", f"{src.rows_in_file:,}"),
         ("Rows used in the fit", f"{fit.n:,}"),
         (
@@ -213,7 +212,8 @@ def _data_blocks(fit: Any) -> tuple:
         ),
         ("Area unit", str(fit.sales.area_unit)),
     ]
-    blocks: list = [Facts(tuple(rows))]
+    # Hashes go on lines of their own: beside a label they would not fit and would wrap.
+    blocks: list = [Facts(tuple(rows)), Paragraph(f"SHA-256 of the file: {src.sha256}")]
     notes = tuple(str(n) for n in getattr(fit.sales, "notes", ()) or ())
     if notes:
         blocks.append(Notice("note", notes, "How the file was read"))
@@ -229,7 +229,6 @@ def _model_blocks(fit: Any, model_sha: str) -> tuple:
             ("Intercept", "yes" if spec.intercept else "no"),
             ("Interval level", level_text(spec.level)),
             ("Standard errors", COV_TYPE_TEXT.get(fit.cov_type, str(fit.cov_type))),
-            ("Model file hash (SHA-256)", model_sha),
         )
     )
     rows = []
@@ -242,7 +241,7 @@ def _model_blocks(fit: Any, model_sha: str) -> tuple:
         columns=("Expression", "Kind", "Design columns", "Reference level"),
         rows=tuple(rows),
     )
-    blocks: list = [facts, features]
+    blocks: list = [facts, Paragraph(f"SHA-256 of the model: {model_sha}"), features]
     if spec.derived:
         blocks.append(
             Table(
@@ -386,12 +385,12 @@ def _warnings(fit: Any, valuation: Any) -> list[str]:
     return list(seen)
 
 
-def _stamp(fit: Any, model_sha: str, when: datetime) -> Facts:
+def _stamp(fit: Any, model_sha: str, when: datetime) -> tuple:
     import numpy
     import pandas
     import statsmodels
 
-    return Facts(
+    versions = Facts(
         (
             ("Prepared", when.isoformat(sep=" ")),
             ("appraise", __version__),
@@ -399,9 +398,12 @@ def _stamp(fit: Any, model_sha: str, when: datetime) -> Facts:
             ("numpy", numpy.__version__),
             ("pandas", pandas.__version__),
             ("statsmodels", statsmodels.__version__),
-            ("Data file SHA-256", str(fit.sales.source.sha256)),
-            ("Model file SHA-256", model_sha),
         )
+    )
+    return (
+        versions,
+        Paragraph(f"SHA-256 of the data file: {fit.sales.source.sha256}"),
+        Paragraph(f"SHA-256 of the model: {model_sha}"),
     )
 
 
