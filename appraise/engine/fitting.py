@@ -339,7 +339,11 @@ def fit_model(
         y=y,
         price=price,
         rows=frame[ROW_COLUMN].to_numpy(dtype=int),
-        sale_ids=tuple(sale_id(i) for i in range(n)),
+        sale_ids=(
+            tuple(None if pd.isna(v) else str(v) for v in frame[id_col].tolist())
+            if id_col is not None and id_col in frame.columns
+            else (None,) * n
+        ),
         excluded=tuple(sorted((*sales.excluded, *excluded), key=lambda e: e.row)),
         terms=terms,
         params=np.asarray(res.params, dtype=float),
