@@ -62,9 +62,10 @@ import pandas as pd
 
 from .. import __version__
 from .errors import AppraiseError, WorkfileError
+from .importing import load_sales
 from .modelspec import ModelSpec, model_from_dict
 from .roles import RoleMap
-from .sales import Exclusion, SalesTable
+from .sales import ROW_COLUMN, Exclusion, SalesTable
 from .settings import ImportSettings
 
 FORMAT_NAME = "appraise-workfile"
@@ -531,7 +532,7 @@ def candidate_sales_paths(state: WorkfileState) -> list[Path]:
     if state.sales_path is not None:
         rel = Path(state.sales_path)
         if not rel.is_absolute() and state.location is not None:
-            rel = Path(state.location).expanduser().resolve().parent / rel
+            rel = (Path(state.location).expanduser().resolve().parent / rel).resolve()
         out.append(rel)
     if state.sales_absolute_path is not None:
         out.append(Path(state.sales_absolute_path))
@@ -557,8 +558,6 @@ def restore(state: WorkfileState) -> Restored:
         SHA-256 differs from the recorded one (naming both); a user exclusion
         names a row the sales do not have, or a row whose sale id changed.
     """
-    from .importing import load_sales  # the importer is only needed here
-
     src = state.location
     settings = import_settings_from_dict(state.import_settings, source=src)
     roles = RoleMap(columns=dict(state.roles))
@@ -584,7 +583,7 @@ def restore(state: WorkfileState) -> Restored:
             if found is not None
             else f"the sales file was not found ({', '.join(str(p) for p in tried) or 'no path'})"
         )
-        sales = _load_embedded(embedded, settings, roles, load_sales)
+        sales = _load_embedded(embedded, settings, roles)
         original = str(tried[-1]) if tried else embedded.name
         sales = replace(
             sales,
@@ -615,7 +614,7 @@ def restore(state: WorkfileState) -> Restored:
     return Restored(sales, spec, dict(state.subject), exclusions)
 
 
-def _load_embedded(embedded: EmbeddedSales, settings, roles, load_sales) -> SalesTable:
+def _load_embedded(embedded: EmbeddedSales, settings: ImportSettings, roles: RoleMap) -> SalesTable:
     with tempfile.TemporaryDirectory(prefix="appraise-") as folder:
         tmp = Path(folder) / embedded.name
         tmp.write_bytes(embedded.data)
@@ -623,8 +622,6 @@ def _load_embedded(embedded: EmbeddedSales, settings, roles, load_sales) -> Sale
 
 
 def _restore_exclusions(state: WorkfileState, sales: SalesTable) -> tuple[Exclusion, ...]:
-    from .sales import ROW_COLUMN
-
     frame = sales.frame
     id_col = sales.roles.column("sale_id")
     ids: dict[int, str | None] = {}

@@ -13,6 +13,7 @@ import datetime as dt
 import hashlib
 import json
 import os
+import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -23,6 +24,7 @@ import pytest
 
 from appraise.engine.errors import WorkfileError
 from appraise.engine.modelspec import ModelSpec
+from appraise.engine.settings import ImportSettings
 from appraise.engine.workfile import (
     SCHEMA_VERSION,
     EmbeddedSales,
@@ -270,3 +272,179 @@ def test_missing_workfile_and_non_utf8_are_clear_errors(tmp_path):
     bad.write_bytes(b'{"format": "\xff"}')
     with pytest.raises(WorkfileError, match="not UTF-8"):
         load_workfile(bad)
+
+
+# --- restoring against real sales: the sample data through the real importer -------------------
+
+SAMPLE = Path(__file__).resolve().parents[2] / "sample_data"
+
+
+def _valuation(
+    folder: Path, *, embed: bool, exclude_row: int = 120, sales_name="ashcombe_sales.csv"
+):
+    """Read, fit and value the sample as the app does; return what a workfile is made from."""
+    from appraise.engine.fitting import fit_model
+    from appraise.engine.importing import load_sales
+    from appraise.engine.modelspec import load_model
+    from appraise.engine.sales import Exclusion
+    from appraise.engine.subject import read_subject
+    from appraise.engine.valuation import value_subject
+    from appraise.engine.workfile import make_state
+
+    data = folder / "data"
+    data.mkdir(parents=True, exist_ok=True)
+    sales_path = data / sales_name
+    shutil.copyfile(SAMPLE / sales_name, sales_path)
+    settings = ImportSettings()
+    sales = load_sales(sales_path, settings)
+    spec = load_model(SAMPLE / "ashcombe_model.toml")
+    subject = json.loads((SAMPLE / "subject.json").read_text(encoding="utf-8"))
+    excl = (Exclusion(exclude_row, None, "sold between relatives", source="user"),)
+    fit = fit_model(sales, spec, user_exclusions=excl)
+    val = value_subject(fit, read_subject(subject, sales, settings))
+    work = folder / "work"
+    work.mkdir(exist_ok=True)
+    wpath = work / "ashcombe.appraise.json"
+    state = make_state(
+        sales=sales,
+        spec=spec,
+        subject=subject,
+        import_settings=settings,
+        user_exclusions=excl,
+        settings={"page_size": "A4"},
+        fit=fit,
+        valuation=val,
+        workfile_path=wpath,
+        embed=embed,
+    )
+    save_workfile(wpath, state)
+    return wpath, sales_path, fit, val
+
+
+def _reopen(wpath: Path):
+    from appraise.engine.fitting import fit_model
+    from appraise.engine.subject import read_subject
+    from appraise.engine.valuation import value_subject
+    from appraise.engine.workfile import import_settings_from_dict, restore
+
+    state = load_workfile(wpath)
+    sales, spec, subject, excl = restore(state)
+    settings = import_settings_from_dict(state.import_settings)
+    fit = fit_model(sales, spec, user_exclusions=excl)
+    val = value_subject(fit, read_subject(subject, sales, settings))
+    return state, sales, fit, val
+
+
+def test_reopening_reproduces_every_number_exactly(tmp_path):
+    from appraise.engine.workfile import check_reproduced
+
+    wpath, sales_path, fit, val = _valuation(tmp_path, embed=False)
+    doc = json.loads(wpath.read_text())
+    # stored relative to the workfile (path arithmetic by os.path, independently)
+    assert doc["sales"]["path"] == Path(os.path.relpath(sales_path, wpath.parent)).as_posix()
+    assert doc["sales"]["path"] == "../data/ashcombe_sales.csv"
+    assert doc["sales"]["sha256"] == hashlib.sha256(sales_path.read_bytes()).hexdigest()
+    assert doc["sales"]["embedded"] is None
+
+    state, sales, fit2, val2 = _reopen(wpath)
+    assert check_reproduced(state, fit2, val2) == []
+    # same machine, same code: bit-for-bit the same numbers
+    assert np.array_equal(fit2.params, fit.params)
+    assert fit2.rows.tolist() == fit.rows.tolist()
+    assert (val2.estimate, val2.low, val2.high) == (val.estimate, val.low, val.high)
+    assert [e.row for e in fit2.excluded if e.source == "user"] == [120]
+
+
+def test_the_workfile_and_its_sales_can_move_together(tmp_path):
+    wpath, _, _, val = _valuation(tmp_path / "before", embed=False)
+    shutil.move(tmp_path / "before", tmp_path / "after")
+    _, sales, _, val2 = _reopen(tmp_path / "after" / "work" / wpath.name)
+    assert (
+        Path(sales.source.path).resolve()
+        == (tmp_path / "after" / "data" / "ashcombe_sales.csv").resolve()
+    )
+    assert val2.estimate == val.estimate
+
+
+def test_a_changed_sales_file_is_refused_naming_both_hashes(tmp_path):
+    from appraise.engine.workfile import restore
+
+    wpath, sales_path, _, _ = _valuation(tmp_path, embed=False)
+    before = hashlib.sha256(sales_path.read_bytes()).hexdigest()
+    text = sales_path.read_text(encoding="utf-8")
+    sales_path.write_text(text.replace('"$307,500"', '"$308,500"', 1), encoding="utf-8")
+    after = hashlib.sha256(sales_path.read_bytes()).hexdigest()
+    assert before != after
+    with pytest.raises(WorkfileError) as info:
+        restore(load_workfile(wpath))
+    assert before in str(info.value) and after in str(info.value)
+    assert info.value.file == str(sales_path.resolve())
+
+
+def test_a_missing_sales_file_is_refused_naming_it(tmp_path):
+    from appraise.engine.workfile import restore
+
+    wpath, sales_path, _, _ = _valuation(tmp_path, embed=False)
+    sales_path.unlink()
+    with pytest.raises(WorkfileError) as info:
+        restore(load_workfile(wpath))
+    assert str(sales_path.resolve()) in str(info.value)
+    assert "does not embed" in str(info.value)
+
+
+@pytest.mark.parametrize("damage", ["delete", "change"])
+def test_embedded_sales_stand_in_for_a_missing_or_changed_file(tmp_path, damage):
+    from appraise.engine.workfile import check_reproduced
+
+    wpath, sales_path, _, val = _valuation(tmp_path, embed=True)
+    original = hashlib.sha256(sales_path.read_bytes()).hexdigest()
+    if damage == "delete":
+        sales_path.unlink()
+    else:
+        sales_path.write_text("Sale ID,Sale Price\nX,1\n", encoding="utf-8")
+    state, sales, fit2, val2 = _reopen(wpath)
+    assert check_reproduced(state, fit2, val2) == []
+    assert val2.estimate == val.estimate
+    assert sales.source.sha256 == original
+    note = sales.notes[-1]
+    assert note.startswith("sales read from the copy embedded in the workfile")
+    if damage == "change":
+        assert hashlib.sha256(sales_path.read_bytes()).hexdigest() in note
+
+
+def test_an_embedded_workbook_is_read_as_a_workbook(tmp_path):
+    wpath, sales_path, _, val = _valuation(tmp_path, embed=True, sales_name="ashcombe_sales.xlsx")
+    sales_path.unlink()
+    state, sales, _, val2 = _reopen(wpath)
+    assert state.embedded_sales.name == "ashcombe_sales.xlsx"
+    assert sales.source.format == "xlsx"
+    assert val2.estimate == val.estimate
+
+
+def test_check_reproduced_reports_numbers_beyond_one_in_a_billion(tmp_path):
+    from appraise.engine.workfile import check_reproduced
+
+    wpath, _, fit, val = _valuation(tmp_path, embed=False)
+    doc = json.loads(wpath.read_text())
+    r2 = doc["last_results"]["fit"]["r2"]
+    doc["last_results"]["fit"]["r2"] = r2 * (1 + 1e-6)
+    est = doc["last_results"]["valuation"]["estimate"]
+    doc["last_results"]["valuation"]["estimate"] = est * (1 + 1e-12)  # within tolerance
+    doc["last_results"]["fit"]["terms"][3]["name"] = "renamed"
+    wpath.write_text(json.dumps(doc))
+    diffs = check_reproduced(load_workfile(wpath), fit, val)
+    assert len(diffs) == 2, diffs
+    assert diffs[0].startswith("fit.r2: stored ")
+    assert diffs[1].startswith('fit.terms[3].name: stored "renamed"')
+
+
+def test_a_user_exclusion_of_a_row_the_sales_lack_is_refused(tmp_path):
+    from appraise.engine.workfile import restore
+
+    wpath, _, _, _ = _valuation(tmp_path, embed=False)
+    doc = json.loads(wpath.read_text())
+    doc["user_exclusions"][0]["row"] = 52  # excluded at import (blank price, sample README)
+    wpath.write_text(json.dumps(doc))
+    with pytest.raises(WorkfileError) as info:
+        restore(load_workfile(wpath))
+    assert info.value.row == 52
