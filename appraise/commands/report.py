@@ -65,6 +65,9 @@ def run(args: argparse.Namespace) -> int:
     out = Path(args.output)
     if out.suffix.lower() != ".pdf":
         raise ReportError("the output file should end in .pdf", file=str(out))
+    for target in (out, *(Path(x) for x in (args.html,) if x)):
+        if not target.parent.is_dir():  # fail before the fit, not after it
+            raise ReportError("the folder does not exist", file=str(target))
     sales, _, fit = fit_from_args(args)
     subject = read_subject_from_args(args, sales)
     valuation = value_subject(fit, subject, args.level)
