@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 from collections.abc import Sequence
 
@@ -75,6 +76,11 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("appraise: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # The reader went away (``appraise data ... | head``): stop quietly, as Unix tools do.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":  # pragma: no cover
