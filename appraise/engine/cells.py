@@ -38,6 +38,8 @@ MISSING_MARKERS: frozenset[str] = frozenset(
 
 def is_missing(value: object) -> bool:
     """True for ``None``, NaN/NaT and texts in :data:`MISSING_MARKERS`."""
+    if type(value) is str:
+        return value.strip().lower() in MISSING_MARKERS
     if value is None:
         return True
     if isinstance(value, str):
@@ -172,8 +174,18 @@ def parse_number(value: object, *, decimal: DecimalMark = ".", currency_symbol: 
     return v
 
 
+_PLAIN_NUMBER = {".": re.compile(r"-?\d+(?:\.\d*)?"), ",": re.compile(r"-?\d+(?:,\d*)?")}
+_DIGITS_AND_SEPARATORS = re.compile(r"[\d.,'" + _GROUP_SPACES + "]+")
+
+
 def _read_number_text(text: str, decimal: DecimalMark, currency_symbol: str) -> float | None:
-    s = unicodedata.normalize("NFC", text).strip()
+    s = text.strip()
+    if _PLAIN_NUMBER[decimal].fullmatch(s):  # the common case, read at once
+        return float(s.replace(",", ".")) if decimal == "," else float(s)
+    if _DIGITS_AND_SEPARATORS.fullmatch(s):  # no sign, currency or unit to strip
+        plain = _plain_digits(s, decimal)
+        return None if plain is None else float(plain)
+    s = unicodedata.normalize("NFC", s)
     negative = False
     if s.startswith("(") and s.endswith(")"):
         negative, s = True, s[1:-1].strip()
@@ -455,7 +467,7 @@ def parse_flag(value: object) -> bool:
         return False
     if tokens and tokens[0] in _NEGATIONS and " ".join(tokens[1:]) in _YES:
         return False
-    raise ValueError(f"'{str(value).strip()}' is not a yes/no arm's-length flag")
+    raise ValueError(f"'{str(value).strip()}' is not yes or no")
 
 
 # --- text ----------------------------------------------------------------------------
@@ -466,6 +478,8 @@ def clean_text(value: object) -> str:
 
     Typed values become their plain text: ``107.0`` -> ``"107"``, a date -> ISO.
     """
+    if type(value) is str:
+        return value.strip()
     if isinstance(value, bool | np.bool_):
         return "yes" if value else "no"
     if isinstance(value, float | np.floating) and float(value).is_integer():

@@ -24,9 +24,8 @@ import hashlib
 import io
 import re
 import zipfile
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
-from datetime import datetime
 from functools import partial
 from pathlib import Path
 
@@ -93,12 +92,10 @@ def _columns_from_rows(
     rows: list[Sequence[object]], width: int, fill: object
 ) -> list[list[object]]:
     """Rows (possibly ragged) as ``width`` column lists, short rows padded with ``fill``."""
-    cols: list[list[object]] = [[] for _ in range(width)]
-    for row in rows:
-        n = len(row)
-        for j in range(width):
-            cols[j].append(row[j] if j < n else fill)
-    return cols
+    if not rows:
+        return [[] for _ in range(width)]
+    even = [r if len(r) == width else [*r[:width], *[fill] * (width - len(r))] for r in rows]
+    return [list(col) for col in zip(*even, strict=True)]
 
 
 def _blank(value: object) -> bool:
@@ -296,110 +293,137 @@ def header_area_unit(header: str) -> AreaUnit | None:
 # --- columns -------------------------------------------------------------------------
 
 
+@dataclass(frozen=True)
+class _Distinct:
+    """A column as codes into its distinct cells, so each distinct text is parsed once.
+
+    ``codes[i]`` is the index of cell ``i`` in ``uniques`` (-1 for None/NaN);
+    ``first[k]`` the position of the first cell holding ``uniques[k]`` and
+    ``counts[k]`` how many cells hold it; ``blank[k]`` says it is a missing marker.
+    """
+
+    codes: np.ndarray
+    uniques: list[object]
+    first: np.ndarray
+    counts: np.ndarray
+    blank: np.ndarray
+
+    @classmethod
+    def of(cls, values: Sequence[object]) -> _Distinct:
+        cells = np.empty(len(values), dtype=object)
+        cells[:] = values
+        codes, uniques = pd.factorize(cells, use_na_sentinel=True)
+        k = len(uniques)
+        seen = codes >= 0
+        _, at = np.unique(codes[seen], return_index=True)
+        first = np.flatnonzero(seen)[at]  # factorize numbers values by first appearance
+        counts = np.bincount(codes[seen], minlength=k)
+        blank = np.array([is_missing(u) for u in uniques], dtype=bool)
+        return cls(codes, list(uniques), first, counts, blank)
+
+    def spread(self, per_unique: np.ndarray, fill: object) -> np.ndarray:
+        """Per-cell array from one value per distinct cell; ``fill`` where there is no cell."""
+        return np.append(per_unique, np.array([fill], dtype=per_unique.dtype))[self.codes]
+
+    def parse(self, parse: Callable[[object], object]) -> tuple[list[object], list[str | None]]:
+        """``parse`` applied to each distinct non-missing cell: values and failure reasons."""
+        k = len(self.uniques)
+        values: list[object] = [None] * k
+        reasons: list[str | None] = [None] * k
+        for j, u in enumerate(self.uniques):
+            if self.blank[j]:
+                continue
+            try:
+                values[j] = parse(u)
+            except ValueError as exc:
+                reasons[j] = str(exc)
+        return values, reasons
+
+
 @dataclass
 class _Clean:
-    """One column after cleaning: values, cells that could not be read, counts for notes."""
+    """One column after cleaning.
+
+    ``values`` per cell; ``missing`` marks cells with nothing written (blank or
+    a marker such as "N/A"); ``bad`` marks cells written but unreadable, with
+    :meth:`reason` saying why. ``forms`` counts date forms, ``units`` area units
+    written in cells.
+    """
 
     kind: str  # "number" | "date" | "text" | "flag"
     values: np.ndarray
-    bad: dict[int, str] = field(default_factory=dict)  # position -> reason
-    forms: dict[str, int] = field(default_factory=dict)  # date forms seen -> count
-    units: dict[str, int] = field(default_factory=dict)  # area units written in cells -> count
+    missing: np.ndarray
+    bad: np.ndarray
+    codes: np.ndarray
+    reasons: list[str | None]
+    forms: dict[str, int] = field(default_factory=dict)
+    units: dict[str, int] = field(default_factory=dict)
 
+    def reason(self, i: int) -> str:
+        return str(self.reasons[self.codes[i]])
 
-def _memo(parse: Callable[[object], object]) -> Callable[[object], tuple[bool, object]]:
-    """``parse`` returning ``(ok, value or reason)``, cached for repeated texts."""
-    cache: dict[str, tuple[bool, object]] = {}
-
-    def run(v: object) -> tuple[bool, object]:
-        if isinstance(v, str):
-            hit = cache.get(v)
-            if hit is None:
-                try:
-                    hit = (True, parse(v))
-                except ValueError as exc:
-                    hit = (False, str(exc))
-                cache[v] = hit
-            return hit
-        try:
-            return True, parse(v)
-        except ValueError as exc:
-            return False, str(exc)
-
-    return run
-
-
-def _number_parser(settings: ImportSettings):
-    return _memo(
-        lambda v: parse_number(
-            v, decimal=settings.decimal, currency_symbol=settings.currency_symbol
-        )
-    )
+    @classmethod
+    def build(
+        cls, kind: str, d: _Distinct, values: np.ndarray, reasons: list[str | None]
+    ) -> _Clean:
+        failed = np.array([r is not None for r in reasons] + [False], dtype=bool)
+        missing = np.append(d.blank, True)[d.codes]
+        return cls(kind, values, missing, failed[d.codes], d.codes, reasons)
 
 
 _LEADING_ZERO = re.compile(r"\s*0\d+\s*")
 
 
-def infer_kind(values: Sequence[object], settings: ImportSettings) -> str:
+def _number_parse(settings: ImportSettings) -> Callable[[object], float]:
+    return partial(parse_number, decimal=settings.decimal, currency_symbol=settings.currency_symbol)
+
+
+def infer_kind(values: Sequence[object] | _Distinct, settings: ImportSettings) -> str:
     """``"number"``, ``"date"`` or ``"text"`` for a column without a role.
 
     Number when nearly every non-missing cell reads as one (at most one bad
     cell in five, and more good than bad) and none is a code with a leading
     zero such as ``02134``; else date by the same rule; else text.
     """
-    present = [v for v in values if not is_missing(v)]
-    if not present:
+    d = values if isinstance(values, _Distinct) else _Distinct.of(values)
+    present = ~d.blank
+    n = int(d.counts[present].sum())
+    if n == 0:
         return "text"
-    n = len(present)
     allowed_bad = max(1, n // 5)
-    if not any(isinstance(v, str) and _LEADING_ZERO.fullmatch(v) for v in present):
-        number = _memo(
-            partial(
-                parse_number, decimal=settings.decimal, currency_symbol=settings.currency_symbol
-            )
+
+    def mostly(parse: Callable[[object], object]) -> bool:
+        _, reasons = d.parse(parse)
+        ok = int(
+            sum(c for c, r, p in zip(d.counts, reasons, present, strict=True) if p and r is None)
         )
-        ok = sum(number(v)[0] for v in present)
-        if n - ok <= allowed_bad and ok > n - ok:
-            return "number"
-    date = _memo(lambda v: parse_date(v, order="DMY"))  # any order: only the kind is asked
-    ok = sum(date(v)[0] for v in present)
-    if n - ok <= allowed_bad and ok > n - ok:
+        return n - ok <= allowed_bad and ok > n - ok
+
+    codes_like = any(isinstance(u, str) and _LEADING_ZERO.fullmatch(u) for u in d.uniques)
+    if not codes_like and mostly(_number_parse(settings)):
+        return "number"
+    if mostly(partial(parse_date, order="DMY")):  # any order: only the kind is asked here
         return "date"
     return "text"
 
 
-def _readable(
-    values: Sequence[object], parse: Callable[[object], object], col: _Clean
-) -> Iterator[tuple[int, object, object]]:
-    """``(position, cell, parsed)`` for each readable cell; unreadable ones go to ``col.bad``."""
-    run = _memo(parse)
-    for i, v in enumerate(values):
-        if is_missing(v):
-            continue
-        ok, got = run(v)
-        if ok:
-            yield i, v, got
-        else:
-            col.bad[i] = str(got)
-
-
 def _clean_floats(
-    values: Sequence[object], kind: str, parse: Callable[[object], object], area: bool = False
+    d: _Distinct, kind: str, parse: Callable[[object], object], area: bool = False
 ) -> _Clean:
-    """Numbers, or flags as 1.0/0.0: NaN where missing, reasons where unreadable."""
-    out = np.full(len(values), np.nan)
-    col = _Clean(kind, out)
-    for i, v, got in _readable(values, parse, col):
-        out[i] = float(got)
-        if area and isinstance(v, str):
-            unit = area_unit_of(v)
+    """Numbers, or flags as 1.0/0.0: NaN where missing or unreadable."""
+    parsed, reasons = d.parse(parse)
+    per_unique = np.array([np.nan if v is None else float(v) for v in parsed], dtype=float)
+    col = _Clean.build(kind, d, d.spread(per_unique, np.nan), reasons)
+    if area:
+        for u, r, c in zip(d.uniques, reasons, d.counts, strict=True):
+            unit = area_unit_of(u) if isinstance(u, str) and r is None else None
             if unit is not None:
-                col.units[unit] = col.units.get(unit, 0) + 1
+                col.units[unit] = col.units.get(unit, 0) + int(c)
     return col
 
 
 def _clean_dates(
-    values: Sequence[object],
+    d: _Distinct,
     settings: ImportSettings,
     serial_ok: bool,
     *,
@@ -407,18 +431,23 @@ def _clean_dates(
     column: str,
 ) -> _Clean:
     order = settings.date_order
-    out: list[datetime | None] = [None] * len(values)
-    col = _Clean("date", np.empty(0))
+    parsed, reasons = d.parse(partial(parse_date, order=order, serial_ok=serial_ok))
     first: dict[str, tuple[int, str]] = {}
-    date = partial(parse_date, order=order, serial_ok=serial_ok)
-    for i, v, got in _readable(values, date, col):
-        col.forms[got.form] = col.forms.get(got.form, 0) + 1
-        first.setdefault(got.form, (i, clean_text(v)))
-        out[i] = got.value
+    forms: dict[str, int] = {}
+    for j, reading in enumerate(parsed):
+        if reading is None:
+            continue
+        forms[reading.form] = forms.get(reading.form, 0) + int(d.counts[j])
+        if reading.form not in first or d.first[j] < first[reading.form][0]:
+            first[reading.form] = (int(d.first[j]), clean_text(d.uniques[j]))
     problem = date_order_problem(first, order)
     if problem is not None:
         raise DataError(problem[1], file=file, row=problem[0] + FIRST_DATA_ROW, column=column)
-    col.values = np.array(out, dtype="datetime64[ns]")
+    per_unique = np.array(
+        [None if r is None else r.value for r in parsed], dtype="datetime64[ns]"
+    ).reshape(-1)
+    col = _Clean.build("date", d, d.spread(per_unique, np.datetime64("NaT")), reasons)
+    col.forms = forms
     return col
 
 
@@ -460,13 +489,16 @@ def date_order_problem(first: dict[str, tuple[int, str]], order: str) -> tuple[i
     return None
 
 
-def _clean_texts(values: Sequence[object]) -> _Clean:
-    out = np.array([None if is_missing(v) else clean_text(v) for v in values], dtype=object)
-    return _Clean("text", out)
+def _clean_texts(d: _Distinct) -> _Clean:
+    per_unique = np.array(
+        [None if blank else clean_text(u) for u, blank in zip(d.uniques, d.blank, strict=True)],
+        dtype=object,
+    )
+    return _Clean.build("text", d, d.spread(per_unique, None), [None] * len(d.uniques))
 
 
 def _clean_column(
-    values: Sequence[object],
+    d: _Distinct,
     kind: str,
     settings: ImportSettings,
     *,
@@ -476,15 +508,12 @@ def _clean_column(
     column: str,
 ) -> _Clean:
     if kind == "number":
-        number = partial(
-            parse_number, decimal=settings.decimal, currency_symbol=settings.currency_symbol
-        )
-        return _clean_floats(values, kind, number, area)
+        return _clean_floats(d, kind, _number_parse(settings), area)
     if kind == "date":
-        return _clean_dates(values, settings, serial_ok, file=file, column=column)
+        return _clean_dates(d, settings, serial_ok, file=file, column=column)
     if kind == "flag":
-        return _clean_floats(values, kind, parse_flag)
-    return _clean_texts(values)
+        return _clean_floats(d, kind, parse_flag)
+    return _clean_texts(d)
 
 
 # --- the whole file ------------------------------------------------------------------
@@ -594,9 +623,10 @@ def load_sales(
     cleaned: dict[str, _Clean] = {}
     for name, values in zip(headers, raw.columns, strict=True):
         role = role_map.role_of(name)
-        kind = ROLE_KINDS[role] if role else infer_kind(values, settings)
+        d = _Distinct.of(values)
+        kind = ROLE_KINDS[role] if role else infer_kind(d, settings)
         cleaned[name] = _clean_column(
-            values,
+            d,
             kind,
             settings,
             serial_ok=raw.serial_dates,
@@ -620,7 +650,7 @@ def load_sales(
     )
     return SalesTable(
         frame=frame,
-        excluded=tuple(sorted(excluded, key=lambda e: e.row)),
+        excluded=tuple(excluded),
         roles=role_map,
         source=source,
         area_unit=settings.area_unit,
@@ -638,74 +668,87 @@ def _series(col: _Clean, used: np.ndarray) -> pd.Series:
 def _exclusions(
     raw: RawTable, headers: list[str], roles: RoleMap, cleaned: dict[str, _Clean]
 ) -> list[Exclusion]:
-    """One exclusion per unusable row, the first reason that applies."""
+    """One exclusion per unusable row: the first of these reasons that applies.
+
+    Long CSV row, empty row, price (unreadable, missing, not positive), sale
+    date (unreadable, missing), arm's-length flag (unreadable, "no"), then a
+    sale id already seen on a row that is used.
+    """
     n = raw.n_rows
-    price_col = roles.column("price")
-    date_col = roles.column("sale_date")
-    flag_col = roles.column("arms_length")
-    id_col = roles.column("sale_id")
     raw_of = dict(zip(headers, raw.columns, strict=True))
-    ids = cleaned[id_col].values if id_col else None
+    id_col = roles.column("sale_id")
+    ids = cleaned[id_col].values if id_col else np.full(n, None, dtype=object)
+    open_rows = np.ones(n, dtype=bool)
+    found: list[tuple[int, str, str | None]] = []
+
+    def take(mask: np.ndarray, reason: Callable[[int], str], column: str | None) -> None:
+        for i in np.flatnonzero(mask & open_rows):
+            found.append((int(i), reason(int(i)), column))
+        open_rows[mask] = False
+
+    long_rows = np.zeros(n, dtype=bool)
+    long_rows[list(raw.long_rows)] = True
     width = len(headers)
-    out: list[Exclusion] = []
-    first_of_id: dict[str, int] = {}
+    take(
+        long_rows,
+        lambda i: (
+            f"row has {raw.long_rows[i]} values but the header has {width} columns "
+            "(a value holding the delimiter may be missing its quotes)"
+        ),
+        None,
+    )
+    take(np.logical_and.reduce([c.missing for c in cleaned.values()]), lambda i: "empty row", None)
 
-    def sid(i: int) -> str | None:
-        return None if ids is None or ids[i] is None else str(ids[i])
-
-    for i in range(n):
-        row = i + FIRST_DATA_ROW
-        if i in raw.long_rows:
-            reason = (
-                f"row has {raw.long_rows[i]} values but the header has {width} columns "
-                "(a value holding the delimiter may be missing its quotes)"
-            )
-            out.append(Exclusion(row, None, reason, None))
-            continue
-        if all(is_missing(c[i]) for c in raw.columns):
-            out.append(Exclusion(row, None, "empty row", None))
-            continue
-        reason, column = _row_problem(i, raw_of, cleaned, price_col, date_col, flag_col)
-        if reason is None and ids is not None and sid(i) is not None:
-            key = sid(i)
-            if key in first_of_id:
-                reason = f"duplicate sale id '{key}' (first seen on row {first_of_id[key]})"
-                column = id_col
-            else:
-                first_of_id[key] = row
-        if reason is not None:
-            out.append(Exclusion(row, sid(i), reason, column))
-    return out
-
-
-def _row_problem(
-    i: int,
-    raw_of: dict[str, list[object]],
-    cleaned: dict[str, _Clean],
-    price_col: str,
-    date_col: str | None,
-    flag_col: str | None,
-) -> tuple[str | None, str | None]:
+    price_col = roles.column("price")
     price = cleaned[price_col]
-    if i in price.bad:
-        return f"price {price.bad[i]}", price_col
-    if np.isnan(price.values[i]):
-        return "price is missing", price_col
-    if price.values[i] <= 0:
-        return f"price '{_raw_text(raw_of[price_col][i])}' is not positive", price_col
+    take(price.bad, lambda i: f"price {price.reason(i)}", price_col)
+    take(price.missing, lambda i: "price is missing", price_col)
+    with np.errstate(invalid="ignore"):
+        not_positive = price.values <= 0
+    take(
+        not_positive,
+        lambda i: f"price '{_raw_text(raw_of[price_col][i])}' is not positive",
+        price_col,
+    )
+    date_col = roles.column("sale_date")
     if date_col is not None:
         dates = cleaned[date_col]
-        if i in dates.bad:
-            return f"sale date {dates.bad[i]}", date_col
-        if np.isnat(dates.values[i]):
-            return "sale date is missing", date_col
+        take(dates.bad, lambda i: f"sale date {dates.reason(i)}", date_col)
+        take(dates.missing, lambda i: "sale date is missing", date_col)
+    flag_col = roles.column("arms_length")
     if flag_col is not None:
         flags = cleaned[flag_col]
-        if i in flags.bad:
-            return f"arm's-length flag {flags.bad[i]}", flag_col
-        if flags.values[i] == 0.0:
-            return f"not an arm's-length sale ('{_raw_text(raw_of[flag_col][i])}')", flag_col
-    return None, None
+        take(flags.bad, lambda i: f"arm's-length flag {flags.reason(i)}", flag_col)
+        take(
+            flags.values == 0.0,
+            lambda i: f"not an arm's-length sale ('{_raw_text(raw_of[flag_col][i])}')",
+            flag_col,
+        )
+    if id_col is not None:
+        first_of_id: dict[str, int] = {}
+        repeats = np.zeros(n, dtype=bool)
+        for i in np.flatnonzero(open_rows & ~cleaned[id_col].missing):
+            key = str(ids[i])
+            if key in first_of_id:
+                repeats[i] = True
+            else:
+                first_of_id[key] = int(i) + FIRST_DATA_ROW
+        take(
+            repeats,
+            lambda i: (
+                f"duplicate sale id '{ids[i]}' (first seen on row {first_of_id[str(ids[i])]})"
+            ),
+            id_col,
+        )
+    return [
+        Exclusion(
+            i + FIRST_DATA_ROW,
+            None if i in raw.long_rows or ids[i] is None else str(ids[i]),
+            reason,
+            column,
+        )
+        for i, reason, column in sorted(found)
+    ]
 
 
 def _column_notes(
@@ -739,14 +782,14 @@ def _column_notes(
         if role in ("price", "sale_date"):
             pass  # their bad cells exclude the row; the exclusion says why
         elif role == "arms_length":
-            missing = int(np.count_nonzero(np.isnan(col.values) & used))
+            missing = int(np.count_nonzero(col.missing & used))
             if missing:
                 notes.append(
-                    f"{missing} used row{'s' if missing > 1 else ''} have no arm's-length flag "
+                    f"{missing} used row{'s have' if missing > 1 else ' has'} no arm's-length flag "
                     f"in '{name}'; kept as arm's-length sales"
                 )
         else:
-            bad = [(i, r) for i, r in sorted(col.bad.items()) if used[i]]
+            bad = [(i, col.reason(i)) for i in np.flatnonzero(col.bad & used)]
             if bad:
                 shown = "; ".join(f"row {i + FIRST_DATA_ROW}: {r}" for i, r in bad[:_NOTE_EXAMPLES])
                 more = len(bad) - _NOTE_EXAMPLES

@@ -1,0 +1,116 @@
+"""Property: every file row is used or excluded exactly once, for the reason it was built with.
+
+Rows are generated from labelled kinds of cells (a good price, a price with a
+letter in it, a blank date, a "No" flag, a repeated id...). The expected fate
+of each row follows from those labels and the documented order of reasons, not
+from parsing, so the check is independent of the parser.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import tempfile
+from pathlib import Path
+
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from appraise.engine.importing import load_sales
+from appraise.engine.sales import ROW_COLUMN
+
+HEADER = ["Sale ID", "Sale Price", "Sale Date", "Beds", "Arms Length"]
+
+GOOD_PRICES = st.integers(1, 5_000_000).flatmap(
+    lambda v: st.sampled_from([(f"${v:,}", v), (str(v), v), (f"{v:,}.00", v), (f"USD {v}", v)])
+)
+BAD_PRICES = st.sampled_from(["call agent", "$4l2,000", "412.500,00", "1,5"])
+NO_PRICES = st.sampled_from(["", "N/A", "-", "null"])
+NOT_POSITIVE = st.sampled_from(["0", "$0", "-5", "(1,200)"])
+
+price_cell = st.one_of(
+    GOOD_PRICES.map(lambda t: ("ok", t[0], float(t[1]))),
+    BAD_PRICES.map(lambda s: ("bad", s, None)),
+    NO_PRICES.map(lambda s: ("missing", s, None)),
+    NOT_POSITIVE.map(lambda s: ("nonpositive", s, None)),
+)
+date_cell = st.one_of(
+    st.dates().filter(lambda d: 1700 <= d.year <= 2200).map(lambda d: ("ok", d.isoformat())),
+    st.sampled_from(["", "n/a"]).map(lambda s: ("missing", s)),
+    st.sampled_from(["31/02/2024", "soon", "2024-13-01"]).map(lambda s: ("bad", s)),
+)
+flag_cell = st.sampled_from(
+    [("ok", "Yes"), ("ok", "arm's length"), ("ok", ""), ("no", "No"), ("no", "foreclosure"),
+     ("bad", "maybe")]
+)  # fmt: skip
+id_cell = st.sampled_from(["S-1", "S-2", "S-3", "S-4", "", "S-5"])
+beds_cell = st.sampled_from(["3", "2", "", "three"])
+
+
+@st.composite
+def sales_rows(draw):
+    kind = draw(st.sampled_from(["sale"] * 8 + ["empty", "long"]))
+    if kind == "empty":
+        return "empty", [""] * len(HEADER), None
+    price = draw(price_cell)
+    date = draw(date_cell)
+    flag = draw(flag_cell)
+    sid = draw(id_cell)
+    cells = [sid, price[1], date[1], draw(beds_cell), flag[1]]
+    if kind == "long":
+        return "long", [*cells, "spill"], None
+    return (price[0], date[0], flag[0], sid), cells, price[2]
+
+
+def expected_fate(rows) -> tuple[dict[int, str], dict[int, float]]:
+    """file row -> reason word for excluded rows; file row -> price for used rows."""
+    excluded: dict[int, str] = {}
+    used: dict[int, float] = {}
+    seen_ids: set[str] = set()
+    for i, (labels, _, price) in enumerate(rows):
+        row = i + 2
+        if labels in ("empty", "long"):
+            excluded[row] = labels
+            continue
+        p, d, f, sid = labels
+        if p != "ok":
+            excluded[row] = "price"
+        elif d != "ok":
+            excluded[row] = "sale date"
+        elif f == "no":
+            excluded[row] = "not an arm's-length sale"
+        elif f == "bad":
+            excluded[row] = "arm's-length flag"
+        elif sid and sid in seen_ids:
+            excluded[row] = "duplicate sale id"
+        else:
+            if sid:
+                seen_ids.add(sid)
+            used[row] = price
+    return excluded, used
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(sales_rows(), min_size=1, max_size=30))
+def test_every_row_is_used_or_excluded_once_for_its_reason(rows):
+    while rows and rows[-1][0] == "empty":  # blank rows after the last sale are not rows
+        rows = rows[:-1]
+    if not rows:
+        return
+    buf = io.StringIO()
+    csv.writer(buf).writerows([HEADER] + [cells for _, cells, _ in rows])
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "sales.csv"
+        path.write_text(buf.getvalue(), encoding="utf-8")
+        table = load_sales(path)
+
+    assert table.source.rows_in_file == len(rows)
+    assert len(table.frame) + len(table.excluded) == table.source.rows_in_file
+    excluded, used = expected_fate(rows)
+    got_excluded = {e.row: e.reason for e in table.excluded}
+    assert set(got_excluded) == set(excluded)
+    for row, word in excluded.items():
+        expected_start = {"empty": "empty row", "long": "row has 6 values"}.get(word, word)
+        assert got_excluded[row].startswith(expected_start), (row, got_excluded[row])
+    got_used = dict(zip(table.frame[ROW_COLUMN], table.frame["Sale Price"], strict=True))
+    assert got_used == used
