@@ -26,14 +26,7 @@ import numpy as np
 import pandas as pd
 import pyqtgraph as pg
 from PySide6.QtCore import QPoint, QTimer
-from PySide6.QtWidgets import (
-    QDialogButtonBox,
-    QInputDialog,
-    QLabel,
-    QMenu,
-    QVBoxLayout,
-    QWidget,
-)
+from PySide6.QtWidgets import QLabel, QMenu, QVBoxLayout, QWidget
 
 from appraise.engine.errors import AppraiseError
 from appraise.engine.sales import ROW_COLUMN, Exclusion, SalesTable
@@ -57,6 +50,7 @@ from .plot_items import (
     subject_label,
     subject_marker,
 )
+from .sales_view import exclude_with_reason
 
 if TYPE_CHECKING:
     from appraise.engine.fitting import FitResult
@@ -647,35 +641,8 @@ class PlotsView(QWidget):
         self.sale_menu(row).exec(screen_pos)
 
     def ask_exclusion(self, row: int) -> bool:
-        """Ask why the sale is left out; exclude it when a reason is given."""
-        record = self.session.sale_record(row) or {}
-        id_col = self.session.sales.roles.column("sale_id") if self.session.sales else None
-        sid = record.get(id_col) if id_col else None
-        who = f"sale {sid} (file row {row})" if sid is not None else f"the sale at file row {row}"
-        dialog = QInputDialog(self)
-        dialog.setObjectName("excludeSaleDialog")
-        dialog.setWindowTitle("Exclude a sale")
-        dialog.setLabelText(f"Why is {who} left out of the model?")
-        dialog.setTextValue("")
-        buttons = dialog.findChild(QDialogButtonBox)
-
-        def need_text(text: str) -> None:
-            if buttons is not None:
-                ok = buttons.button(QDialogButtonBox.StandardButton.Ok)
-                if ok is not None:
-                    ok.setEnabled(bool(text.strip()))
-
-        dialog.textValueChanged.connect(need_text)
-        dialog.show()  # the buttons exist once shown
-        buttons = dialog.findChild(QDialogButtonBox)
-        need_text("")
-        if not dialog.exec():
-            return False
-        reason = dialog.textValue().strip()
-        if not reason:
-            return False
-        self.session.exclude_sale(row, reason)
-        return True
+        """Ask why the sale is left out (the sales table's own dialog); exclude it if told."""
+        return exclude_with_reason(self, self.session, row)
 
 
 def _clip(text: str, width: int = 90) -> str:

@@ -326,3 +326,142 @@ def test_plots_say_what_is_missing_instead_of_drawing_nothing(qapp, hprice1):
         assert any(words in t for t in texts), texts
         assert fig.scatters == []
     assert isinstance(build_location_plot(fit), pg.PlotItem)
+
+
+# --- the view, following a real session on the invented sample ---------------------------------
+
+
+def _popup_then_dialog(qtbot, action_text: str, reason: str | None) -> list[str]:
+    """Pick ``action_text`` in the next popup menu, then answer the input dialog that follows."""
+    from PySide6.QtCore import QTimer
+    from PySide6.QtWidgets import QApplication, QInputDialog, QMenu
+
+    seen: list[str] = []
+
+    def answer_dialog() -> None:
+        dlg = QApplication.activeModalWidget()
+        if not isinstance(dlg, QInputDialog):
+            QTimer.singleShot(10, answer_dialog)
+            return
+        seen.append(dlg.labelText())
+        if reason is None:
+            dlg.reject()
+        else:
+            dlg.setTextValue(reason)
+            dlg.accept()
+
+    def pick() -> None:
+        menu = QApplication.activePopupWidget()
+        if not isinstance(menu, QMenu):
+            QTimer.singleShot(10, pick)
+            return
+        seen.append(" | ".join(a.text() for a in menu.actions()))
+        act = next(a for a in menu.actions() if a.text() == action_text)
+        if reason is not None or action_text.startswith("Exclude"):
+            QTimer.singleShot(0, answer_dialog)
+        menu.setActiveAction(act)
+        act.trigger()
+        menu.close()
+
+    QTimer.singleShot(0, pick)
+    return seen
+
+
+@pytest.fixture
+def loaded_view(qtbot, session, sample_copy):
+    from conftest import WAIT_MS
+
+    from appraise.gui.plots import PlotsView
+
+    view = PlotsView(session)  # before the data: it must follow the session's signals
+    qtbot.addWidget(view)
+    view.resize(1200, 900)
+    view.show()
+    with qtbot.waitSignals([session.fitFinished, session.valuationChanged], timeout=WAIT_MS):
+        session.load_with_companions(sample_copy)
+    qtbot.waitUntil(lambda: session.pending_tasks == 0, timeout=WAIT_MS)
+    qtbot.waitUntil(
+        lambda: len(view.figures) == 4 and bool(view.figures[1].scatters), timeout=WAIT_MS
+    )
+    return view
+
+
+def _canvas_pixel(view, fig, x, y):
+    vb = fig.plot.getViewBox()
+    return view.canvas.mapFromScene(vb.mapViewToScene(QPointF(x, y)))
+
+
+def test_view_draws_the_sample_with_the_documented_counts(loaded_view):
+    price_area, model_sale, residuals, where = loaded_view.figures
+    # sample_data/README.md: 600 sales imported, 598 fitted; AV-0300 (row 301) lacks a
+    # living area, AV-0439 (row 440) a lot size, so the fit leaves both out
+    assert len(_drawn(price_area)) == 598
+    assert list(_drawn(price_area, excluded=True)) == [440]  # 301 has no area to draw
+    assert sorted(_drawn(where, excluded=True)) == [301, 440]
+    assert len(_drawn(model_sale)) == len(_drawn(residuals)) == 598
+    legend = loaded_view.legend.text()
+    for name in (
+        "Old Mill",
+        "Tanners Row",
+        "Heronmoor",
+        "Copper Hill",
+        "Westbrook Flats",
+        "Saltmarsh End",
+        "Subject",
+        "Excluded (2)",
+    ):
+        assert name in legend
+
+
+def test_selecting_a_sale_rings_it_in_every_plot(qtbot, loaded_view):
+    session = loaded_view.session
+    row = 200
+    with qtbot.waitSignal(session.selectionChanged, timeout=2000):
+        session.select_sale(row)
+    for fig in loaded_view.figures:
+        x, y = fig.ring.getData()
+        assert (float(x[0]), float(y[0])) == _drawn(fig)[row]
+
+
+def test_clicking_a_point_selects_that_sale(qtbot, loaded_view):
+    session = loaded_view.session
+    fig = loaded_view.figures[0]
+    drawn = _drawn(fig)
+    row = max(drawn, key=lambda r: drawn[r][0])  # the largest house, alone at the right
+    pos = _canvas_pixel(loaded_view, fig, *drawn[row])
+    with qtbot.waitSignal(session.selectionChanged, timeout=2000) as sig:
+        qtbot.mouseClick(loaded_view.canvas.viewport(), Qt.MouseButton.LeftButton, pos=pos)
+    assert sig.args == [row]
+    assert session.selection == row
+
+
+def test_right_click_excludes_with_a_reason_and_can_take_it_back(qtbot, loaded_view):
+    from conftest import WAIT_MS
+
+    session = loaded_view.session
+    fig = loaded_view.figures[0]
+    drawn = _drawn(fig)
+    row = max(drawn, key=lambda r: drawn[r][0])
+    pos = _canvas_pixel(loaded_view, fig, *drawn[row])
+    seen = _popup_then_dialog(qtbot, "Exclude this sale...", "sold with furniture")
+    with qtbot.waitSignal(session.fitFinished, timeout=WAIT_MS):
+        qtbot.mouseClick(loaded_view.canvas.viewport(), Qt.MouseButton.RightButton, pos=pos)
+    assert seen[0] == "Exclude this sale..."
+    assert f"(row {row})" in seen[1]
+    assert [(e.row, e.reason) for e in session.user_exclusions] == [(row, "sold with furniture")]
+    assert any(e.row == row and e.source == "user" for e in session.fit.excluded)
+    qtbot.waitUntil(lambda: row in _drawn(loaded_view.figures[0], excluded=True), timeout=WAIT_MS)
+    assert row not in _drawn(loaded_view.figures[2])  # gone from the used sales everywhere
+
+    # a cancelled dialog changes nothing
+    other = sorted(drawn)[10]
+    _popup_then_dialog(qtbot, "Exclude this sale...", None)
+    loaded_view.open_sale_menu(other, loaded_view.mapToGlobal(loaded_view.rect().center()))
+    assert [e.row for e in session.user_exclusions] == [row]
+
+    # the menu of an excluded sale offers to use it again
+    seen = _popup_then_dialog(qtbot, "Use this sale again", None)
+    with qtbot.waitSignal(session.fitFinished, timeout=WAIT_MS):
+        loaded_view.open_sale_menu(row, loaded_view.mapToGlobal(loaded_view.rect().center()))
+    assert seen[0] == "Use this sale again"
+    assert session.user_exclusions == ()
