@@ -8,7 +8,9 @@ and from made-up but typical listing-service headers.
 
 from __future__ import annotations
 
+import csv
 import json
+from pathlib import Path
 
 import pytest
 
@@ -24,21 +26,15 @@ from appraise.engine.roles import (
     suggest_roles,
 )
 
-SAMPLE_HEADERS = [
-    "Sale ID",
-    "Sale Price",
-    "Sale Date",
-    "Living Area (sq ft)",
-    "Lot Size (sq ft)",
-    "Year Built",
-    "Beds",
-    "Baths",
-    "Latitude",
-    "Longitude",
-    "Neighbourhood",
-    "Condition",
-    "Arms Length",
-]
+SAMPLE_SALES = Path(__file__).resolve().parents[2] / "sample_data" / "ashcombe_sales.csv"
+
+
+def _header_row(path: Path) -> list[str]:
+    with path.open(encoding="utf-8-sig", newline="") as fh:
+        return next(csv.reader(fh))
+
+
+SAMPLE_HEADERS = _header_row(SAMPLE_SALES)  # the export layout of the shipped sample
 
 
 def test_sample_layout_gets_every_role():
