@@ -11,7 +11,12 @@ from collections.abc import Iterable
 from pathlib import Path
 
 from ..engine.errors import ReportError
-from ..engine.exclusions import EXCLUSION_FIELDS, describe_exclusion, exclusion_records
+from ..engine.exclusions import (
+    EXCLUSION_FIELDS,
+    describe_exclusion,
+    exclusion_records,
+    reason_counts,
+)
 from ..engine.importing import UNIT_TEXT
 from ..engine.roles import ROLES, save_role_map
 from ..engine.sales import ColumnSummary, Exclusion, SalesTable
@@ -141,7 +146,8 @@ def format_data(table: SalesTable) -> str:
         f"Area unit: {UNIT_TEXT.get(table.area_unit, table.area_unit)}",
     ]
     if table.excluded:
-        lines += ["", f"Excluded rows ({len(table.excluded)}):"]
+        counts = ", ".join(f"{k} {n}" for k, n in reason_counts(table.excluded).items())
+        lines += ["", f"Excluded rows ({len(table.excluded)}; by reason: {counts}):"]
         lines += [f"  {describe_exclusion(e)}" for e in table.excluded]
     lines += ["", "Roles:"]
     width = max(len(r) for r in ROLES)

@@ -245,7 +245,12 @@ def _read_parquet(path: Path) -> RawTable:
         raise DataError(f"cannot be read as a Parquet file ({exc})", file=str(path)) from None
     if table.num_columns == 0:
         raise DataError("the Parquet file has no columns", file=str(path))
-    columns = [table.column(i).to_pylist() for i in range(table.num_columns)]
+    columns = []
+    for i in range(table.num_columns):
+        values = table.column(i).to_pylist()
+        if pa.types.is_nested(table.schema.field(i).type):  # lists and records: read as text
+            values = [None if v is None else str(v) for v in values]
+        columns.append(values)
     return RawTable(list(table.column_names), columns, "parquet")
 
 
@@ -299,7 +304,8 @@ class _Distinct:
 
     ``codes[i]`` is the index of cell ``i`` in ``uniques`` (-1 for None/NaN);
     ``first[k]`` the position of the first cell holding ``uniques[k]`` and
-    ``counts[k]`` how many cells hold it; ``blank[k]`` says it is a missing marker.
+    ``counts[k]`` how many cells hold it; ``blank[k]`` says it is a missing marker
+    (white space included).
     """
 
     codes: np.ndarray
@@ -307,6 +313,7 @@ class _Distinct:
     first: np.ndarray
     counts: np.ndarray
     blank: np.ndarray
+    void: np.ndarray  # per cell: nothing at all (None, NaN, white space), not even a marker
 
     @classmethod
     def of(cls, values: Sequence[object]) -> _Distinct:
@@ -319,7 +326,8 @@ class _Distinct:
         first = np.flatnonzero(seen)[at]  # factorize numbers values by first appearance
         counts = np.bincount(codes[seen], minlength=k)
         blank = np.array([is_missing(u) for u in uniques], dtype=bool)
-        return cls(codes, list(uniques), first, counts, blank)
+        void = np.array([_blank(u) for u in uniques] + [True], dtype=bool)[codes]
+        return cls(codes, list(uniques), first, counts, blank, void)
 
     def spread(self, per_unique: np.ndarray, fill: object) -> np.ndarray:
         """Per-cell array from one value per distinct cell; ``fill`` where there is no cell."""
@@ -344,8 +352,8 @@ class _Distinct:
 class _Clean:
     """One column after cleaning.
 
-    ``values`` per cell; ``missing`` marks cells with nothing written (blank or
-    a marker such as "N/A"); ``bad`` marks cells written but unreadable, with
+    ``values`` per cell; ``missing`` marks cells with no value (blank or a
+    marker such as "N/A"), ``void`` cells with nothing in them at all; ``bad`` marks cells written but unreadable, with
     :meth:`reason` saying why. ``forms`` counts date forms, ``units`` area units
     written in cells.
     """
@@ -353,6 +361,7 @@ class _Clean:
     kind: str  # "number" | "date" | "text" | "flag"
     values: np.ndarray
     missing: np.ndarray
+    void: np.ndarray
     bad: np.ndarray
     codes: np.ndarray
     reasons: list[str | None]
@@ -368,7 +377,7 @@ class _Clean:
     ) -> _Clean:
         failed = np.array([r is not None for r in reasons] + [False], dtype=bool)
         missing = np.append(d.blank, True)[d.codes]
-        return cls(kind, values, missing, failed[d.codes], d.codes, reasons)
+        return cls(kind, values, missing, d.void, failed[d.codes], d.codes, reasons)
 
 
 _LEADING_ZERO = re.compile(r"\s*0\d+\s*")
@@ -692,12 +701,12 @@ def _exclusions(
     take(
         long_rows,
         lambda i: (
-            f"row has {raw.long_rows[i]} values but the header has {width} columns "
+            f"too many values: {raw.long_rows[i]} in a row under {width} headers "
             "(a value holding the delimiter may be missing its quotes)"
         ),
         None,
     )
-    take(np.logical_and.reduce([c.missing for c in cleaned.values()]), lambda i: "empty row", None)
+    take(np.logical_and.reduce([c.void for c in cleaned.values()]), lambda i: "empty row", None)
 
     price_col = roles.column("price")
     price = cleaned[price_col]

@@ -75,6 +75,12 @@ def test_text_summary(capsys):
     code, out, _ = run(capsys, "data", str(MESSY))
     assert code == 0
     assert "Rows in file: 16   used: 4   excluded: 12" in out
+    # 12 exclusions in the fixture: 5 price, 1 sale date, 2 not at arm's length, 1 flag,
+    # 1 duplicate id, 1 empty row, 1 long row
+    assert (
+        "by reason: price 5, not an arm's-length sale 2, arm's-length flag 1, "
+        "duplicate sale id 1, empty row 1, sale date 1, too many values 1"
+    ) in out
     assert "row 4 (S-0103): price 'call agent' is not a number [Sale Price]" in out
     assert "row 11: empty row" in out
     assert "price        Sale Price" in out
