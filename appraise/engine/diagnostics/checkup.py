@@ -171,7 +171,7 @@ def diagnose_arrays(
         infl.resid, X, alpha=settings.alpha, response=response, cov_type=cov_type, qr=qr
     )
     loo = leave_one_out(infl, price, response=response, smearing=smearing, level=level)
-    folds = kfold(X, y, price, response=response, folds=settings.folds, seed=settings.seed)
+    folds = kfold(X, y, price, response=response, folds=settings.folds, seed=settings.seed, qr=qr)
     study = ratio_study(
         loo.price_prediction, price, trim=settings.trim, rows=rows, sale_ids=sale_ids
     )

@@ -31,8 +31,13 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
+from .decomposition import QRDecomposition, decompose
 from .influence import Influence
 from .plain import plain
+
+RANK_TOL = 1e-9
+"""Eigenvalue of :math:`Q_{train}'Q_{train}` below which the training folds are taken
+to have lost that direction of the design (the eigenvalues lie between 0 and 1)."""
 
 ESTIMABLE_TOL = 1e-8
 """Relative size of a held-out row's component outside the training rows' span above
@@ -184,8 +189,16 @@ def kfold(
     response: str,
     folds: int = 10,
     seed: int = 0,
+    qr: QRDecomposition | None = None,
 ) -> KFold:
-    """Fit on k-1 folds by least squares (SVD), predict the held-out fold in price units.
+    """Fit on k-1 folds by least squares, predict the held-out fold in price units.
+
+    Each fold is solved from the full decomposition :math:`X = QR` without touching
+    X again: with :math:`Q_T` the held-out rows of Q and
+    :math:`M = I - Q_T'Q_T = Q_{train}'Q_{train}` (p x p), the training fit's fitted
+    values are :math:`Q c` with :math:`c = M^{-1}(Q'y - Q_T'y_T)`. M is inverted
+    through its eigen-decomposition; an eigenvalue below ``RANK_TOL`` means the
+    training rows lost a direction of the design.
 
     A held-out sale whose row is not a combination of the training rows (its category
     level, say, is missing from the other folds) gets no prediction rather than a
@@ -194,25 +207,36 @@ def kfold(
     X = np.asarray(X, dtype=float)
     y = np.asarray(y, dtype=float)
     price = np.asarray(price, dtype=float)
-    n, p = X.shape
+    qr = decompose(X) if qr is None else qr
+    q = qr.q
+    n = q.shape[0]
     k = int(min(folds, n))
     fold = assign_folds(n, k, seed)
-    pred = np.full(n, np.nan)
+    qty = q.T @ y
+    # Visit the sales fold by fold as contiguous slices of a sorted copy.
+    order = np.argsort(fold, kind="stable")
+    qs, ys = q[order], y[order]
+    bounds = np.concatenate([[0], np.cumsum(np.bincount(fold, minlength=k))])
+    guess_sorted = np.full(n, np.nan)
+    eye = np.eye(q.shape[1])
     for f in range(k):
-        test = fold == f
-        train = ~test
-        u, s, vt = np.linalg.svd(X[train], full_matrices=False)
-        rank = int(np.sum(s > s[0] * max(X[train].shape) * np.finfo(float).eps))
-        coef = vt[:rank].T @ ((u[:, :rank].T @ y[train]) / s[:rank])
-        xt = X[test]
-        guess = xt @ coef
-        if rank < p:
-            outside = np.linalg.norm(xt @ vt[rank:].T, axis=1)
-            guess[outside > ESTIMABLE_TOL * np.linalg.norm(xt, axis=1)] = np.nan
+        blk = slice(bounds[f], bounds[f + 1])
+        qt, yt = qs[blk], ys[blk]
+        lam, vec = np.linalg.eigh(eye - qt.T @ qt)
+        keep = lam > RANK_TOL
+        g = vec.T @ (qty - qt.T @ yt)
+        c = vec[:, keep] @ (g[keep] / lam[keep])
+        guess = qt @ c
+        if not keep.all():
+            outside = np.linalg.norm(qt @ vec[:, ~keep], axis=1)
+            guess[outside > ESTIMABLE_TOL * np.linalg.norm(qt, axis=1)] = np.nan
         smear = 1.0
         if response == "log":
-            smear = float(np.mean(np.exp(y[train] - X[train] @ coef)))
-        pred[test] = to_price(guess, response, smear)
+            e = np.exp(ys - qs @ c)
+            smear = float((e.sum() - e[blk].sum()) / (n - (bounds[f + 1] - bounds[f])))
+        guess_sorted[blk] = to_price(guess, response, smear)
+    pred = np.empty(n)
+    pred[order] = guess_sorted
     return KFold(
         folds=k,
         seed=int(seed),
