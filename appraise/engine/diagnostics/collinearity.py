@@ -27,7 +27,7 @@ to a condition index above the threshold).
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 
 import numpy as np
 
@@ -56,7 +56,7 @@ class ColumnVIF:
     vif: float
 
     def to_dict(self) -> dict:
-        return plain({"name": self.name, "vif": self.vif})
+        return plain(asdict(self))
 
 
 @dataclass(frozen=True)

@@ -11,7 +11,7 @@ only models fitted on the same sales; a warning says when they were not.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, replace
+from dataclasses import asdict, dataclass, replace
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -36,7 +36,7 @@ class ModelRow:
     p: int
     loo_rmse: float
     kfold_rmse: float
-    mdape: float
+    loo_mdape: float
     adj_r2: float
     aic: float
     bic: float
@@ -47,26 +47,7 @@ class ModelRow:
     level: float
 
     def to_dict(self) -> dict:
-        return plain(
-            {
-                "label": self.label,
-                "rank": self.rank,
-                "response": self.response,
-                "n": self.n,
-                "p": self.p,
-                "loo_rmse": self.loo_rmse,
-                "kfold_rmse": self.kfold_rmse,
-                "loo_mdape": self.mdape,
-                "adj_r2": self.adj_r2,
-                "aic": self.aic,
-                "bic": self.bic,
-                "aic_price": self.aic_price,
-                "bic_price": self.bic_price,
-                "cod": self.cod,
-                "coverage": self.coverage,
-                "level": self.level,
-            }
-        )
+        return plain(asdict(self))
 
 
 @dataclass(frozen=True)
@@ -97,7 +78,7 @@ def _row(label: str, fit: FitResult, diag: Diagnostics) -> ModelRow:
         p=fit.p,
         loo_rmse=diag.loo.rmse_price,
         kfold_rmse=diag.kfold.rmse_price,
-        mdape=diag.loo.mdape,
+        loo_mdape=diag.loo.mdape,
         adj_r2=fit.adj_r2,
         aic=fit.aic,
         bic=fit.bic,

@@ -20,7 +20,7 @@ in a category level); it has no leave-one-out prediction and its measures are Na
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 
 import numpy as np
 
@@ -175,9 +175,7 @@ class Finding:
     text: str
 
     def to_dict(self) -> dict:
-        return plain(
-            {"code": self.code, "value": self.value, "limit": self.limit, "text": self.text}
-        )
+        return plain(asdict(self))
 
 
 @dataclass(frozen=True)
@@ -234,6 +232,12 @@ class SaleFlag:
         )
 
 
+OWN_FIT_TEXT = (
+    "alone fixes a coefficient (leverage 1, e.g. the only sale of a category level): it "
+    "cannot be checked against the others"
+)
+
+
 def flag_sales(
     infl: Influence,
     limits: Thresholds,
@@ -246,63 +250,32 @@ def flag_sales(
     """
     h, t, d, f = infl.leverage, infl.student_external, infl.cooks_distance, infl.dffits
     own = ~infl.has_loo
+    lev, stu, coo, dff = limits.leverage, limits.student, limits.cooks, limits.dffits
     with np.errstate(invalid="ignore"):
-        high_h = ~own & (h > limits.leverage)
-        far = ~own & (np.abs(t) > limits.student)
-        cook = ~own & (d > limits.cooks)
-        moved = ~own & np.isfinite(limits.dffits) & (np.abs(f) > limits.dffits)
-    any_flag = own | high_h | far | cook | moved
-    ranked = np.flatnonzero(any_flag)
+        # (sales hit, code, value per sale, limit, words)
+        checks = (
+            (own, "own_fit", h, 1.0, lambda v: OWN_FIT_TEXT),
+            (~own & (h > lev), "leverage", h, lev,
+             lambda v: f"unusual attributes (leverage {v:.3f} > {lev:.3f})"),
+            (~own & (np.abs(t) > stu), "outlier", t, stu,
+             lambda v: f"price far from the model (studentized residual {v:+.2f}, limit ±{stu:g})"),
+            (~own & (d > coo), "cooks", d, coo,
+             lambda v: f"moves the coefficients (Cook's distance {v:.3g} > {coo:.3g})"),
+            (~own & np.isfinite(dff) & (np.abs(f) > dff), "dffits", f, dff,
+             lambda v: f"moves its own fitted value (DFFITS {v:+.3f}, limit ±{dff:.3f})"),
+        )  # fmt: skip
+    ranked = np.flatnonzero(np.logical_or.reduce([c[0] for c in checks]))
     ranked = ranked[np.argsort(-np.nan_to_num(d[ranked], nan=np.inf), kind="stable")]
-    flags = []
-    for i in ranked:
-        found: list[Finding] = []
-        if own[i]:
-            found.append(
-                Finding(
-                    "own_fit",
-                    float(h[i]),
-                    1.0,
-                    "alone fixes a coefficient (leverage 1, e.g. the only sale of a "
-                    "category level): it cannot be checked against the others",
-                )
-            )
-        if high_h[i]:
-            found.append(
-                Finding(
-                    "leverage",
-                    float(h[i]),
-                    limits.leverage,
-                    f"unusual attributes (leverage {h[i]:.3f} > {limits.leverage:.3f})",
-                )
-            )
-        if far[i]:
-            found.append(
-                Finding(
-                    "outlier",
-                    float(t[i]),
-                    limits.student,
-                    f"price far from the model (studentized residual "
-                    f"{t[i]:+.2f}, limit ±{limits.student:g})",
-                )
-            )
-        if cook[i]:
-            found.append(
-                Finding(
-                    "cooks",
-                    float(d[i]),
-                    limits.cooks,
-                    f"moves the coefficients (Cook's distance {d[i]:.3g} > {limits.cooks:.3g})",
-                )
-            )
-        if moved[i]:
-            found.append(
-                Finding(
-                    "dffits",
-                    float(f[i]),
-                    limits.dffits,
-                    f"moves its own fitted value (DFFITS {f[i]:+.3f}, limit ±{limits.dffits:.3f})",
-                )
-            )
-        flags.append(SaleFlag(int(i), int(rows[i]), sale_ids[i], tuple(found)))
-    return tuple(flags)
+    return tuple(
+        SaleFlag(
+            int(i),
+            int(rows[i]),
+            sale_ids[i],
+            tuple(
+                Finding(code, float(vals[i]), float(limit), words(vals[i]))
+                for hit, code, vals, limit, words in checks
+                if hit[i]
+            ),
+        )
+        for i in ranked
+    )

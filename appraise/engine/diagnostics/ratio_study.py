@@ -30,7 +30,7 @@ single-property valuation practice (memory) and has no range in the standard.
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 
 import numpy as np
 from scipy import stats
@@ -231,7 +231,7 @@ class TrimmedSale:
     ratio: float
 
     def to_dict(self) -> dict:
-        return plain({"row": self.row, "sale_id": self.sale_id, "ratio": self.ratio})
+        return plain(asdict(self))
 
 
 @dataclass(frozen=True)

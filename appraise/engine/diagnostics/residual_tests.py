@@ -19,7 +19,7 @@ skewness and kurtosis (moments about the mean, divided by n); chi-squared(2).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 
 import numpy as np
 from scipy import stats
@@ -40,16 +40,7 @@ class BreuschPagan:
     f_p_value: float
 
     def to_dict(self) -> dict:
-        return plain(
-            {
-                "form": self.form,
-                "statistic": self.statistic,
-                "df": self.df,
-                "p_value": self.p_value,
-                "f_statistic": self.f_statistic,
-                "f_p_value": self.f_p_value,
-            }
-        )
+        return plain(asdict(self))
 
 
 @dataclass(frozen=True)
@@ -60,14 +51,7 @@ class JarqueBera:
     kurtosis: float
 
     def to_dict(self) -> dict:
-        return plain(
-            {
-                "statistic": self.statistic,
-                "p_value": self.p_value,
-                "skewness": self.skewness,
-                "kurtosis": self.kurtosis,
-            }
-        )
+        return plain(asdict(self))
 
 
 @dataclass(frozen=True)
