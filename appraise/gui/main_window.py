@@ -253,7 +253,7 @@ class MainWindow(QMainWindow):
         if s.sales is None:
             self.rows_label.setText("No sales loaded")
         else:
-            fit = s.fit if s.results_current else None
+            fit = s.fit if s.fit_current else None
             used = fit.n if fit is not None else s.sales.n_used
             left_out = s.sales.source.rows_in_file - used
             self.rows_label.setText(f"{used:,} sales used · {left_out:,} left out")

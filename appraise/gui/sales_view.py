@@ -154,7 +154,7 @@ class SalesTableModel(QAbstractTableModel):
         if sales is not None:
             why.update((e.row, e) for e in sales.excluded)
         fit = self._session.fit
-        if fit is not None and self._session.results_current:
+        if fit is not None and self._session.fit_current:
             why.update((e.row, e) for e in fit.excluded)
         why.update((e.row, e) for e in self._session.user_exclusions)
         self._reasons = [
@@ -301,7 +301,9 @@ class SalesView(QWidget):
         self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.table.verticalHeader().setVisible(False)
         self.table.verticalHeader().setDefaultSectionSize(self.table.fontMetrics().height() + 6)
-        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
+        header = self.table.horizontalHeader()
+        header.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
+        header.setResizeContentsPrecision(50)  # widths from the first rows, not all 50,000
         self.table.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
         self.table.customContextMenuRequested.connect(self._context_menu)
         self.table.selectionModel().currentRowChanged.connect(self._current_changed)
@@ -415,7 +417,7 @@ class ExclusionLogModel(QAbstractTableModel):
         entries: dict[int, Exclusion] = {}
         if s.sales is not None:
             entries.update((e.row, e) for e in s.sales.excluded)
-        if s.fit is not None and s.results_current:
+        if s.fit_current:
             entries.update((e.row, e) for e in s.fit.excluded)
         entries.update((e.row, e) for e in s.user_exclusions)
         self.entries = sorted(entries.values(), key=lambda e: e.row)

@@ -247,6 +247,16 @@ class Session(QObject):
         return self._loading is not None
 
     @property
+    def pending_tasks(self) -> int:
+        """Worker tasks started and not yet reported back (stale ones included)."""
+        return len(self._fit_tasks) + len(self._load_tasks)
+
+    @property
+    def fit_current(self) -> bool:
+        """The fit was made from the sales, model and exclusions as they are now."""
+        return self._fit is not None and self._fit_inputs == self._inputs()
+
+    @property
     def results_current(self) -> bool:
         """The fit (and valuation) were computed from the state as it is now."""
         return self._fit is not None and not self.is_fitting and self._fit_inputs == self._inputs()
@@ -256,7 +266,7 @@ class Session(QObject):
         for e in self._user_exclusions:
             if e.row == row:
                 return e
-        if self._fit is not None and self._fit_inputs == self._inputs():
+        if self.fit_current:
             for e in self._fit.excluded:
                 if e.row == row:
                     return e

@@ -131,6 +131,7 @@ class TaskSignals(QObject):
     Created on the UI thread; signals emitted from the pool thread are queued to it.
     """
 
+    started = Signal(int)
     stage = Signal(int, str, object)
     finished = Signal(int, object)
     failed = Signal(int, str)
@@ -154,6 +155,7 @@ class Task(QRunnable):
 
     def run(self) -> None:  # runs on the pool thread
         gen = self.generation
+        self.signals.started.emit(gen)
         try:
             result = self._job(lambda stage, payload: self.signals.stage.emit(gen, stage, payload))
         except AppraiseError as exc:
