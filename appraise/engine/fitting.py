@@ -271,24 +271,19 @@ def fit_model(
         )
     frame = frame.loc[~bad_price].reset_index(drop=True)
 
-    # Learn, build, drop rows the features cannot use, and learn again on what remains
-    # (a category level seen only in dropped rows must not get a column).
-    for _ in range(3):
-        design = learn_design(
-            spec.features, frame, derived=spec.derived, roles=sales.roles, intercept=spec.intercept
+    # learn_design learns category levels only from rows whose inputs are all usable, so
+    # one learn and one build settle both the design and the rows it can use.
+    design = learn_design(
+        spec.features, frame, derived=spec.derived, roles=sales.roles, intercept=spec.intercept
+    )
+    built = design.build(frame)
+    for pos, reason, column in built.problems:
+        excluded.append(
+            Exclusion(int(frame[ROW_COLUMN].iloc[pos]), sale_id(pos), reason, column, "model")
         )
-        built = design.build(frame)
-        if built.row_ok.all():
-            break
-        for pos, reason, column in built.problems:
-            excluded.append(
-                Exclusion(int(frame[ROW_COLUMN].iloc[pos]), sale_id(pos), reason, column, "model")
-            )
-        frame = frame.loc[built.row_ok].reset_index(drop=True)
-    else:  # pragma: no cover - learning on clean rows cannot create new problems twice
-        raise FitError("could not settle the set of usable sales", file=sales.source.path)
-
-    X = np.asarray(built.matrix, dtype=float)
+    ok = np.asarray(built.row_ok, dtype=bool)
+    frame = frame.loc[ok].reset_index(drop=True)
+    X = np.ascontiguousarray(np.asarray(built.matrix, dtype=float)[ok])
     names = design.names
     n, p = X.shape
     if n <= p:
