@@ -162,14 +162,27 @@ def scatter_chart(
     if legend is not None and not any(s.label for s in series):
         legend.hide()
 
-    from PySide6.QtWidgets import QApplication
-
-    QApplication.processEvents()  # let the layout settle before export
+    _settle_layout(plot)
     exporter = pg.exporters.ImageExporter(plot)
     exporter.parameters()["width"] = EXPORT_WIDTH
     image = exporter.export(toBytes=True)
     view.deleteLater()
     return _png_bytes(image)
+
+
+def _settle_layout(plot) -> None:
+    """Deliver the layout requests pending for the chart's items, and nothing else.
+
+    A full ``processEvents()`` would run the caller's other pending events (signals
+    from worker threads) in the middle of drawing. Each receiver is named: with
+    PySide6 6.12 on Python 3.11, ``sendPostedEvents(None, ...)`` drops a reference
+    to ``None`` per call and, called often enough, aborts the interpreter.
+    """
+    from PySide6.QtCore import QCoreApplication, QEvent, QObject
+
+    receivers = [plot, *(i for i in plot.scene().items() if isinstance(i, QObject))]
+    for obj in receivers:
+        QCoreApplication.sendPostedEvents(obj, QEvent.Type.LayoutRequest)
 
 
 def _png_bytes(image) -> bytes:
