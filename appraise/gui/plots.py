@@ -575,8 +575,17 @@ class PlotsView(QWidget):
 
     # --- drawing ---
     def schedule_redraw(self, *_args) -> None:
-        """Redraw once the current burst of signals is over."""
+        """Redraw once the current burst of signals is over; in a hidden tab, when shown."""
+        if self.window().isVisible() and not self.isVisible():
+            self._stale = True
+            return
         self._redraw_timer.start()
+
+    def showEvent(self, event) -> None:  # noqa: N802 (Qt's name)
+        super().showEvent(event)
+        if getattr(self, "_stale", False):
+            self._stale = False
+            self.redraw()
 
     def _current(self) -> tuple[FitResult | None, Valuation | None, SalesTable | None]:
         s = self.session
