@@ -94,14 +94,14 @@ class Actions(QObject):
             icon=sp.SP_MessageBoxInformation,
         )
 
-    def update_actions(self, session: Session, *, can_print: bool = False) -> None:
+    def update_actions(self, session: Session) -> None:
         """Enable exactly what makes sense in the session's current state."""
         has_data = session.sales is not None
         has_model = has_data and session.spec is not None
         self.save.setEnabled(has_model)
         self.save_as.setEnabled(has_model)
         self.refit.setEnabled(has_model)
-        self.print.setEnabled(can_print and session.fit is not None)
+        self.print.setEnabled(session.valuation is not None)
         row = session.selection
         used = has_data and row is not None and session.sale_record(row) is not None
         why = session.exclusion_for(row) if used else None

@@ -46,11 +46,9 @@ from .session import (
 from .settings_dialog import SettingsDialog
 from .subject_view import SubjectView
 
+from .worksheet_view import WorksheetView
+
 try:  # written in parallel by another helper; the guard goes once it has landed
-    from .worksheet_view import WorksheetView
-except ImportError:  # pragma: no cover
-    WorksheetView = None  # type: ignore[assignment,misc]
-try:
     from .diagnostics_view import DiagnosticsView
 except ImportError:  # pragma: no cover
     DiagnosticsView = None  # type: ignore[assignment,misc]
@@ -84,7 +82,7 @@ class MainWindow(QMainWindow):
         self.subject_view = SubjectView(session)
         self.subject_view.set_currency(prefs.get("currency_symbol"))
         self.plots_view = PlotsView(session)
-        self.worksheet_view = WorksheetView(session) if WorksheetView is not None else None
+        self.worksheet_view = WorksheetView(session, currency=prefs.get("currency_symbol"))
         self.diagnostics_view = DiagnosticsView(session) if DiagnosticsView is not None else None
 
         self.data_tabs = QTabWidget()
@@ -106,8 +104,7 @@ class MainWindow(QMainWindow):
         self.centre_tabs.addTab(self.plots_view, "&Plots")
         if self.diagnostics_view is not None:
             self.centre_tabs.addTab(self.diagnostics_view, "&Checks")
-        if self.worksheet_view is not None:
-            self.centre_tabs.addTab(self.worksheet_view, "&Worksheet")
+        self.centre_tabs.addTab(self.worksheet_view, "&Worksheet")
         self.setCentralWidget(self.centre_tabs)
 
         # status bar
@@ -176,8 +173,10 @@ class MainWindow(QMainWindow):
             model_menu.addAction(text, slot)
 
         view_menu = bar.addMenu("&View")
-        view_menu.addAction(self.data_dock.toggleViewAction())
-        view_menu.addAction(self.subject_dock.toggleViewAction())
+        for dock, text in ((self.data_dock, "&Data panel"), (self.subject_dock, "S&ubject panel")):
+            toggle = dock.toggleViewAction()
+            toggle.setText(text)
+            view_menu.addAction(toggle)
 
         help_menu = bar.addMenu("&Help")
         help_menu.addAction(a.caution)
@@ -245,7 +244,7 @@ class MainWindow(QMainWindow):
         )
 
     def update_actions(self) -> None:
-        self.actions_.update_actions(self.session, can_print=self.worksheet_view is not None)
+        self.actions_.update_actions(self.session)
 
     # --- status bar ---------------------------------------------------------------------
     def update_status(self) -> None:
@@ -414,9 +413,8 @@ class MainWindow(QMainWindow):
         return True
 
     def print_worksheet(self) -> None:
-        if self.worksheet_view is not None:
-            self.centre_tabs.setCurrentWidget(self.worksheet_view)
-            self.worksheet_view.print_worksheet()
+        self.centre_tabs.setCurrentWidget(self.worksheet_view)
+        self.worksheet_view.print_worksheet()
 
     # --- editing ------------------------------------------------------------------------
     def find(self) -> None:
@@ -444,6 +442,7 @@ class MainWindow(QMainWindow):
 
     def apply_preferences(self) -> None:
         self.subject_view.set_currency(self.prefs.get("currency_symbol"))
+        self.worksheet_view.set_currency(self.prefs.get("currency_symbol"))
         self.session.set_import_settings(self.prefs.import_settings(self.session.import_settings))
 
     # --- help -------------------------------------------------------------------------------

@@ -123,8 +123,17 @@ class SalesTableModel(QAbstractTableModel):
             frame = sales.frame
             self._headers = [c for c in frame.columns if c != ROW_COLUMN]
             k = len(sales.excluded)
+            id_col = sales.roles.column("sale_id")
             self._values = [
-                np.concatenate([frame[c].to_numpy(dtype=object), np.full(k, None, dtype=object)])
+                np.concatenate(
+                    [
+                        frame[c].to_numpy(dtype=object),
+                        # the importer keeps no values of the rows it leaves out, but their id
+                        np.array([e.sale_id for e in sales.excluded], dtype=object)
+                        if c == id_col
+                        else np.full(k, None, dtype=object),
+                    ]
+                )
                 for c in self._headers
             ]
             self._rows = np.concatenate(
@@ -258,18 +267,11 @@ class SalesTableModel(QAbstractTableModel):
 
 
 def _stable_sort(keys: pd.Series, descending: bool) -> np.ndarray:
-    """Order of ``keys``, missing values last in either direction."""
-    missing = keys.isna().to_numpy()
-    present = np.flatnonzero(~missing)
-    vals = keys.to_numpy()[present]
-    idx = (
-        np.argsort(vals, kind="stable")
-        if vals.dtype != object
-        else np.array(sorted(range(len(vals)), key=lambda j: vals[j]), dtype=int)
+    """Positions of ``keys`` in order, ties in their original order, missing values last."""
+    ordered = keys.reset_index(drop=True).sort_values(
+        ascending=not descending, kind="stable", na_position="last"
     )
-    if descending:
-        idx = idx[::-1]
-    return np.concatenate([present[idx], np.flatnonzero(missing)]).astype(int)
+    return ordered.index.to_numpy(dtype=int)
 
 
 class SalesView(QWidget):

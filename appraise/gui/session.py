@@ -163,7 +163,8 @@ class Session(QObject):
         self._pool = QThreadPool(self)
         self._pool.setMaxThreadCount(2)  # a stale fit may finish while the new one runs
         self._generation = 0
-        self._fitting = False
+        self._fitting = False  # a fit is on its way
+        self._busy = False  # a fit or a revaluation is on its way
         self._fit_tasks: dict[int, Task] = {}
         self._fit_signals = TaskSignals(self)
         self._fit_signals.stage.connect(self._on_fit_stage)
@@ -239,8 +240,13 @@ class Session(QObject):
 
     @property
     def is_fitting(self) -> bool:
-        """A refit is waiting for its delay or running."""
+        """A refit is waiting for its delay or running, and its fit has not come back yet."""
         return self._fitting or self._refit_timer.isActive()
+
+    @property
+    def is_busy(self) -> bool:
+        """Any refit or revaluation is waiting or running (results may still change)."""
+        return self._busy or self._refit_timer.isActive()
 
     @property
     def is_loading(self) -> bool:
@@ -259,7 +265,7 @@ class Session(QObject):
     @property
     def results_current(self) -> bool:
         """The fit (and valuation) were computed from the state as it is now."""
-        return self._fit is not None and not self.is_fitting and self._fit_inputs == self._inputs()
+        return self.fit_current and not self.is_busy
 
     def exclusion_for(self, row: int) -> Exclusion | None:
         """Why file row ``row`` is left out (import, model or user), or None if it is used."""
@@ -584,7 +590,8 @@ class Session(QObject):
         task = Task(gen, lambda report: run_fit_job(job, report), self._fit_signals)
         self._fit_tasks[gen] = task
         self._pending_inputs = inputs
-        self._fitting = True
+        self._busy = True
+        self._fitting = reuse is None
         if reuse is None:
             self.fitStarted.emit()
         self._pool.start(task)
@@ -596,6 +603,7 @@ class Session(QObject):
         if gen != self._generation:
             return
         if stage == "fit":
+            self._fitting = False
             self._fit = payload
             self._fit_inputs = self._pending_inputs
             self._fit_error = None
@@ -619,13 +627,13 @@ class Session(QObject):
     def _on_fit_done(self, gen: int, _result: object) -> None:
         self._fit_tasks.pop(gen, None)
         if gen == self._generation:
-            self._fitting = False
+            self._fitting = self._busy = False
 
     def _on_fit_failed(self, gen: int, message: str) -> None:
         self._fit_tasks.pop(gen, None)
         if gen != self._generation:
             return
-        self._fitting = False
+        self._fitting = self._busy = False
         if self._fit is not None and self._fit_inputs == self._pending_inputs:
             # the fit itself succeeded; what came after it (diagnostics) did not
             self._diagnostics = None
