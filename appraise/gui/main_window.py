@@ -45,7 +45,6 @@ from .session import (
 )
 from .settings_dialog import SettingsDialog
 from .subject_view import SubjectView
-
 from .worksheet_view import WorksheetView
 
 try:  # written in parallel by another helper; the guard goes once it has landed
