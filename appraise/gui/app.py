@@ -37,9 +37,6 @@ def run(
     from .session import Session
 
     app = QApplication.instance() or QApplication(list(argv) if argv else ["appraise"])
-    from appraise.qtrender.qtapp import guard_none_refcount
-
-    guard_none_refcount()  # PySide6 6.12 on Python 3.11 loses a reference to None per call
     app.setOrganizationName(ORGANISATION)
     app.setApplicationName(APPLICATION)
     app.setApplicationDisplayName("appraise")

@@ -13,9 +13,6 @@ from PySide6.QtCore import QSettings  # noqa: E402
 from appraise.gui.main_window import MainWindow  # noqa: E402
 from appraise.gui.preferences import Preferences  # noqa: E402
 from appraise.gui.session import Session  # noqa: E402
-from appraise.qtrender.qtapp import guard_none_refcount  # noqa: E402
-
-guard_none_refcount()  # PySide6 6.12 on Python 3.11 loses a reference to None per Qt call
 
 SAMPLE = Path(__file__).resolve().parents[2] / "sample_data"
 WAIT_MS = 20_000  # generous: a loaded CI machine must not fail a correct test

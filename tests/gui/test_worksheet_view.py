@@ -14,10 +14,7 @@ from pypdf import PdfReader  # noqa: E402
 
 from appraise.cli import main  # noqa: E402
 from appraise.gui.worksheet_view import EMPTY_TEXT, WorksheetView  # noqa: E402
-from appraise.qtrender.qtapp import guard_none_refcount  # noqa: E402
 from appraise.report.cautions import SHORT_CAUTION  # noqa: E402
-
-guard_none_refcount()  # the worksheet draws many charts; see the function's docstring
 
 STAMP = re.compile(r"Prepared:? \d{4}-\d{2}-\d{2} \d{2}:\d{2}:\d{2}[+-]\d{2}:\d{2}")
 
