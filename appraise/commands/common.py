@@ -11,11 +11,9 @@ from pathlib import Path
 from ..engine.errors import AppraiseError
 from ..engine.modelspec import ModelSpec, load_model
 from ..engine.settings import ImportSettings
+from ..report.cautions import ONE_LINE_CAUTION
 
-SHORT_CAUTION = (
-    "Statistical estimate from the sales supplied, not an appraisal. A licensed or certified "
-    "appraiser's opinion, the applicable professional standards and local law govern."
-)
+SHORT_CAUTION = ONE_LINE_CAUTION  # the one wording the CLI, PDF footer and app share
 
 
 def add_sales_arguments(parser: argparse.ArgumentParser) -> None:
