@@ -92,6 +92,7 @@ class MainWindow(QMainWindow):
         self.subject_dock = self._dock(
             "Subject", self.subject_view, Qt.DockWidgetArea.RightDockWidgetArea
         )
+        self.resizeDocks([self.data_dock, self.subject_dock], [460, 320], Qt.Orientation.Horizontal)
 
         model_split = QSplitter(Qt.Orientation.Vertical)
         model_split.addWidget(self.model_editor)

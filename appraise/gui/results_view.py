@@ -45,6 +45,19 @@ def log_effect(coef: float) -> float:
     return 100.0 * math.expm1(coef)
 
 
+def effect_text(name: str, coef: float) -> str:
+    """What a coefficient of a log-price model means, in words a reader can use.
+
+    A term ``log(x)`` has an elasticity: 1% more ``x``, about ``b``% more price.
+    Any other term: one more unit changes price by 100 (e^b − 1)%.
+    """
+    if name == "Intercept":
+        return ""
+    if name.startswith("log(") and name.endswith(")"):
+        return f"{coef:+.3f}% per 1% more"
+    return f"{log_effect(coef):+.2f}% per unit"
+
+
 class ResultsView(QWidget):
     """Coefficients (estimate, standard error, t, p, confidence interval) and fit statistics."""
 
@@ -125,7 +138,7 @@ class ResultsView(QWidget):
         ci = percent(COEF_CI_LEVEL)
         headers = ["Term", "Estimate", "Std. error", "t", "p", f"{ci} low", f"{ci} high"]
         if fit.response == "log":
-            headers.append("% change per unit")
+            headers.append("Effect on price")
         self.model.setHorizontalHeaderLabels(headers)
         for t in fit.terms:
             cells = [
@@ -138,7 +151,7 @@ class ResultsView(QWidget):
                 number(t.ci_high),
             ]
             if fit.response == "log":
-                cells.append("" if t.name == "Intercept" else f"{log_effect(t.coef):+.2f}%")
+                cells.append(effect_text(t.name, t.coef))
             items = []
             for j, text in enumerate(cells):
                 item = QStandardItem(text)

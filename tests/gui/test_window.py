@@ -11,9 +11,10 @@ import shutil
 
 import numpy as np
 import pandas as pd
+import pytest
 from conftest import SAMPLE, WAIT_MS, open_and_wait
 from numpy.testing import assert_allclose
-from PySide6.QtCore import QMimeData, QPointF, QSettings, Qt, QTimer, QUrl
+from PySide6.QtCore import QMimeData, QPoint, QPointF, QSettings, Qt, QTimer, QUrl
 from PySide6.QtGui import QDragEnterEvent, QDropEvent
 from PySide6.QtWidgets import QApplication, QComboBox, QDialog, QInputDialog, QMenu
 from sklearn.preprocessing import PolynomialFeatures
@@ -25,6 +26,7 @@ from appraise.gui.model_editor import (
     ratio_expression,
 )
 from appraise.gui.preferences import DEFAULTS, MAX_RECENT, Preferences
+from appraise.gui.results_view import effect_text
 from appraise.gui.settings_dialog import SettingsDialog
 
 
@@ -202,8 +204,8 @@ def _drop(window, path) -> tuple[bool, QDropEvent, QMimeData]:
     """Drag ``path`` over the window; the drop event to send and its data (kept alive)."""
     mime = QMimeData()
     mime.setUrls([QUrl.fromLocalFile(str(path))])
-    enter = QDragEnterEvent(
-        QPointF(20, 20),
+    enter = QDragEnterEvent(  # PySide6 6.12 flags this, the only constructor it has, deprecated
+        QPoint(20, 20),
         Qt.DropAction.CopyAction,
         mime,
         Qt.MouseButton.LeftButton,
@@ -220,6 +222,7 @@ def _drop(window, path) -> tuple[bool, QDropEvent, QMimeData]:
     return enter.isAccepted(), drop, mime
 
 
+@pytest.mark.filterwarnings("ignore:Function.*QDragEnterEvent:DeprecationWarning")
 def test_dropping_a_sales_file_opens_it(qtbot, window, tmp_path):
     path = tmp_path / "town.csv"  # no model or subject beside it: nothing to ask
     shutil.copy(SAMPLE / "ashcombe_sales.csv", path)
@@ -234,6 +237,7 @@ def test_dropping_a_sales_file_opens_it(qtbot, window, tmp_path):
     qtbot.waitUntil(lambda: s.pending_tasks == 0, timeout=WAIT_MS)
 
 
+@pytest.mark.filterwarnings("ignore:Function.*QDragEnterEvent:DeprecationWarning")
 def test_other_files_are_refused_at_the_door(window, tmp_path):
     path = tmp_path / "notes.txt"
     path.write_text("not sales", encoding="utf-8")
@@ -304,3 +308,13 @@ def test_status_bar_names_counts_fit_and_caution(qtbot, window, sample_copy):
     assert window.fit_label.text() == f"n=598  R²={fit.r2:.3f}  σ={fit.sigma:.4g}"
     assert window.caution_label.text() == "Statistical estimate — not an appraisal"
     assert np.isfinite(fit.r2)
+
+
+def test_effect_column_reads_log_coefficients():
+    # 100 (e^b - 1): an indicator with b = ln 1.1 raises price by exactly 10%
+    # (Halvorsen and Palmquist 1980, Am. Econ. Rev. 70(3), recalled from memory)
+    assert effect_text("region[Heronmoor]", np.log(1.1)) == "+10.00% per unit"
+    assert effect_text("months", np.log(0.995)) == "-0.50% per unit"
+    # a log-log term is an elasticity: b% more price per 1% more of the input
+    assert effect_text("log(living_area)", 0.592) == "+0.592% per 1% more"
+    assert effect_text("Intercept", 7.6) == ""
