@@ -22,7 +22,7 @@ from typing import Any
 from PySide6.QtCore import QObject, QRunnable, Signal
 
 from appraise.engine.diagnostics import diagnose
-from appraise.engine.errors import AppraiseError
+from appraise.engine.errors import AppraiseError, SubjectError
 from appraise.engine.fitting import FitResult, fit_model
 from appraise.engine.importing import load_sales
 from appraise.engine.modelspec import ModelSpec, load_model
@@ -116,11 +116,11 @@ def read_subject_file(path: Path) -> dict:
     try:
         data = json.loads(Path(path).read_text(encoding="utf-8-sig"))
     except OSError as exc:
-        raise AppraiseError(f"cannot read subject file: {exc.strerror}", file=str(path)) from None
+        raise SubjectError(f"cannot read subject file: {exc.strerror}", file=str(path)) from None
     except json.JSONDecodeError as exc:
-        raise AppraiseError(f"not valid JSON: {exc.msg}", file=str(path), row=exc.lineno) from None
+        raise SubjectError(f"not valid JSON: {exc.msg}", file=str(path), row=exc.lineno) from None
     if not isinstance(data, dict):
-        raise AppraiseError("a subject file holds one JSON object of attributes", file=str(path))
+        raise SubjectError("a subject file holds one JSON object of attributes", file=str(path))
     return data
 
 
