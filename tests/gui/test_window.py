@@ -318,3 +318,29 @@ def test_effect_column_reads_log_coefficients():
     # a log-log term is an elasticity: b% more price per 1% more of the input
     assert effect_text("log(living_area)", 0.592) == "+0.592% per 1% more"
     assert effect_text("Intercept", 7.6) == ""
+
+
+def test_context_menu_excludes_with_a_reason(qtbot, window, sample_copy):
+    s = window.session
+    open_and_wait(qtbot, window, sample_copy, companions=True)
+    table, model = window.sales_view.table, window.sales_view.model
+    rect = table.visualRect(model.index(model.position_of(30), 2))
+
+    def choose_exclude() -> None:
+        menu = QApplication.activePopupWidget()
+        if menu is None:
+            QTimer.singleShot(10, choose_exclude)
+            return
+        texts = [a.text() for a in menu.actions()]
+        assert texts == ["E&xclude this sale…", "&Use this sale again"]
+        assert not menu.actions()[1].isEnabled()  # it is not left out yet
+        _when_modal(lambda dlg: (dlg.setTextValue("sold with furniture"), dlg.accept()))
+        menu.actions()[0].trigger()
+        menu.close()
+
+    QTimer.singleShot(0, choose_exclude)
+    with qtbot.waitSignal(s.fitFinished, timeout=WAIT_MS):
+        table.customContextMenuRequested.emit(rect.center())
+    assert s.exclusion_for(30).reason == "sold with furniture"
+    assert s.exclusion_for(30).source == "user"
+    qtbot.waitUntil(lambda: s.pending_tasks == 0, timeout=WAIT_MS)
