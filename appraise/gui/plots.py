@@ -41,6 +41,7 @@ from .plot_items import (
     TEXT_COLOUR,
     GroupedAxis,
     SaleScatter,
+    interval_bar,
     money_axis,
     reference_line,
     region_styles,
@@ -368,16 +369,8 @@ def price_area_figure(
     _scatter_sales(sp, pts, pts.area, pts.price, currency)
     area0 = subject_value(valuation.subject if valuation else None, pts.roles, "living_area")
     if valuation is not None and area0 is not None:
-        bar = pg.ErrorBarItem(
-            x=np.array([area0]),
-            y=np.array([valuation.estimate]),
-            top=np.array([valuation.high - valuation.estimate]),
-            bottom=np.array([valuation.estimate - valuation.low]),
-            beam=0,
-            pen=pg.mkPen(SUBJECT_COLOUR, width=2),
-        )
-        bar.setZValue(29)
-        plot.addItem(bar)
+        for bar in interval_bar(area0, valuation.estimate, valuation.low, valuation.high):
+            plot.addItem(bar)
         plot.addItem(subject_marker(area0, valuation.estimate))
         plot.addItem(subject_label(area0, valuation.estimate))
     sp.select(selected)
@@ -525,7 +518,7 @@ def legend_html(pts: SalePoints | None) -> str:
         parts.append(f'<span style="color:{SINGLE_COLOUR}">●</span>&nbsp;Sales')
     if pts is not None and (~pts.used).any():
         parts.append(
-            f'<span style="color:{EXCLUDED_COLOUR}">○</span>&nbsp;Excluded '
+            f'<span style="color:{EXCLUDED_COLOUR}">○</span>&nbsp;Excluded&nbsp;'
             f"({int((~pts.used).sum())})"
         )
     parts.append(f'<span style="color:{SUBJECT_COLOUR}">★</span>&nbsp;<b>Subject</b>')
