@@ -107,6 +107,11 @@ def test_json_is_plain_and_complete(windsor_fit):
     assert back["overall"]["ratio_study"]["trim"] is True
     flagged_rows = {f["row"] for f in back["flagged"]}
     assert flagged_rows == {s["row"] for s in back["sales"] if s["flags"]}
+    # the per-sale values are the arrays, NaN as null
+    infl = diag.influence
+    assert_allclose([s["cooks_distance"] for s in back["sales"]], infl.cooks_distance, rtol=0)
+    short = diag.to_dict(sales=False)
+    assert "sales" not in short and short == {k: v for k, v in back.items() if k != "sales"}
 
 
 def test_sale_alone_in_a_level_is_reported_not_hidden(hprice1):
