@@ -9,9 +9,11 @@
 
 The ``build_*_plot`` functions are pure: results in, a ``pg.PlotItem`` out, no
 session, so the worksheet's figure renderer can draw the very same plots off
-screen. :class:`PlotsView` builds them for a :class:`~appraise.gui.session.Session`,
-redraws them when the session's results change, and turns clicks into the
-session's selection and right clicks into exclusions (with a reason).
+screen; each takes ``points=`` (from :func:`sale_points`) so that a caller
+drawing several computes them once. :class:`PlotsView` builds them for a
+:class:`~appraise.gui.session.Session`, redraws them when the session's results
+change, and turns clicks into the session's selection and right clicks into
+exclusions (with a reason).
 """
 
 from __future__ import annotations
@@ -244,23 +246,93 @@ def subject_value(
 
 @dataclass(eq=False)
 class SalePlot:
-    """A built plot, plus what a view needs to highlight a sale in it."""
+    """A built plot, plus what a view needs to highlight a sale or move the subject in it.
+
+    ``kind`` is one of "price_area", "model_sale", "residuals", "location";
+    ``rows``/``xy`` are the file rows drawn (sorted) and their positions.
+    """
 
     plot: pg.PlotItem
+    kind: str
+    roles: Mapping[str, str] = field(default_factory=dict)
     scatters: list[SaleScatter] = field(default_factory=list)
-    positions: dict[int, tuple[float, float]] = field(default_factory=dict)
+    rows: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
+    xy: np.ndarray = field(default_factory=lambda: np.zeros((0, 2)))
     ring: pg.ScatterPlotItem | None = None
+    subject_items: list = field(default_factory=list)
+
+    def position(self, row: int) -> tuple[float, float] | None:
+        """Where the sale at file row ``row`` is drawn, or None."""
+        i = int(np.searchsorted(self.rows, row))
+        if i < len(self.rows) and self.rows[i] == row:
+            return float(self.xy[i, 0]), float(self.xy[i, 1])
+        return None
 
     def select(self, row: int | None) -> bool:
         """Ring the sale at file row ``row`` (None clears); False when it is not drawn here."""
         if self.ring is None:
             return False
-        xy = None if row is None else self.positions.get(int(row))
+        xy = None if row is None else self.position(int(row))
         if xy is None:
             self.ring.setData(x=[], y=[])
             return False
         self.ring.setData(x=[xy[0]], y=[xy[1]])
         return True
+
+    def set_subject(
+        self, valuation: Valuation | None, subject: Mapping[str, Any] | None = None
+    ) -> None:
+        """Draw the subject for ``valuation`` (or, on the map, the entered ``subject``),
+        replacing what was drawn for the previous one."""
+        for item in self.subject_items:
+            self.plot.removeItem(item)
+        self.subject_items = []
+        if self.ring is None:  # nothing drawn: the plot holds a message
+            return
+        for item in _SUBJECT_PAINTERS[self.kind](self, valuation, subject):
+            self.plot.addItem(item)
+            self.subject_items.append(item)
+
+
+def _subject_on_price_area(sp: SalePlot, valuation, subject) -> list:
+    area0 = subject_value(valuation.subject if valuation else None, sp.roles, "living_area")
+    if valuation is None or area0 is None:
+        return []
+    est = valuation.estimate
+    return [
+        *interval_bar(area0, est, valuation.low, valuation.high),
+        subject_marker(area0, est),
+        subject_label(area0, est),
+    ]
+
+
+def _subject_on_model_sale(sp: SalePlot, valuation, subject) -> list:
+    if valuation is None:
+        return []
+    return [reference_line(0, valuation.estimate, "Subject", dashed=False)]
+
+
+def _subject_on_residuals(sp: SalePlot, valuation, subject) -> list:
+    if valuation is None:
+        return []
+    return [reference_line(90, valuation.estimate, "Subject", dashed=False)]
+
+
+def _subject_on_map(sp: SalePlot, valuation, subject) -> list:
+    source = valuation.subject if valuation is not None else subject
+    lat0 = subject_value(source, sp.roles, "latitude")
+    lon0 = subject_value(source, sp.roles, "longitude")
+    if lat0 is None or lon0 is None:
+        return []
+    return [subject_marker(lon0, lat0), subject_label(lon0, lat0)]
+
+
+_SUBJECT_PAINTERS = {
+    "price_area": _subject_on_price_area,
+    "model_sale": _subject_on_model_sale,
+    "residuals": _subject_on_residuals,
+    "location": _subject_on_map,
+}
 
 
 def _new_plot(title: str, bottom: pg.AxisItem, left: pg.AxisItem, legend: bool) -> pg.PlotItem:
@@ -285,13 +357,7 @@ def _new_plot(title: str, bottom: pg.AxisItem, left: pg.AxisItem, legend: bool) 
 
 
 def _scatter_sales(
-    sp: SalePlot,
-    pts: SalePoints,
-    x: np.ndarray,
-    y: np.ndarray,
-    currency: str,
-    *,
-    show_excluded: bool = True,
+    sp: SalePlot, pts: SalePoints, x: np.ndarray, y: np.ndarray, currency: str
 ) -> None:
     """Excluded sales hollow and grey underneath, used sales on top by region."""
     finite = np.isfinite(x) & np.isfinite(y)
@@ -303,7 +369,7 @@ def _scatter_sales(
         return pts.describe(int(order_idx[i]), currency)
 
     out = ~pts.used & finite
-    if show_excluded and out.any():
+    if out.any():
         s = sale_scatter(
             x[out],
             y[out],
@@ -318,29 +384,23 @@ def _scatter_sales(
         sp.scatters.append(s)
     keep = pts.used & finite
     if pts.region is None:
-        groups = [(None, keep, SINGLE_COLOUR, "o")]
+        groups = [("Sales", keep, SINGLE_COLOUR, "o")]
     else:
         styles = region_styles(list(dict.fromkeys(pts.region)))
         groups = [
             (lvl, keep & (pts.region == lvl), st.colour, st.symbol) for lvl, st in styles.items()
         ]
     for name, mask, colour, symbol in groups:
-        if not mask.any():
-            continue
-        s = sale_scatter(
-            x[mask],
-            y[mask],
-            pts.rows[mask],
-            colour=colour,
-            symbol=symbol,
-            name=name if name is not None else "Sales",
-            tip=tip,
-        )
-        sp.plot.addItem(s)
-        sp.scatters.append(s)
-    shown = finite if show_excluded else keep
-    for r, xv, yv in zip(pts.rows[shown], x[shown], y[shown], strict=True):
-        sp.positions[int(r)] = (float(xv), float(yv))
+        if mask.any():
+            s = sale_scatter(
+                x[mask], y[mask], pts.rows[mask], colour=colour, symbol=symbol, name=name, tip=tip
+            )
+            sp.plot.addItem(s)
+            sp.scatters.append(s)
+    drawn = order_idx[finite[order_idx]]
+    sp.rows = pts.rows[drawn]
+    sp.xy = np.column_stack([x[drawn], y[drawn]])
+    sp.roles = pts.roles
     sp.ring = selection_ring()
     sp.plot.addItem(sp.ring)
 
@@ -354,25 +414,25 @@ def price_area_figure(
     currency: str = "$",
     selected: int | None = None,
     legend: bool = True,
+    points: SalePoints | None = None,
 ) -> SalePlot:
     """Sale price against living area; the subject's estimate with its prediction interval."""
-    pts = sale_points(fit, sales=sales, user_exclusions=user_exclusions)
+    pts = (
+        points
+        if points is not None
+        else sale_points(fit, sales=sales, user_exclusions=user_exclusions)
+    )
     plot = _new_plot(
         "Price against living area", GroupedAxis("bottom"), money_axis("left", currency), legend
     )
-    sp = SalePlot(plot)
+    sp = SalePlot(plot, "price_area")
     plot.setLabel("bottom", f"Gross living area ({pts.unit_label})")
     plot.setLabel("left", f"Sale price ({currency})")
     if pts.area is None:
         show_message(plot, "No living-area column is mapped: map one under column roles.")
         return sp
     _scatter_sales(sp, pts, pts.area, pts.price, currency)
-    area0 = subject_value(valuation.subject if valuation else None, pts.roles, "living_area")
-    if valuation is not None and area0 is not None:
-        for bar in interval_bar(area0, valuation.estimate, valuation.low, valuation.high):
-            plot.addItem(bar)
-        plot.addItem(subject_marker(area0, valuation.estimate))
-        plot.addItem(subject_label(area0, valuation.estimate))
+    sp.set_subject(valuation)
     sp.select(selected)
     return sp
 
@@ -385,6 +445,7 @@ def predicted_actual_figure(
     currency: str = "$",
     selected: int | None = None,
     legend: bool = True,
+    points: SalePoints | None = None,
 ) -> SalePlot:
     """The model's value against the sale price; on the dashed 45-degree line they agree."""
     plot = _new_plot(
@@ -393,13 +454,13 @@ def predicted_actual_figure(
         money_axis("left", currency),
         legend,
     )
-    sp = SalePlot(plot)
+    sp = SalePlot(plot, "model_sale")
     plot.setLabel("bottom", f"Sale price ({currency})")
     plot.setLabel("left", f"Model value ({currency})")
     if fit is None:
         show_message(plot, "No fit yet.")
         return sp
-    pts = sale_points(fit, user_exclusions=user_exclusions)
+    pts = points if points is not None else sale_points(fit, user_exclusions=user_exclusions)
     _scatter_sales(sp, pts, pts.price, pts.fitted, currency)
     both = np.concatenate([pts.price, pts.fitted])
     both = both[np.isfinite(both)]
@@ -408,8 +469,7 @@ def predicted_actual_figure(
         plot.addItem(reference_line(45, (0, 0), "model = sale"))
         plot.setXRange(lo, hi, padding=0.04)
         plot.setYRange(lo, hi, padding=0.04)
-    if valuation is not None:
-        plot.addItem(reference_line(0, valuation.estimate, "Subject", dashed=False))
+    sp.set_subject(valuation)
     sp.select(selected)
     return sp
 
@@ -422,25 +482,25 @@ def residual_figure(
     currency: str = "$",
     selected: int | None = None,
     legend: bool = True,
+    points: SalePoints | None = None,
 ) -> SalePlot:
     """Residuals (response scale) against the model's value in price units; zero and ±2s."""
     log = fit is not None and fit.spec.response == "log"
     left = GroupedAxis("left") if log or fit is None else money_axis("left", currency)
     plot = _new_plot("Residuals against model value", money_axis("bottom", currency), left, legend)
-    sp = SalePlot(plot)
+    sp = SalePlot(plot, "residuals")
     plot.setLabel("bottom", f"Model value ({currency})")
     plot.setLabel("left", "Residual (log of price)" if log else f"Residual ({currency})")
     if fit is None:
         show_message(plot, "No fit yet.")
         return sp
-    pts = sale_points(fit, user_exclusions=user_exclusions)
+    pts = points if points is not None else sale_points(fit, user_exclusions=user_exclusions)
     _scatter_sales(sp, pts, pts.fitted, pts.resid, currency)
     plot.addItem(reference_line(0, 0.0, None, dashed=False))
     s = float(fit.sigma)
     plot.addItem(reference_line(0, 2 * s, "+2s"))
     plot.addItem(reference_line(0, -2 * s, "-2s"))
-    if valuation is not None:
-        plot.addItem(reference_line(90, valuation.estimate, "Subject", dashed=False))
+    sp.set_subject(valuation)
     sp.select(selected)
     return sp
 
@@ -455,6 +515,7 @@ def location_figure(
     currency: str = "$",
     selected: int | None = None,
     legend: bool = True,
+    points: SalePoints | None = None,
 ) -> SalePlot:
     """Longitude against latitude, one degree of longitude drawn cos(latitude) as wide.
 
@@ -462,13 +523,17 @@ def location_figure(
     sales columns or role names).
     """
     plot = _new_plot("Where the sales are", GroupedAxis("bottom"), GroupedAxis("left"), legend)
-    sp = SalePlot(plot)
+    sp = SalePlot(plot, "location")
     plot.setLabel("bottom", "Longitude (degrees)")
     plot.setLabel("left", "Latitude (degrees)")
     if fit is None and sales is None:
         show_message(plot, "No sales loaded.")
         return sp
-    pts = sale_points(fit, sales=sales, user_exclusions=user_exclusions)
+    pts = (
+        points
+        if points is not None
+        else sale_points(fit, sales=sales, user_exclusions=user_exclusions)
+    )
     if pts.lat is None or pts.lon is None:
         show_message(plot, "Latitude and longitude are not mapped: map them under column roles.")
         return sp
@@ -477,12 +542,7 @@ def location_figure(
     if lat_ok.size:
         # x pixels per degree / y pixels per degree = cos(latitude): equal distances look equal
         plot.getViewBox().setAspectLocked(True, ratio=math.cos(math.radians(lat_ok.mean())))
-    source = valuation.subject if valuation is not None else subject
-    lat0 = subject_value(source, pts.roles, "latitude")
-    lon0 = subject_value(source, pts.roles, "longitude")
-    if lat0 is not None and lon0 is not None:
-        plot.addItem(subject_marker(lon0, lat0))
-        plot.addItem(subject_label(lon0, lat0))
+    sp.set_subject(valuation, subject)
     sp.select(selected)
     return sp
 
@@ -532,8 +592,10 @@ class PlotsView(QWidget):
     """The four plots in a 2x2 grid, following a session.
 
     Redraws (coalesced into one per event-loop turn) on ``salesChanged``,
-    ``fitFinished``, ``fitFailed``, ``valuationChanged`` and ``exclusionsChanged``;
-    moves the selection ring on ``selectionChanged``. A click selects a sale in the
+    ``fitFinished``, ``fitFailed`` and ``exclusionsChanged``; on ``valuationChanged``
+    and ``subjectChanged`` alone only the subject moves (the sales stay drawn: with
+    tens of thousands of sales, drawing them is the slow part). Moves the selection
+    ring on ``selectionChanged``. A click selects a sale in the
     session; a right click offers to exclude it (asking why) or to use it again.
     """
 
@@ -541,6 +603,8 @@ class PlotsView(QWidget):
         super().__init__(parent)
         self.session = session
         self.figures: list[SalePlot] = []
+        self._drawn_for: tuple = ()
+        self._stale = True
         self.legend = QLabel(self)
         self.legend.setWordWrap(True)
         self.canvas = pg.GraphicsLayoutWidget(self)
@@ -561,6 +625,7 @@ class PlotsView(QWidget):
             session.fitFailed,
             session.valuationChanged,
             session.exclusionsChanged,
+            session.subjectChanged,
         ):
             signal.connect(self.schedule_redraw)
         session.selectionChanged.connect(self.show_selection)
@@ -576,8 +641,7 @@ class PlotsView(QWidget):
 
     def showEvent(self, event) -> None:  # noqa: N802 (Qt's name)
         super().showEvent(event)
-        if getattr(self, "_stale", False):
-            self._stale = False
+        if self._stale:
             self.redraw()
 
     def _current(self) -> tuple[FitResult | None, Valuation | None, SalesTable | None]:
@@ -588,20 +652,34 @@ class PlotsView(QWidget):
         return fit, valuation, sales
 
     def redraw(self) -> None:
+        """Rebuild the plots when the sales, the fit or the exclusions changed; when only
+        the valuation or the subject did, move the subject and keep the sales drawn.
+        """
         self._redraw_timer.stop()
+        self._stale = False
         fit, valuation, sales = self._current()
         s = self.session
-        common = dict(
-            user_exclusions=s.user_exclusions,
-            currency=s.import_settings.currency_symbol or "$",
-            selected=s.selection,
-            legend=False,
-        )
+        currency = s.import_settings.currency_symbol or "$"
+        waiting = (s.fit_error, s.is_fitting) if fit is None else None  # shown in place of a fit
+        drawn_for = (fit, sales, s.user_exclusions, currency, waiting)
+        if self.figures and _same_inputs(drawn_for, self._drawn_for):
+            for f in self.figures:
+                f.set_subject(valuation, s.subject)
+            return
+        self._drawn_for = drawn_for
         self.canvas.clear()
         if sales is None:
             self.figures = []
             self.legend.setText("Load a sales file to see the plots.")
             return
+        pts = sale_points(fit, sales=sales, user_exclusions=s.user_exclusions)
+        common = dict(
+            user_exclusions=s.user_exclusions,
+            currency=currency,
+            selected=s.selection,
+            legend=False,
+            points=pts,
+        )
         figures = [
             price_area_figure(fit, valuation, sales=sales, **common),
             predicted_actual_figure(fit, valuation, **common),
@@ -618,7 +696,6 @@ class PlotsView(QWidget):
                 scatter.saleClicked.connect(self.session.select_sale)
                 scatter.saleMenuRequested.connect(self.open_sale_menu)
         self.figures = figures
-        pts = sale_points(fit, sales=sales, user_exclusions=s.user_exclusions)
         self.legend.setText(legend_html(pts))
 
     def show_selection(self, row: int | None) -> None:
@@ -645,6 +722,13 @@ class PlotsView(QWidget):
     def ask_exclusion(self, row: int) -> bool:
         """Ask why the sale is left out (the sales table's own dialog); exclude it if told."""
         return exclude_with_reason(self, self.session, row)
+
+
+def _same_inputs(a: tuple, b: tuple) -> bool:
+    """Same fit and sales objects (identity), same exclusions, currency and fit state."""
+    if len(a) != len(b) or not a:
+        return False
+    return a[0] is b[0] and a[1] is b[1] and a[2:] == b[2:]
 
 
 def _clip(text: str, width: int = 90) -> str:

@@ -467,3 +467,26 @@ def test_right_click_excludes_with_a_reason_and_can_take_it_back(qtbot, loaded_v
         loaded_view.open_sale_menu(row, loaded_view.mapToGlobal(loaded_view.rect().center()))
     assert seen[0] == "Use this sale again"
     assert session.user_exclusions == ()
+
+
+def test_a_new_subject_moves_only_the_subject(qtbot, loaded_view):
+    from conftest import WAIT_MS
+
+    session = loaded_view.session
+    before = [list(f.scatters) for f in loaded_view.figures]
+    subject = dict(session.subject)
+    subject["living_area"] = 2400
+    with qtbot.waitSignal(session.valuationChanged, timeout=WAIT_MS):
+        session.set_subject(subject)
+    qtbot.waitUntil(lambda: not loaded_view._redraw_timer.isActive(), timeout=WAIT_MS)
+    # the sales were not drawn again
+    assert [list(f.scatters) for f in loaded_view.figures] == before
+    star = next(
+        i
+        for i in loaded_view.figures[0].subject_items
+        if isinstance(i, pg.ScatterPlotItem) and i.opts["symbol"] == "star"
+    )
+    x, y = star.getData()
+    assert (float(x[0]), float(y[0])) == (2400.0, session.valuation.estimate)
+    line = next(i for i in loaded_view.figures[1].subject_items if isinstance(i, pg.InfiniteLine))
+    assert line.value() == session.valuation.estimate

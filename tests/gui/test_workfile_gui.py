@@ -59,6 +59,7 @@ def test_reopened_workfile_gives_the_same_numbers_and_plots(qtbot, saved):
     try:
         view = PlotsView(second)
         qtbot.addWidget(view)
+        view.show()
         notices = _open(qtbot, second, path)
         assert "reopened workfile: the saved results were reproduced exactly" in notices
         assert np.array_equal(second.fit.params, first.fit.params)
