@@ -209,7 +209,7 @@ def _accuracy_lines(d: Diagnostics) -> list[str]:
 def _ratio_lines(d: Diagnostics) -> list[str]:
     rs = d.ratio_study
     trim = (
-        f"; trimmed {len(rs.trimmed)} outside {rs.fences[0]:.3f} to {rs.fences[1]:.3f}"
+        f"; trim fences {rs.fences[0]:.3f} to {rs.fences[1]:.3f}: {len(rs.trimmed)} trimmed"
         if rs.fences is not None
         else "; no trim"
     )
