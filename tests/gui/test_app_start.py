@@ -15,6 +15,7 @@ from conftest import SAMPLE, WAIT_MS
 from PySide6.QtCore import QSettings, QTimer
 from PySide6.QtWidgets import QApplication
 
+from appraise.cli import main
 from appraise.gui.app import NO_DISPLAY_MESSAGE, open_sample
 from appraise.gui.main_window import MainWindow
 
@@ -32,10 +33,10 @@ def _without_display() -> dict[str, str]:
 @pytest.mark.skipif(
     not sys.platform.startswith("linux"), reason="display variables are X11/Wayland"
 )
-@pytest.mark.parametrize("args", [[], ["open", str(SAMPLE / "ashcombe_sales.csv")]])
-def test_no_display_is_one_line_and_exit_2(args):
+def test_no_display_is_one_line_and_exit_2():
+    """Plain ``appraise`` in a fresh process: no Qt abort, one line, exit 2."""
     done = subprocess.run(
-        [sys.executable, "-m", "appraise", *args],
+        [sys.executable, "-m", "appraise"],
         env=_without_display(),
         capture_output=True,
         text=True,
@@ -45,6 +46,17 @@ def test_no_display_is_one_line_and_exit_2(args):
     assert done.stdout == ""
     assert done.stderr.splitlines() == [NO_DISPLAY_MESSAGE]
     assert "appraise --help" in NO_DISPLAY_MESSAGE
+
+
+@pytest.mark.skipif(
+    not sys.platform.startswith("linux"), reason="display variables are X11/Wayland"
+)
+def test_open_file_without_display_says_the_same(monkeypatch, capsys):
+    for name in ("DISPLAY", "WAYLAND_DISPLAY", "QT_QPA_PLATFORM"):
+        monkeypatch.delenv(name, raising=False)
+    assert main(["open", str(SAMPLE / "ashcombe_sales.csv")]) == 2
+    out, err = capsys.readouterr()
+    assert out == "" and err.splitlines() == [NO_DISPLAY_MESSAGE]
 
 
 def test_open_sample_runs_the_window_with_the_sample(qtbot, tmp_path):
@@ -68,8 +80,7 @@ def test_open_sample_runs_the_window_with_the_sample(qtbot, tmp_path):
             estimate=w.subject_view.estimate.text(),
         )
         w.setWindowModified(False)
-        w.close()
-        QApplication.quit()
+        w.close()  # the last window: Qt ends the event loop of run() by itself
 
     QTimer.singleShot(0, look)
     watchdog = QTimer()
