@@ -265,3 +265,28 @@ def test_exclude_from_table_save_reopen_identical(qtbot, window, make_window, sa
     qtbot.waitUntil(lambda: other.session.pending_tasks == 0, timeout=WAIT_MS)
     assert other.save()
     assert '"user_exclusions": []' in path.read_text(encoding="utf-8")
+
+
+def test_derived_variable_is_checked_and_usable(qtbot, window, sample_copy):
+    s = window.session
+    open_and_wait(qtbot, window, sample_copy, companions=False)
+    editor = window.model_editor
+    row = editor.derived.add("", "")
+    qtbot.keyClicks(row.name_edit, "2nd")
+    assert "plain word" in row.error  # not an identifier
+    row.name_edit.clear()
+    qtbot.keyClicks(row.name_edit, "years_old")
+    qtbot.keyClicks(row.edit, "2026 - year_built")
+    assert row.error is None
+    with qtbot.waitSignal(s.fitFinished, timeout=WAIT_MS):
+        qtbot.keyClicks(editor.new_feature, "years_old")
+        qtbot.keyClick(editor.new_feature, Qt.Key.Key_Return)
+    assert dict(s.spec.derived) == {"years_old": "2026 - year_built"}
+    # statsmodels on the workbook: price ~ living area + (2026 - year built)
+    wb = _workbook().dropna(subset=["Living Area (sq ft)"])
+    X = sm.add_constant(
+        np.column_stack([wb["Living Area (sq ft)"], 2026 - wb["Year Built"]]).astype(float)
+    )
+    ref = sm.OLS(wb["Sale Price"].to_numpy(float), X).fit()
+    assert_allclose(s.fit.params, ref.params, rtol=1e-9)
+    assert [t.name for t in s.fit.terms][-1] == "years_old"
