@@ -90,8 +90,6 @@ class SalePoints:
     fitted: np.ndarray
     resid: np.ndarray
     area_unit: str
-    response: str
-    sigma: float | None
     roles: Mapping[str, str] = field(default_factory=dict)
 
     def __len__(self) -> int:
@@ -191,8 +189,6 @@ def sale_points(
         fitted=fitted,
         resid=resid,
         area_unit=sales.area_unit,
-        response=fit.spec.response if fit is not None else "linear",
-        sigma=float(fit.sigma) if fit is not None else None,
         roles=dict(roles.columns),
     )
 
