@@ -9,6 +9,7 @@ PNG bytes already rendered (``appraise.qtrender.figures`` makes them).
 from __future__ import annotations
 
 import platform
+import re
 from collections import Counter
 from collections.abc import Mapping, Sequence
 from datetime import datetime
@@ -179,6 +180,10 @@ def _subject_id(fit: Any, valuation: Any) -> str:
     return ""
 
 
+_UNIT_IN_HEADER = re.compile(r"ft|m²|m2|sq\.?\s*m|sqm|square", re.IGNORECASE)
+"""A header that already names its unit (``Living Area (sq ft)``) gets none added."""
+
+
 def _subject_facts(fit: Any, valuation: Any) -> Facts:
     hidden = {"_row", fit.spec.target, fit.sales.roles.column("price")}
     area = fit.sales.roles.column("living_area")
@@ -187,7 +192,7 @@ def _subject_facts(fit: Any, valuation: Any) -> Facts:
         if key in hidden or str(key).startswith("_"):
             continue
         label = str(key)
-        if key == area:
+        if key == area and not _UNIT_IN_HEADER.search(label):
             label = f"{key} ({fit.sales.area_unit})"
         rows.append((label, plain(value)))
     if not rows:
