@@ -701,15 +701,7 @@ class PlotsView(QWidget):
     # --- excluding from a plot ---
     def sale_menu(self, row: int) -> QMenu:
         """The right-click menu for the sale at file row ``row``."""
-        menu = QMenu(self)
-        excluded_by_user = any(e.row == row for e in self.session.user_exclusions)
-        if excluded_by_user:
-            act = menu.addAction("Use this sale again")
-            act.triggered.connect(lambda: self.session.include_sale(row))
-        else:
-            act = menu.addAction("Exclude this sale...")
-            act.triggered.connect(lambda: self.ask_exclusion(row))
-        return menu
+        return sale_menu(self, self.session, row)
 
     def open_sale_menu(self, row: int, screen_pos: QPoint) -> None:
         self.session.select_sale(row)
@@ -718,6 +710,19 @@ class PlotsView(QWidget):
     def ask_exclusion(self, row: int) -> bool:
         """Ask why the sale is left out (the sales table's own dialog); exclude it if told."""
         return exclude_with_reason(self, self.session, row)
+
+
+def sale_menu(parent: QWidget, session: Session, row: int, suggested: str = "") -> QMenu:
+    """The right-click menu of a sale in a plot: exclude it, asking why (``suggested``
+    offered first), or use it again when the user left it out."""
+    menu = QMenu(parent)
+    if any(e.row == row for e in session.user_exclusions):
+        act = menu.addAction("Use this sale again")
+        act.triggered.connect(lambda: session.include_sale(row))
+    else:
+        act = menu.addAction("Exclude this sale...")
+        act.triggered.connect(lambda: exclude_with_reason(parent, session, row, suggested))
+    return menu
 
 
 def _same_inputs(a: tuple, b: tuple) -> bool:

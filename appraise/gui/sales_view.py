@@ -78,9 +78,12 @@ def sale_label(session: Session, row: int) -> str:
     return f"sale {sid} (row {row})" if sid else f"the sale at row {row}"
 
 
-def exclude_with_reason(parent: QWidget, session: Session, row: int) -> bool:
-    """Ask for a reason and exclude the sale at ``row``; True when it was excluded."""
-    current = next((e.reason for e in session.user_exclusions if e.row == row), "")
+def exclude_with_reason(parent: QWidget, session: Session, row: int, suggested: str = "") -> bool:
+    """Ask for a reason and exclude the sale at ``row``; True when it was excluded.
+
+    The reason offered first is the one already given for the sale, else ``suggested``.
+    """
+    current = next((e.reason for e in session.user_exclusions if e.row == row), suggested)
     reason = ask_exclusion_reason(parent, sale_label(session, row), current)
     if reason is None:
         return False

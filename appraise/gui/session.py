@@ -19,7 +19,7 @@ from typing import Any
 from PySide6.QtCore import QObject, QThreadPool, QTimer, Signal
 
 from appraise.commands.common import sample_dir
-from appraise.engine.diagnostics import Diagnostics
+from appraise.engine.diagnostics import Diagnostics, DiagnosticSettings
 from appraise.engine.fitting import FitResult
 from appraise.engine.modelspec import ModelSpec
 from appraise.engine.roles import RoleMap
@@ -155,6 +155,7 @@ class Session(QObject):
         self._valuation: Valuation | None = None
         self._valuation_error: str | None = None
         self._diagnostics: Diagnostics | None = None
+        self._diagnostic_settings = DiagnosticSettings()
         self._selection: int | None = None
         self._workfile_path: Path | None = None
         self._workfile_state: WorkfileState | None = None
@@ -217,6 +218,11 @@ class Session(QObject):
     @property
     def diagnostics(self) -> Diagnostics | None:
         return self._diagnostics
+
+    @property
+    def diagnostic_settings(self) -> DiagnosticSettings:
+        """How each fit is checked (thresholds, folds and seed, ratio-study trim)."""
+        return self._diagnostic_settings
 
     @property
     def subject(self) -> dict:
@@ -502,6 +508,13 @@ class Session(QObject):
         self.subjectChanged.emit(self.subject)
         self.request_refit()
 
+    def set_diagnostic_settings(self, settings: DiagnosticSettings) -> None:
+        """Check fits with ``settings``; the current fit is checked again, not refitted."""
+        if settings == self._diagnostic_settings:
+            return
+        self._diagnostic_settings = settings
+        self.refit_now()
+
     def exclude_sale(self, row: int, reason: str) -> None:
         """Leave the sale at file row ``row`` out of the model, for ``reason``."""
         reason = reason.strip()
@@ -579,6 +592,7 @@ class Session(QObject):
                 del self._fit_tasks[old_gen]
         inputs = self._inputs()
         reuse = self._fit if self._fit is not None and self._fit_inputs == inputs else None
+        checked = self._diagnostics
         job = FitJob(
             sales=self._sales,
             spec=self._spec,
@@ -586,6 +600,11 @@ class Session(QObject):
             subject=dict(self._subject),
             import_settings=self._import_settings,
             reuse=reuse,
+            diagnostic_settings=self._diagnostic_settings,
+            # a reused fit is checked again when its check is missing (an earlier job's
+            # check was overtaken) or was made with other settings
+            recheck=reuse is not None
+            and (checked is None or checked.settings != self._diagnostic_settings),
         )
         task = Task(gen, lambda report: run_fit_job(job, report), self._fit_signals)
         self._fit_tasks[gen] = task

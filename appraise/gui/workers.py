@@ -21,7 +21,7 @@ from typing import Any
 
 from PySide6.QtCore import QObject, QRunnable, Signal
 
-from appraise.engine.diagnostics import diagnose
+from appraise.engine.diagnostics import DiagnosticSettings, diagnose
 from appraise.engine.errors import AppraiseError, SubjectError
 from appraise.engine.fitting import FitResult, fit_model
 from appraise.engine.importing import load_sales
@@ -44,7 +44,8 @@ class FitJob:
     """Everything one refit needs, frozen at the moment it was asked for.
 
     ``reuse`` is a fit already made from the same sales, spec and exclusions: the
-    job then only values the subject (a subject edit does not refit).
+    job then only values the subject (a subject edit does not refit), and checks the
+    fit again only when ``recheck`` is set (the check settings changed).
     """
 
     sales: SalesTable
@@ -53,14 +54,17 @@ class FitJob:
     subject: Mapping[str, Any] = field(default_factory=dict)
     import_settings: ImportSettings = ImportSettings()
     reuse: FitResult | None = None
+    diagnostic_settings: DiagnosticSettings = DiagnosticSettings()
+    recheck: bool = False
 
 
 def run_fit_job(job: FitJob, report: Report) -> None:
     """Fit (unless reusing), then value the subject, then compute diagnostics.
 
     Reports, in this order: ``("fit", FitResult)``; ``("valuation", Valuation | None)``
-    or ``("valuation_error", message)``; ``("diagnostics", Diagnostics)`` (new fits
-    only). A failing fit raises; the task turns that into a ``failed`` report.
+    or ``("valuation_error", message)``; ``("diagnostics", Diagnostics)`` (new fits,
+    or a reused one with ``recheck``). A failing fit raises; the task turns that into a
+    ``failed`` report.
     """
     fit = job.reuse
     if fit is None:
@@ -70,8 +74,8 @@ def run_fit_job(job: FitJob, report: Report) -> None:
         report("valuation", value_job_subject(fit, job.subject, job.import_settings))
     except AppraiseError as exc:
         report("valuation_error", str(exc))
-    if job.reuse is None:
-        report("diagnostics", diagnose(fit))
+    if job.reuse is None or job.recheck:
+        report("diagnostics", diagnose(fit, job.diagnostic_settings))
 
 
 def value_job_subject(

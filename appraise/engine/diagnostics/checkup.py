@@ -207,8 +207,7 @@ def diagnose_arrays(
         )
     warnings.extend(coll.warnings)
     warnings.extend(tests.suggestions[:1])
-    # below nominal by more than two binomial standard errors of a share of n_used sales
-    if loo.n_used and loo.coverage < level - 2 * np.sqrt(level * (1 - level) / loo.n_used):
+    if loo.coverage_short:
         warnings.append(
             f"only {100 * loo.coverage:.0f}% of sales lie inside their own leave-one-out "
             f"{100 * level:.0f}% prediction interval: the intervals are too narrow"

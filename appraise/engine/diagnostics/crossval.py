@@ -86,6 +86,15 @@ class LeaveOneOut:
     n_without: int
     """Sales with leverage 1, which have no leave-one-out prediction."""
 
+    @property
+    def coverage_short(self) -> bool:
+        """Coverage below the nominal level by more than two binomial standard errors,
+        :math:`\\sqrt{\\ell(1-\\ell)/n}` for level :math:`\\ell` and n sales used."""
+        if not self.n_used:
+            return False
+        se = np.sqrt(self.level * (1 - self.level) / self.n_used)
+        return bool(self.coverage < self.level - 2 * se)
+
     def to_dict(self) -> dict:
         return plain(
             {
