@@ -278,12 +278,12 @@ class DiagnosticsView(QWidget):
         self.flagged_table.doubleClicked.connect(lambda _i: self.exclude_current_flag())
         self.flagged_table.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
         self.flagged_table.customContextMenuRequested.connect(self._flag_menu)
-        self.exclude_button = QPushButton("&Exclude…")
+        self.exclude_button = QPushButton("Exclu&de…")
         self.exclude_button.setToolTip(
             "Leave the selected sale out of the model, with the flag's reason to edit"
         )
         self.exclude_button.clicked.connect(self.exclude_current_flag)
-        self.copy_line_button = QPushButton("Copy &model-file line")
+        self.copy_line_button = QPushButton("Copy model-f&ile line")
         self.copy_line_button.setToolTip(
             "Copy the [[exclude]] block of the selected sale, to paste into the model file"
         )

@@ -28,6 +28,7 @@ from appraise import __version__
 from appraise.report.cautions import FULL_CAUTIONS
 
 from .actions import Actions
+from .diagnostics_view import DiagnosticsView
 from .model_editor import ModelEditor
 from .plots import PlotsView
 from .preferences import Preferences
@@ -46,11 +47,6 @@ from .session import (
 from .settings_dialog import SettingsDialog
 from .subject_view import SubjectView
 from .worksheet_view import WorksheetView
-
-try:  # written in parallel by another helper; the guard goes once it has landed
-    from .diagnostics_view import DiagnosticsView
-except ImportError:  # pragma: no cover
-    DiagnosticsView = None  # type: ignore[assignment,misc]
 
 SHORT_STATUS_CAUTION = "Statistical estimate — not an appraisal"
 OPEN_FILTER = (
@@ -82,7 +78,7 @@ class MainWindow(QMainWindow):
         self.subject_view.set_currency(prefs.get("currency_symbol"))
         self.plots_view = PlotsView(session)
         self.worksheet_view = WorksheetView(session, currency=prefs.get("currency_symbol"))
-        self.diagnostics_view = DiagnosticsView(session) if DiagnosticsView is not None else None
+        self.diagnostics_view = DiagnosticsView(session, currency=prefs.get("currency_symbol"))
 
         self.data_tabs = QTabWidget()
         self.data_tabs.addTab(self.sales_view, "&Sales")
@@ -102,8 +98,7 @@ class MainWindow(QMainWindow):
         self.centre_tabs = QTabWidget()
         self.centre_tabs.addTab(model_split, "&Model")
         self.centre_tabs.addTab(self.plots_view, "&Plots")
-        if self.diagnostics_view is not None:
-            self.centre_tabs.addTab(self.diagnostics_view, "&Checks")
+        self.centre_tabs.addTab(self.diagnostics_view, "&Checks")
         self.centre_tabs.addTab(self.worksheet_view, "&Worksheet")
         self.setCentralWidget(self.centre_tabs)
 
@@ -443,6 +438,7 @@ class MainWindow(QMainWindow):
     def apply_preferences(self) -> None:
         self.subject_view.set_currency(self.prefs.get("currency_symbol"))
         self.worksheet_view.set_currency(self.prefs.get("currency_symbol"))
+        self.diagnostics_view.set_currency(self.prefs.get("currency_symbol"))
         self.session.set_import_settings(self.prefs.import_settings(self.session.import_settings))
 
     # --- help -------------------------------------------------------------------------------
