@@ -20,20 +20,27 @@ from collections.abc import Sequence
 from . import __version__
 from .engine.errors import AppraiseError
 
-# Order is the order shown in --help.
-COMMANDS: tuple[str, ...] = (
-    "demo",
-    "data",
-    "fit",
-    "value",
-    "diagnose",
-    "compare",
-    "report",
-    "open",
-)
+# name -> one-line summary; the order is the order shown in --help. Only the module of
+# the command being run is imported (the engine pulls in pandas, scipy and statsmodels,
+# which take seconds to import), so `appraise --help` answers at once.
+COMMANDS: dict[str, str] = {
+    "demo": "value the sample subject from the sample sales",
+    "data": "read a sales file and show what was used, what was excluded and why",
+    "fit": "fit a model file to the sales and print the coefficients",
+    "value": "value the subject property with a prediction interval",
+    "diagnose": "check a model: influential sales, redundant terms, accuracy, ratio study",
+    "compare": "rank candidate model files by leave-one-out error on the same sales",
+    "report": "write the valuation worksheet (PDF, optional HTML and tables)",
+    "open": "open the desktop workbench (the default with no command)",
+}
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(only: str | None = None) -> argparse.ArgumentParser:
+    """The argument parser.
+
+    ``only`` names the one command whose module is imported and whose options are
+    registered; the others appear with their summary alone. ``None`` registers all.
+    """
     parser = argparse.ArgumentParser(
         prog="appraise",
         description=(
@@ -44,22 +51,19 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"appraise {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in COMMANDS:
-        try:
-            module = importlib.import_module(f"appraise.commands.{name}")
-        except ModuleNotFoundError as exc:
-            if exc.name == f"appraise.commands.{name}":
-                continue  # command not built yet
-            raise
-        module.register(sub)
+    for name, summary in COMMANDS.items():
+        if only is None or name == only:
+            importlib.import_module(f"appraise.commands.{name}").register(sub)
+        else:
+            sub.add_parser(name, help=summary)
     return parser
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     args_list = list(sys.argv[1:] if argv is None else argv)
-    parser = build_parser()
     if not args_list:
         args_list = ["open"]
+    parser = build_parser(only=next((a for a in args_list if a in COMMANDS), ""))
     try:
         args = parser.parse_args(args_list)
     except SystemExit as exc:  # argparse: --help exits 0, bad usage exits 2

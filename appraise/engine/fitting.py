@@ -17,7 +17,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-import statsmodels.api as sm
 
 from .design import DesignSpec, learn_design
 from .errors import CollinearityError, FitError, ModelFileError
@@ -304,7 +303,11 @@ def fit_model(
 
     price = pd.to_numeric(frame[target]).to_numpy(dtype=float)
     y = np.log(price) if spec.response == "log" else price
-    res = sm.OLS(y, X).fit(cov_type=STATSMODELS_COV[spec.cov_type], use_t=True)
+    # statsmodels is imported here, not at module level: it takes seconds to import and
+    # commands that never fit (appraise --help, appraise data) should not pay for it.
+    from statsmodels.regression.linear_model import OLS
+
+    res = OLS(y, X).fit(cov_type=STATSMODELS_COV[spec.cov_type], use_t=True)
     ci = np.asarray(res.conf_int(alpha=1 - COEF_CI_LEVEL))
     terms = tuple(
         TermEstimate(
