@@ -42,6 +42,8 @@ log = logging.getLogger(__name__)
 
 SALES_SUFFIXES: tuple[str, ...] = (".csv", ".xlsx", ".parquet")
 WORKFILE_SUFFIX = ".appraise.json"
+CHECK_SETTINGS_KEY = "checks"
+"""Key of the model-check settings (trim, folds, seed, thresholds) in a workfile's settings."""
 """Workfiles are JSON; the double suffix tells them apart from other JSON at a glance."""
 
 REFIT_DELAY_MS = 300
@@ -419,6 +421,9 @@ class Session(QObject):
         self._spec = restored.spec
         self._subject = dict(restored.subject)
         self._user_exclusions = tuple(restored.user_exclusions)
+        checks = (state.settings or {}).get(CHECK_SETTINGS_KEY)
+        if checks is not None:
+            self._diagnostic_settings = DiagnosticSettings.from_dict(dict(checks))
         self._selection = None
         self._invalidate_results()
         self._set_workfile(path, state)
@@ -450,6 +455,7 @@ class Session(QObject):
             raise RuntimeError("nothing to save: load sales and set a model first")
         current = self.results_current
         p = Path(path)
+        settings = {**dict(settings or {}), CHECK_SETTINGS_KEY: self._diagnostic_settings.to_dict()}
         state = make_state(
             sales=self._sales,
             spec=self._spec,

@@ -129,3 +129,25 @@ def test_the_window_names_both_hashes_when_the_sales_changed(qtbot, window, save
         window.open_path(path)
     text = _error_box_text(qtbot, window)
     assert before in text and after in text
+
+
+def test_check_settings_travel_with_the_workfile(qtbot, session, sample_copy, tmp_path):
+    from appraise.engine.diagnostics import DiagnosticSettings
+
+    _load(qtbot, session, sample_copy)
+    chosen = DiagnosticSettings(trim=True, folds=5, seed=42)
+    session.set_diagnostic_settings(chosen)
+    qtbot.waitUntil(lambda: session.pending_tasks == 0, timeout=WAIT_MS)
+    path = tmp_path / "checks.appraise.json"
+    session.save_workfile(path, settings={"currency": "$"}, embed=False)
+    stored = json.loads(path.read_text(encoding="utf-8"))["settings"]
+    assert stored["checks"]["trim"] is True and stored["checks"]["folds"] == 5
+    assert stored["currency"] == "$"
+    second = Session()
+    try:
+        _open(qtbot, second, path)
+        assert second.diagnostic_settings == chosen
+        qtbot.waitUntil(lambda: second.diagnostics is not None, timeout=WAIT_MS)
+        assert second.diagnostics.settings == chosen
+    finally:
+        second.shutdown()

@@ -7,7 +7,7 @@ source of each is named beside it so a reviewer can weigh it.
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, fields
 
 from ..errors import AppraiseError
 from .plain import plain
@@ -79,6 +79,18 @@ class DiagnosticSettings:
 
     def to_dict(self) -> dict:
         return plain(asdict(self))
+
+    @classmethod
+    def from_dict(cls, data: dict) -> DiagnosticSettings:
+        """The settings :meth:`to_dict` wrote (a workfile's); unknown keys are an error."""
+        known = {f.name for f in fields(cls)}
+        unknown = sorted(set(data) - known)
+        if unknown:
+            raise AppraiseError(f"unknown check setting(s): {', '.join(unknown)}")
+        try:
+            return cls(**data)
+        except TypeError as exc:
+            raise AppraiseError(f"check settings not understood: {exc}") from None
 
 
 DEFAULT_SETTINGS = DiagnosticSettings()
