@@ -99,6 +99,13 @@ class ReportError(AppraiseError):
     """A worksheet or export cannot be written."""
 
 
+class Cancelled(Exception):  # noqa: N818 - a request, not a fault
+    """The caller asked a long operation to stop (its progress callback raised this).
+
+    Not an :class:`AppraiseError`: nothing is wrong with the user's input.
+    """
+
+
 # --- warnings ------------------------------------------------------------------
 class AppraiseWarning(UserWarning):
     """Base of warnings the engine emits; each is also recorded in results."""

@@ -45,6 +45,9 @@ from .roles import AREA_ROLES, ROLE_KINDS, RoleMap, list_headers, resolve_roles
 from .sales import ROW_COLUMN, Exclusion, SalesTable, SourceInfo
 from .settings import SQFT_PER_M2, AreaUnit, ImportSettings
 
+Progress = Callable[[float, str], None]
+"""``progress(fraction, message)``: how a long read reports how far it is."""
+
 FORMATS: dict[str, str] = {
     ".csv": "csv",
     ".tsv": "csv",
@@ -583,6 +586,8 @@ def load_sales(
     path: str | Path,
     settings: ImportSettings = ImportSettings(),  # noqa: B008 - frozen, safe as a default
     roles: RoleMap | None = None,
+    *,
+    progress: Progress | None = None,
 ) -> SalesTable:
     """Read a sales export and clean it.
 
@@ -594,6 +599,9 @@ def load_sales(
         Decimal mark, date order, area unit, sheet, currency symbol.
     roles:
         A role map to use as it stands; ``None`` suggests one from the headers.
+    progress:
+        Called as ``progress(fraction, message)`` as the work advances (fraction in
+        0..1). It may raise :class:`~appraise.engine.errors.Cancelled` to stop the read.
 
     Returns
     -------
@@ -610,12 +618,15 @@ def load_sales(
     RoleError
         No price column, or a role map naming a column the file does not have.
     """
+    step = progress or _no_progress
     p = Path(path)
     fmt = format_of(p)
+    step(0.0, f"reading {p.name}")
     data = read_file_bytes(p)
     file = str(path)
     if not data:
         raise DataError("the file is empty", file=file)
+    step(0.05, f"parsing {fmt.upper()}")
     raw = read_raw_table(p, data, fmt, settings)
     if raw.n_rows == 0:
         raise DataError("the file has a header but no rows of sales", file=file)
@@ -630,7 +641,8 @@ def load_sales(
             col[pos] = None
 
     cleaned: dict[str, _Clean] = {}
-    for name, values in zip(headers, raw.columns, strict=True):
+    for i, (name, values) in enumerate(zip(headers, raw.columns, strict=True)):
+        step(0.3 + 0.6 * i / len(headers), f"cleaning column '{name}'")
         role = role_map.role_of(name)
         d = _Distinct.of(values)
         kind = ROLE_KINDS[role] if role else infer_kind(d, settings)
@@ -644,6 +656,7 @@ def load_sales(
             column=name,
         )
 
+    step(0.9, "checking rows")
     excluded = _exclusions(raw, headers, role_map, cleaned)
     used = np.ones(n, dtype=bool)
     for e in excluded:
@@ -657,6 +670,7 @@ def load_sales(
     source = SourceInfo(
         path=file, sha256=hashlib.sha256(data).hexdigest(), format=fmt, rows_in_file=n
     )
+    step(1.0, "done")
     return SalesTable(
         frame=frame,
         excluded=tuple(excluded),
@@ -665,6 +679,10 @@ def load_sales(
         area_unit=settings.area_unit,
         notes=tuple(notes),
     )
+
+
+def _no_progress(fraction: float, message: str) -> None:
+    """The default progress callback: nobody is listening."""
 
 
 def _series(col: _Clean, used: np.ndarray) -> pd.Series:

@@ -115,6 +115,7 @@ class MainWindow(QMainWindow):
         self._build_menus()
         self._connect()
         self._progress: QProgressDialog | None = None
+        self._progress_done: tuple[int, str] | None = None
         self._progress_timer = QTimer(self)
         self._progress_timer.setSingleShot(True)
         self._progress_timer.setInterval(LOAD_DIALOG_DELAY_MS)
@@ -231,6 +232,7 @@ class MainWindow(QMainWindow):
         s.loadStarted.connect(self._load_started)
         s.loadFinished.connect(self._load_finished)
         s.loadFailed.connect(self._load_failed)
+        s.loadProgress.connect(self._load_progress)
         s.loadCancelled.connect(self._load_ended)
         s.workfileChanged.connect(lambda _p: self._update_title())
         s.notice.connect(lambda text: self.statusBar().showMessage(text, 15_000))
@@ -317,6 +319,7 @@ class MainWindow(QMainWindow):
     def _load_started(self, label: str) -> None:
         self.statusBar().showMessage(f"Reading {Path(label).name}…")
         self._progress_label = label
+        self._progress_done: tuple[int, str] | None = None
         self._progress_timer.start()
 
     def _show_progress(self) -> None:
@@ -329,6 +332,17 @@ class MainWindow(QMainWindow):
         dlg.canceled.connect(self.session.cancel_load)
         dlg.show()
         self._progress = dlg
+        if self._progress_done is not None:  # the read reported before the dialog showed
+            self._load_progress(*self._progress_done)
+
+    def _load_progress(self, percent: int, message: str) -> None:
+        self._progress_done = (percent, message)
+        dlg = self._progress  # a local: a modal dialog's setValue runs the event loop,
+        if dlg is None:  # which may end the load and drop self._progress meanwhile
+            return
+        dlg.setLabelText(f"Reading {Path(self._progress_label).name}: {message}…")
+        dlg.setRange(0, 100)  # from a busy indicator to a measured bar
+        dlg.setValue(percent)
 
     def _load_ended(self) -> None:
         self._progress_timer.stop()

@@ -11,7 +11,7 @@ newer one and a cancelled load never lands.
 from __future__ import annotations
 
 import logging
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
@@ -134,6 +134,7 @@ class Session(QObject):
     loadFinished = Signal(str)
     loadFailed = Signal(str)
     loadCancelled = Signal()
+    loadProgress = Signal(int, str)  # percent done, what is being done
     workfileChanged = Signal(object)
     notice = Signal(str)
 
@@ -181,6 +182,8 @@ class Session(QObject):
         self._load_signals = TaskSignals(self)
         self._load_signals.finished.connect(self._on_load_done)
         self._load_signals.failed.connect(self._on_load_failed)
+        self._load_signals.stage.connect(self._on_load_stage)
+        self._load_cancel: dict[int, Callable[[], None]] = {}
 
         self._refit_timer = QTimer(self)
         self._refit_timer.setSingleShot(True)
@@ -323,7 +326,9 @@ class Session(QObject):
             None if model_path is None else Path(model_path),
             None if subject_path is None else Path(subject_path),
         )
-        self._start_load("sales", str(path), lambda report: run_load_job(job, report))
+        self._start_load(
+            "sales", str(path), lambda report: run_load_job(job, report), cancel=job.cancel.set
+        )
 
     def load_with_companions(self, path: str | Path) -> None:
         """Read a sales file together with the model and subject files found beside it."""
@@ -348,13 +353,18 @@ class Session(QObject):
         """Forget the load in progress; its result is dropped when it arrives."""
         if self._loading is None:
             return
+        stop = self._load_cancel.pop(self._load_generation, None)
+        if stop is not None:
+            stop()  # the reader stops at its next step instead of running to the end
         self._load_generation += 1
         self._loading = None
         self.loadCancelled.emit()
 
-    def _start_load(self, kind: str, label: str, job) -> None:
+    def _start_load(self, kind: str, label: str, job, *, cancel=None) -> None:
         self._load_generation += 1
         gen = self._load_generation
+        if cancel is not None:
+            self._load_cancel[gen] = cancel
         task = Task(gen, job, self._load_signals)
         self._load_tasks[gen] = task
         self._load_kind[gen] = kind
@@ -362,7 +372,13 @@ class Session(QObject):
         self.loadStarted.emit(label)
         self._pool.start(task)
 
+    def _on_load_stage(self, gen: int, stage: str, payload: object) -> None:
+        if gen == self._load_generation and stage == "progress":
+            fraction, message = payload
+            self.loadProgress.emit(round(100 * fraction), message)
+
     def _on_load_failed(self, gen: int, message: str) -> None:
+        self._load_cancel.pop(gen, None)
         self._load_tasks.pop(gen, None)
         self._load_kind.pop(gen, None)
         if gen != self._load_generation:
@@ -371,6 +387,7 @@ class Session(QObject):
         self.loadFailed.emit(message)
 
     def _on_load_done(self, gen: int, result: object) -> None:
+        self._load_cancel.pop(gen, None)
         self._load_tasks.pop(gen, None)
         kind = self._load_kind.pop(gen, None)
         if gen != self._load_generation:

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import json
 import logging
+import threading
 import traceback
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
@@ -22,7 +23,7 @@ from typing import Any
 from PySide6.QtCore import QObject, QRunnable, Signal
 
 from appraise.engine.diagnostics import DiagnosticSettings, diagnose
-from appraise.engine.errors import AppraiseError, SubjectError
+from appraise.engine.errors import AppraiseError, Cancelled, SubjectError
 from appraise.engine.fitting import FitResult, fit_model
 from appraise.engine.importing import load_sales
 from appraise.engine.modelspec import ModelSpec, load_model
@@ -98,6 +99,8 @@ class LoadJob:
     roles: RoleMap | None = None
     model_path: Path | None = None
     subject_path: Path | None = None
+    cancel: threading.Event = field(default_factory=threading.Event, compare=False)
+    """Set (from any thread) to stop the read at its next progress step."""
 
 
 @dataclass(frozen=True)
@@ -109,7 +112,13 @@ class LoadOutcome:
 
 def run_load_job(job: LoadJob, report: Report) -> LoadOutcome:
     """Read the files of ``job``; companion files that fail raise like the sales file."""
-    sales = load_sales(job.path, job.settings, job.roles)
+
+    def progress(fraction: float, message: str) -> None:
+        if job.cancel.is_set():
+            raise Cancelled(f"reading {job.path.name} was cancelled")
+        report("progress", (fraction, message))
+
+    sales = load_sales(job.path, job.settings, job.roles, progress=progress)
     spec = load_model(job.model_path) if job.model_path is not None else None
     subject = read_subject_file(job.subject_path) if job.subject_path is not None else None
     return LoadOutcome(sales, spec, subject)
@@ -162,6 +171,8 @@ class Task(QRunnable):
         self.signals.started.emit(gen)
         try:
             result = self._job(lambda stage, payload: self.signals.stage.emit(gen, stage, payload))
+        except Cancelled:
+            self.signals.finished.emit(gen, None)  # the session has moved on; dropped there
         except AppraiseError as exc:
             self.signals.failed.emit(gen, str(exc))
         except Exception as exc:  # noqa: BLE001 - a worker must report, never die silently

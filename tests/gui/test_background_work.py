@@ -150,3 +150,34 @@ def test_edits_in_a_burst_lead_to_one_refit(qtbot, window, sample_copy):
     assert starts == [1]
     assert s.fit.spec.level == 0.95
     qtbot.waitUntil(lambda: s.pending_tasks == 0, timeout=WAIT_MS)
+
+
+def test_load_reports_measured_progress(qtbot, window, big_sales):
+    s = window.session
+    seen: list[tuple[int, str]] = []
+    s.loadProgress.connect(lambda pct, msg: seen.append((pct, msg)))
+    with qtbot.waitSignal(s.loadFinished, timeout=WAIT_MS):
+        s.load_sales(big_sales)
+    percents = [p for p, _ in seen]
+    assert percents == sorted(percents) and percents[0] == 0 and percents[-1] == 100
+    assert any("cleaning column 'Living Area'" in m for _, m in seen)
+    qtbot.waitUntil(lambda: s.pending_tasks == 0, timeout=WAIT_MS)
+
+
+def test_cancel_stops_the_reader_itself(big_sales):
+    # The worker function, without Qt: once the job's cancel flag is set, the next
+    # progress step raises Cancelled instead of reading on to the end.
+    from appraise.engine.errors import Cancelled
+    from appraise.gui.workers import LoadJob, run_load_job
+
+    job = LoadJob(big_sales)
+    stages: list[float] = []
+
+    def report(stage, payload):
+        stages.append(payload[0])
+        if len(stages) == 3:
+            job.cancel.set()
+
+    with pytest.raises(Cancelled):
+        run_load_job(job, report)
+    assert len(stages) == 3 and max(stages) < 1.0
