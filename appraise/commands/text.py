@@ -4,10 +4,7 @@ from __future__ import annotations
 
 from ..engine.fitting import FitResult
 from ..engine.valuation import Valuation
-
-
-def money(v: float, symbol: str = "$") -> str:
-    return f"-{symbol}{abs(v):,.0f}" if v < 0 else f"{symbol}{v:,.0f}"
+from ..report.numbers import money
 
 
 def format_fit(fit: FitResult) -> str:
