@@ -7,6 +7,7 @@ import sys
 
 _keep: list = []  # holds the application object created here so it is not collected
 
+
 def _no_display() -> bool:
     if sys.platform.startswith("linux") or "bsd" in sys.platform:
         return not (os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
