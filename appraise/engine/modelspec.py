@@ -102,27 +102,27 @@ class ModelSpec:
         """The spec as a TOML document that :func:`parse_model` reads back identically."""
         lines = []
         if self.title:
-            lines.append(f"title = {_toml_str(self.title)}")
-        lines.append(f"target = {_toml_str(self.target)}")
-        lines.append(f"response = {_toml_str(self.response)}")
+            lines.append(f"title = {toml_string(self.title)}")
+        lines.append(f"target = {toml_string(self.target)}")
+        lines.append(f"response = {toml_string(self.response)}")
         lines.append(f"level = {self.level!r}")
-        lines.append(f"cov_type = {_toml_str(self.cov_type)}")
+        lines.append(f"cov_type = {toml_string(self.cov_type)}")
         if not self.intercept:
             lines.append("intercept = false")
         if self.effective_date:
-            lines.append(f"effective_date = {_toml_str(self.effective_date)}")
+            lines.append(f"effective_date = {toml_string(self.effective_date)}")
         lines.append("features = [")
-        lines.extend(f"    {_toml_str(f)}," for f in self.features)
+        lines.extend(f"    {toml_string(f)}," for f in self.features)
         lines.append("]")
         if self.derived:
             lines.append("")
             lines.append("[derived]")
-            lines.extend(f"{_toml_key(k)} = {_toml_str(v)}" for k, v in self.derived.items())
+            lines.extend(f"{_toml_key(k)} = {toml_string(v)}" for k, v in self.derived.items())
         for e in self.exclude:
             lines.append("")
             lines.append("[[exclude]]")
-            lines.append(f"id = {_toml_str(e.sale_id)}")
-            lines.append(f"reason = {_toml_str(e.reason)}")
+            lines.append(f"id = {toml_string(e.sale_id)}")
+            lines.append(f"reason = {toml_string(e.reason)}")
         return "\n".join(lines) + "\n"
 
     def sha256(self) -> str:
@@ -130,15 +130,28 @@ class ModelSpec:
         return hashlib.sha256(self.to_toml().encode("utf-8")).hexdigest()
 
 
-def _toml_str(s: str) -> str:
-    out = s.replace("\\", "\\\\").replace('"', '\\"').replace("\n", "\\n").replace("\t", "\\t")
-    return f'"{out}"'
+def toml_string(s: str) -> str:
+    """``s`` as a TOML basic string: backslash, quote and every control character escaped."""
+    out = []
+    for ch in s:
+        if ch in ('"', "\\"):
+            out.append("\\" + ch)
+        elif ch in _TOML_SHORT_ESCAPES:
+            out.append(_TOML_SHORT_ESCAPES[ch])
+        elif ord(ch) < 0x20 or ord(ch) == 0x7F:
+            out.append(f"\\u{ord(ch):04X}")
+        else:
+            out.append(ch)
+    return '"' + "".join(out) + '"'
+
+
+_TOML_SHORT_ESCAPES = {"\n": "\\n", "\t": "\\t", "\r": "\\r", "\b": "\\b", "\f": "\\f"}
 
 
 def _toml_key(k: str) -> str:
     if k and all(c.isalnum() or c in "_-" for c in k):
         return k
-    return _toml_str(k)
+    return toml_string(k)
 
 
 def load_model(path: str | Path) -> ModelSpec:

@@ -32,7 +32,7 @@ from .plot_items import (
     selection_ring,
     show_message,
 )
-from .plots import SalePlot, _new_plot
+from .plots import SalePlot, new_plot
 
 FLAG_COLOUR = OKABE_ITO["vermillion"]
 FLAG_SYMBOL = "d"
@@ -167,7 +167,7 @@ def influence_figure(
     from what the others predict; a large point moves the coefficients (Cook's
     distance). Sales with leverage 1 have no studentized residual and are not drawn.
     """
-    plot = _new_plot(
+    plot = new_plot(
         "Studentized residual against leverage", GroupedAxis("bottom"), GroupedAxis("left"), False
     )
     sp = SalePlot(plot, "influence")
@@ -199,7 +199,7 @@ def ratio_figure(
     would tilt the cloud by itself. Lines at ratio 1 and at ±10 % (the PPE10 band);
     with the trim on, its fences, and the trimmed sales drawn hollow.
     """
-    plot = _new_plot(
+    plot = new_plot(
         "Leave-one-out ratio against value", money_axis("bottom", currency), GroupedAxis("left"),
         False,
     )  # fmt: skip

@@ -24,7 +24,7 @@ from appraise.report.numbers import MISSING, money, pvalue
 
 from .diagnostics_plots import FLAG_COLOUR, number_text, positions_by_row
 from .plot_items import OKABE_ITO
-from .sales_view import _stable_sort
+from .sales_view import stable_sort
 
 WITHIN_COLOUR = OKABE_ITO["blue"]
 OUTSIDE_COLOUR = OKABE_ITO["vermillion"]
@@ -380,7 +380,7 @@ class SaleChecksModel(QAbstractTableModel):
                 keys = pd.Series(col.values, dtype=object).map(
                     lambda v: None if v is None or v == "" else str(v).lower()
                 )
-            order = _stable_sort(keys, self._sort[1] == Qt.SortOrder.DescendingOrder)
+            order = stable_sort(keys, self._sort[1] == Qt.SortOrder.DescendingOrder)
         self._order = np.asarray(order, dtype=np.int64)
         self._where = np.empty(n, dtype=np.int64)
         self._where[self._order] = np.arange(n)

@@ -15,7 +15,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import QPoint, Qt, Signal
 from PySide6.QtGui import QColor
 
-from appraise.qtrender.figures import _money_axis
+from appraise.qtrender.figures import money_axis_class
 
 # Okabe & Ito (2008), "Color Universal Design": eight colours told apart under the
 # common forms of colour-vision deficiency. Black is kept for the subject, so regions
@@ -77,7 +77,7 @@ def region_styles(levels: Sequence[str]) -> dict[str, PointStyle]:
 
 def money_axis(orientation: str, currency: str = "$") -> pg.AxisItem:
     """An axis whose ticks read as money (``$350k``): the worksheet figures' own axis."""
-    return _money_axis(currency)(orientation=orientation)
+    return money_axis_class(currency)(orientation=orientation)
 
 
 class GroupedAxis(pg.AxisItem):

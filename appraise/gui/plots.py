@@ -331,7 +331,7 @@ _SUBJECT_PAINTERS = {
 }
 
 
-def _new_plot(title: str, bottom: pg.AxisItem, left: pg.AxisItem, legend: bool) -> pg.PlotItem:
+def new_plot(title: str, bottom: pg.AxisItem, left: pg.AxisItem, legend: bool) -> pg.PlotItem:
     for axis in (bottom, left):
         axis.setPen(pg.mkPen(AXIS_COLOUR))
         axis.setTextPen(pg.mkPen(TEXT_COLOUR))
@@ -418,7 +418,7 @@ def price_area_figure(
         if points is not None
         else sale_points(fit, sales=sales, user_exclusions=user_exclusions)
     )
-    plot = _new_plot(
+    plot = new_plot(
         "Price against living area", GroupedAxis("bottom"), money_axis("left", currency), legend
     )
     sp = SalePlot(plot, "price_area")
@@ -444,7 +444,7 @@ def predicted_actual_figure(
     points: SalePoints | None = None,
 ) -> SalePlot:
     """The model's value against the sale price; on the dashed 45-degree line they agree."""
-    plot = _new_plot(
+    plot = new_plot(
         "Model value against sale price",
         money_axis("bottom", currency),
         money_axis("left", currency),
@@ -483,7 +483,7 @@ def residual_figure(
     """Residuals (response scale) against the model's value in price units; zero and ±2s."""
     log = fit is not None and fit.spec.response == "log"
     left = GroupedAxis("left") if log or fit is None else money_axis("left", currency)
-    plot = _new_plot("Residuals against model value", money_axis("bottom", currency), left, legend)
+    plot = new_plot("Residuals against model value", money_axis("bottom", currency), left, legend)
     sp = SalePlot(plot, "residuals")
     plot.setLabel("bottom", f"Model value ({currency})")
     plot.setLabel("left", "Residual (log of price)" if log else f"Residual ({currency})")
@@ -518,7 +518,7 @@ def location_figure(
     The subject comes from ``valuation.subject``, else from ``subject`` (keys are
     sales columns or role names).
     """
-    plot = _new_plot("Where the sales are", GroupedAxis("bottom"), GroupedAxis("left"), legend)
+    plot = new_plot("Where the sales are", GroupedAxis("bottom"), GroupedAxis("left"), legend)
     sp = SalePlot(plot, "location")
     plot.setLabel("bottom", "Longitude (degrees)")
     plot.setLabel("left", "Latitude (degrees)")

@@ -198,7 +198,7 @@ class SalesTableModel(QAbstractTableModel):
         if self._sort is not None and n:
             column, direction = self._sort
             keys = self._sort_keys(column)
-            order = _stable_sort(keys, direction == Qt.SortOrder.DescendingOrder)
+            order = stable_sort(keys, direction == Qt.SortOrder.DescendingOrder)
         if self._filter and n:
             mask = self._search_text().str.contains(self._filter, regex=False).to_numpy()
             order = order[mask[order]]
@@ -269,7 +269,7 @@ class SalesTableModel(QAbstractTableModel):
         return int(self._rows[self._order[position]])
 
 
-def _stable_sort(keys: pd.Series, descending: bool) -> np.ndarray:
+def stable_sort(keys: pd.Series, descending: bool) -> np.ndarray:
     """Positions of ``keys`` in order, ties in their original order, missing values last."""
     ordered = keys.reset_index(drop=True).sort_values(
         ascending=not descending, kind="stable", na_position="last"

@@ -53,7 +53,7 @@ class Line:
     label: str = ""
 
 
-def _money_axis(currency: str):
+def money_axis_class(currency: str):
     import pyqtgraph as pg
 
     class MoneyAxis(pg.AxisItem):
@@ -100,9 +100,9 @@ def scatter_chart(
 
     axis_items = {}
     if money_x:
-        axis_items["bottom"] = _money_axis(currency)(orientation="bottom")
+        axis_items["bottom"] = money_axis_class(currency)(orientation="bottom")
     if money_y:
-        axis_items["left"] = _money_axis(currency)(orientation="left")
+        axis_items["left"] = money_axis_class(currency)(orientation="left")
     plot = pg.PlotItem(axisItems=axis_items)
     view = pg.GraphicsView(background="w")
     view.setCentralItem(plot)

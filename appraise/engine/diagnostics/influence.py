@@ -24,7 +24,7 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from ..modelspec import _toml_str
+from ..modelspec import toml_string
 from ..sales import Exclusion
 from .decomposition import QRDecomposition, decompose
 from .plain import plain
@@ -216,8 +216,8 @@ class SaleFlag:
         return (
             "# confirm the cause (data error, sale not at arm's length) before excluding\n"
             "[[exclude]]\n"
-            f"id = {_toml_str(self.sale_id)}\n"
-            f"reason = {_toml_str(self.reason)}\n"
+            f"id = {toml_string(self.sale_id)}\n"
+            f"reason = {toml_string(self.reason)}\n"
         )
 
     def to_dict(self) -> dict:
