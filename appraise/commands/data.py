@@ -7,19 +7,16 @@ roles, the notes the reader made, and a summary of each column.
 from __future__ import annotations
 
 import argparse
-from collections.abc import Iterable
-from pathlib import Path
 
-from ..engine.errors import ReportError
 from ..engine.exclusions import (
-    EXCLUSION_FIELDS,
     describe_exclusion,
     exclusion_records,
     reason_counts,
 )
 from ..engine.importing import UNIT_TEXT
 from ..engine.roles import ROLES, save_role_map
-from ..engine.sales import ColumnSummary, Exclusion, SalesTable
+from ..engine.sales import ColumnSummary, SalesTable
+from ..report.tables import write_exclusion_log
 from .common import add_json_argument, add_sales_arguments, load_sales_from_args, print_json
 
 
@@ -47,35 +44,12 @@ def run(args: argparse.Namespace) -> int:
     if args.save_roles:
         save_role_map(table.roles, args.save_roles)
     if args.exclusions_csv:
-        write_exclusions_csv(table.excluded, args.exclusions_csv)
+        write_exclusion_log(table.excluded, args.exclusions_csv)
     if args.json:
         print_json(data_report(table))
     else:
         print(format_data(table))
     return 0
-
-
-def write_exclusions_csv(excluded: Iterable[Exclusion], path: str | Path) -> Path:
-    """Write the exclusion log, one row per excluded sale, spreadsheet-safe.
-
-    CSV, or XLSX when ``path`` ends in ``.xlsx``. Cells that a spreadsheet
-    could take for a formula are neutralised by :mod:`appraise.report.tables`.
-    """
-    from ..report.content import Table
-    from ..report.tables import write_csv, write_xlsx
-
-    records = exclusion_records(excluded)
-    values = tuple(tuple(r[k] for k in EXCLUSION_FIELDS) for r in records)
-    rows = tuple(tuple("" if v is None else str(v) for v in r) for r in values)
-    table = Table(
-        key="exclusions", title="Excluded rows", columns=EXCLUSION_FIELDS, rows=rows, values=values
-    )
-    p = Path(path)
-    if p.suffix.lower() == ".xlsx":
-        return write_xlsx([table], p)
-    if p.suffix.lower() not in (".csv", ".txt", ""):
-        raise ReportError("the exclusion log is written as .csv or .xlsx", file=str(p))
-    return write_csv(table, p)
 
 
 def data_report(table: SalesTable) -> dict:

@@ -8,6 +8,8 @@ with the reason beside them.
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 from PySide6.QtCore import (
@@ -23,20 +25,24 @@ from PySide6.QtCore import (
 from PySide6.QtGui import QAction, QBrush, QColor, QKeySequence, QShortcut
 from PySide6.QtWidgets import (
     QAbstractItemView,
+    QFileDialog,
     QHBoxLayout,
     QHeaderView,
     QInputDialog,
     QLabel,
     QLineEdit,
     QMenu,
+    QMessageBox,
     QPushButton,
     QTableView,
     QVBoxLayout,
     QWidget,
 )
 
+from appraise.engine.errors import AppraiseError
 from appraise.engine.sales import ROW_COLUMN, Exclusion
 from appraise.report.numbers import plain
+from appraise.report.tables import write_exclusion_log
 
 from .session import Session
 
@@ -459,7 +465,7 @@ class ExclusionLogModel(QAbstractTableModel):
 
 
 class ExclusionLogView(QWidget):
-    """The exclusion log, with a button to use a sale again."""
+    """The exclusion log, with buttons to use a sale again and to export the log."""
 
     def __init__(self, session: Session, parent: QWidget | None = None) -> None:
         super().__init__(parent)
@@ -478,9 +484,13 @@ class ExclusionLogView(QWidget):
         self.use_again = QPushButton("&Use selected sale again")
         self.use_again.setEnabled(False)
         self.use_again.clicked.connect(self._use_again)
+        self.export_button = QPushButton("E&xport log…")
+        self.export_button.setToolTip("Write the exclusion log as CSV or XLSX (spreadsheet-safe)")
+        self.export_button.clicked.connect(self._ask_export)
 
         bottom = QHBoxLayout()
         bottom.addWidget(self.summary, 1)
+        bottom.addWidget(self.export_button)
         bottom.addWidget(self.use_again)
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
@@ -506,6 +516,24 @@ class ExclusionLogView(QWidget):
         else:
             self.summary.setText("No sale is left out.")
         self._update_button()
+
+    def export(self, path: str | Path) -> Path:
+        """Write the log as shown (import, model and user exclusions) to ``path``."""
+        return write_exclusion_log(self.model.entries, path)
+
+    def _ask_export(self) -> None:
+        path, _f = QFileDialog.getSaveFileName(
+            self,
+            "Export the exclusion log",
+            "exclusions.csv",
+            "CSV (*.csv);;Excel workbook (*.xlsx)",
+        )
+        if not path:
+            return
+        try:
+            self.export(path)
+        except AppraiseError as exc:
+            QMessageBox.warning(self, "Could not export", str(exc))
 
     def _current_changed(self, current: QModelIndex, _previous: QModelIndex) -> None:
         if current.isValid():

@@ -15,6 +15,8 @@ from collections.abc import Iterable, Sequence
 from pathlib import Path
 
 from ..engine.errors import ReportError
+from ..engine.exclusions import EXCLUSION_FIELDS, exclusion_records
+from ..engine.sales import Exclusion
 from .content import Cell, Table, Worksheet
 
 FORMULA_TRIGGERS: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
@@ -129,3 +131,23 @@ def export_tables(
         written.append(write_csv(table, d / f"{key}.csv"))
         written.append(write_xlsx([table], d / f"{key}.xlsx"))
     return tuple(written)
+
+
+def write_exclusion_log(excluded: Iterable[Exclusion], path: str | Path) -> Path:
+    """Write the exclusion log, one row per excluded sale, spreadsheet-safe.
+
+    CSV, or XLSX when ``path`` ends in ``.xlsx``. Cells that a spreadsheet
+    could take for a formula are neutralised as everywhere in this module.
+    """
+    records = exclusion_records(excluded)
+    values = tuple(tuple(r[k] for k in EXCLUSION_FIELDS) for r in records)
+    rows = tuple(tuple("" if v is None else str(v) for v in r) for r in values)
+    table = Table(
+        key="exclusions", title="Excluded rows", columns=EXCLUSION_FIELDS, rows=rows, values=values
+    )
+    p = Path(path)
+    if p.suffix.lower() == ".xlsx":
+        return write_xlsx([table], p)
+    if p.suffix.lower() not in (".csv", ".txt", ""):
+        raise ReportError("the exclusion log is written as .csv or .xlsx", file=str(p))
+    return write_csv(table, p)
