@@ -16,22 +16,8 @@ from PySide6.QtCore import QPoint, Qt, Signal
 from PySide6.QtGui import QColor
 
 from appraise.qtrender.figures import money_axis_class
+from appraise.qtrender.palette import OKABE_ITO, region_style
 
-# Okabe & Ito (2008), "Color Universal Design": eight colours told apart under the
-# common forms of colour-vision deficiency. Black is kept for the subject, so regions
-# draw from the other seven; after seven, colours repeat with another symbol.
-OKABE_ITO: dict[str, str] = {
-    "orange": "#E69F00",
-    "sky blue": "#56B4E9",
-    "bluish green": "#009E73",
-    "yellow": "#F0E442",
-    "blue": "#0072B2",
-    "vermillion": "#D55E00",
-    "reddish purple": "#CC79A7",
-    "black": "#000000",
-}
-REGION_COLOURS: tuple[str, ...] = tuple(v for k, v in OKABE_ITO.items() if k != "black")
-REGION_SYMBOLS: tuple[str, ...] = ("o", "s", "t", "d", "p", "h")
 SINGLE_COLOUR = OKABE_ITO["blue"]
 """Colour of every sale when no region column is mapped."""
 
@@ -64,12 +50,7 @@ def region_styles(levels: Sequence[str]) -> dict[str, PointStyle]:
     style. The first seven get the seven Okabe-Ito colours with a circle; later
     ones cycle the colours again with the next symbol.
     """
-    out = {}
-    for i, level in enumerate(sorted(levels, key=str)):
-        colour = REGION_COLOURS[i % len(REGION_COLOURS)]
-        symbol = REGION_SYMBOLS[(i // len(REGION_COLOURS)) % len(REGION_SYMBOLS)]
-        out[level] = PointStyle(colour, symbol)
-    return out
+    return {level: PointStyle(*region_style(i)) for i, level in enumerate(sorted(levels, key=str))}
 
 
 # --- axes ------------------------------------------------------------------------------------

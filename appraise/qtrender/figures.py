@@ -17,6 +17,7 @@ import numpy as np
 
 from ..report.content import Figure
 from ..report.numbers import money
+from .palette import region_style, rgba
 from .qtapp import ensure_app
 
 LOGICAL_SIZE = (800, 500)
@@ -320,7 +321,7 @@ def price_vs_area(fit: Any, valuation: Any, currency: str = "$") -> bytes | None
     area = fit.frame[col].to_numpy(dtype=float)
     return scatter_chart(
         [
-            Series(area, np.asarray(fit.price, dtype=float), "Sales"),
+            *_by_region(fit, area, np.asarray(fit.price, dtype=float)),
             Series(
                 np.array([subject_area]),
                 np.array([float(valuation.estimate)]),
@@ -339,6 +340,20 @@ def price_vs_area(fit: Any, valuation: Any, currency: str = "$") -> bytes | None
     )
 
 
+def _by_region(fit: Any, x: np.ndarray, y: np.ndarray) -> list[Series]:
+    """One series per region (sorted, the app's colours and symbols), or one for all sales."""
+    col = fit.sales.roles.column("region")
+    if col is None or col not in fit.frame.columns:
+        return [Series(x, y, "Sales")]
+    labels = fit.frame[col].astype("string").fillna("(blank)").to_numpy(dtype=object)
+    out = []
+    for i, level in enumerate(sorted(set(labels), key=str)):
+        mask = labels == level
+        colour, symbol = region_style(i)
+        out.append(Series(x[mask], y[mask], str(level), rgba(colour, 200), symbol))
+    return out
+
+
 def sales_map(fit: Any, valuation: Any) -> bytes | None:
     lat = _subject_number(fit, valuation, "latitude")
     lon = _subject_number(fit, valuation, "longitude")
@@ -350,7 +365,7 @@ def sales_map(fit: Any, valuation: Any) -> bytes | None:
     mid = float(np.nanmean(np.append(lats, lat[1])))
     return scatter_chart(
         [
-            Series(lons, lats, "Sales"),
+            *_by_region(fit, lons, lats),
             Series(np.array([lon[1]]), np.array([lat[1]]), "Subject", SUBJECT_COLOUR, "star", 18),
         ],
         title="Sales and subject",
