@@ -159,23 +159,30 @@ class DesignSpec:
         """Number of design columns."""
         return len(self.names)
 
-    def build(self, frame: pd.DataFrame) -> Design:
+    def build(self, frame: pd.DataFrame, *, unseen: str = "raise") -> Design:
         """Encode ``frame`` (the sales, or a one-row subject) with the learned design.
+
+        ``unseen="flag"`` reports a row holding a ``onehot`` level not learned from the
+        sales as a row problem (not ok, with the reason) instead of raising; batch
+        prediction uses it so one odd row does not stop the others.
 
         Raises
         ------
         DesignError
             A needed header is absent; a value has the wrong type (text or dates where
-            a number is needed, numbers where a date is needed); or a usable row holds
-            a ``onehot`` level not learned from the sales (the error names the column,
-            the level and the known levels).
+            a number is needed, numbers where a date is needed); or, with
+            ``unseen="raise"``, a usable row holds a ``onehot`` level not learned from
+            the sales (the error names the column, the level and the known levels).
         """
         ev = _evaluate(self._terms, frame)
         n = len(frame)
         blocks = [np.ones((n, 1))] if self.intercept else []
         for term, values in zip(self._terms, ev.values, strict=True):
             if term.kind == "onehot":
-                _check_levels(term, values, ev.problem_of < 0, frame)
+                if unseen == "flag":
+                    ev.flag_unseen(term, values)
+                else:
+                    _check_levels(term, values, ev.problem_of < 0, frame)
                 blocks.append(_indicators(term, values))
             else:
                 blocks.append(values)
@@ -507,11 +514,27 @@ class _Evaluated:
 
     values: tuple[np.ndarray, ...]  # plain/poly: (n, k) float; onehot: (n,) labels or None
     problem_of: np.ndarray  # (n,) int index into reasons, -1 when the row is ok
-    reasons: tuple[tuple[str, str | None], ...]
+    reasons: list[tuple[str, str | None]]
 
     def problem_list(self) -> tuple[tuple[int, str, str | None], ...]:
         pos = np.flatnonzero(self.problem_of >= 0)
         return tuple((int(i), *self.reasons[self.problem_of[i]]) for i in pos)
+
+    def flag_unseen(self, t: _Term, labels: np.ndarray) -> None:
+        """Mark rows (not yet flagged) whose ``onehot`` level was never learned."""
+        ok = self.problem_of < 0
+        known = pd.Series(labels, dtype=object).isin(t.levels).to_numpy()
+        unseen = ok & ~pd.isna(labels) & ~known
+        for level in dict.fromkeys(labels[unseen]):
+            mask = unseen & (labels == level)
+            self.problem_of[mask] = len(self.reasons)
+            self.reasons.append(
+                (
+                    f"{t.text}: level '{level}' was not among the levels learned from the "
+                    "sales; the model cannot value it",
+                    t.single_input,
+                )
+            )
 
 
 def _evaluate(terms: Sequence[_Term], frame: pd.DataFrame) -> _Evaluated:
@@ -543,7 +566,7 @@ def _evaluate(terms: Sequence[_Term], frame: pd.DataFrame) -> _Evaluated:
             why = f"{t.text} is not finite" + (f" ({t.hint})" if t.hint else "")
             flag(bad, why, t.single_input)
             values.append(block)
-    return _Evaluated(tuple(values), problem_of, tuple(reasons))
+    return _Evaluated(tuple(values), problem_of, reasons)
 
 
 def _monomials(x: np.ndarray, exponents: Sequence[Sequence[int]]) -> np.ndarray:

@@ -21,6 +21,7 @@ import pandas as pd
 from .design import DesignSpec, learn_design
 from .errors import CollinearityError, FitError, ModelFileError
 from .modelspec import ModelSpec
+from .prediction import Prediction, predict
 from .sales import ROW_COLUMN, Exclusion, SalesTable
 
 COEF_CI_LEVEL = 0.95
@@ -109,6 +110,10 @@ class FitResult:
         if self.spec.response == "log":
             return np.exp(self.fitted) * self.smearing
         return self.fitted
+
+    def predict(self, frame: pd.DataFrame, level: float | None = None) -> Prediction:
+        """Predict any rows (the subject, comparables, a batch): see :mod:`.prediction`."""
+        return predict(self, frame, level)
 
     def leverage(self) -> np.ndarray:
         """Hat diagonal :math:`h_i = x_i'(X'X)^{-1}x_i` of the sales used."""

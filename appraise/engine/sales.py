@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .jsonable import to_jsonable
 from .roles import RoleMap
 from .settings import AreaUnit
 
@@ -104,19 +105,14 @@ class ColumnSummary:
     distinct: int | None = None
 
     def to_dict(self) -> dict:
-        def plain(v):
-            if isinstance(v, pd.Timestamp):
-                return v.date().isoformat() if v == v.normalize() else v.isoformat()
-            return v
-
         out = {
             "name": self.name,
             "role": self.role,
             "kind": self.kind,
             "count": self.count,
             "missing": self.missing,
-            "min": plain(self.min),
-            "max": plain(self.max),
+            "min": to_jsonable(self.min),
+            "max": to_jsonable(self.max),
         }
         if self.kind == "number":
             out["mean"] = self.mean

@@ -18,15 +18,14 @@ For a log response the interval is computed on the log scale and exponentiated;
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
-import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .errors import SubjectError
 from .fitting import FitResult
+from .jsonable import to_jsonable
+from .prediction import check_level, predict
 from .sales import ROW_COLUMN
 
 DATE_SLACK_DAYS = 90
@@ -76,18 +75,6 @@ class Valuation:
         return d
 
 
-def _jsonable(v):
-    if isinstance(v, pd.Timestamp):
-        return v.date().isoformat()
-    if isinstance(v, np.generic):
-        return v.item()
-    if isinstance(v, float) and math.isnan(v):
-        return None
-    if v is pd.NaT or v is None:
-        return None
-    return v
-
-
 def _date_inputs(fit: FitResult) -> list[str]:
     return [c for c in fit.design.inputs if pd.api.types.is_datetime64_any_dtype(fit.frame[c])]
 
@@ -121,7 +108,8 @@ def prepare_subject(fit: FitResult, subject: pd.DataFrame) -> pd.DataFrame:
 
 
 def value_subject(fit: FitResult, subject: pd.DataFrame, level: float | None = None) -> Valuation:
-    """Value a one-row subject frame with ``fit``.
+    """Value a one-row subject frame with ``fit``: a one-row :func:`.prediction.predict`
+    plus the warnings a reader needs beside the value.
 
     Raises
     ------
@@ -130,38 +118,20 @@ def value_subject(fit: FitResult, subject: pd.DataFrame, level: float | None = N
     DesignError
         The subject has a category level never seen in the sales.
     """
-    level = fit.spec.level if level is None else float(level)
-    if not 0 < level < 1:
-        raise SubjectError(f"level must be strictly between 0 and 1, not {level}")
+    level = fit.spec.level if level is None else check_level(level)
     subject = prepare_subject(fit, subject)
     missing = [c for c in fit.design.inputs if c not in subject.columns]
     if missing:
         raise SubjectError(
             "the subject lacks value(s) the model needs: " + ", ".join(missing), column=missing[0]
         )
-    built = fit.design.build(subject)
-    if not built.row_ok[0]:
-        _, reason, column = built.problems[0]
-        raise SubjectError(f"cannot value the subject: {reason}", column=column)
-    x0 = np.asarray(built.matrix[0], dtype=float)
-
-    yhat = float(x0 @ fit.params)
-    var_mean = float(x0 @ fit.cov_params @ x0)
-    var_obs = var_mean + fit.sigma**2
-    tq = float(stats.t.ppf(1 - (1 - level) / 2, fit.df_resid))
-    se_mean, se_obs = math.sqrt(var_mean), math.sqrt(var_obs)
-    lo, hi = yhat - tq * se_obs, yhat + tq * se_obs
-    mlo, mhi = yhat - tq * se_mean, yhat + tq * se_mean
-
-    if fit.spec.response == "log":
-        median = math.exp(yhat)
-        estimate = median * fit.smearing
-        lo, hi, mlo, mhi = (math.exp(v) for v in (lo, hi, mlo, mhi))
-    else:
-        median = None
-        estimate = yhat
-
-    h0 = float(x0 @ fit.xtx_inv @ x0)
+    pred = predict(fit, subject, level, unseen="raise")
+    if not pred.ok[0]:
+        raise SubjectError(f"cannot value the subject: {pred.reasons[0]}", column=pred.columns[0])
+    lo, hi = (float(v[0]) for v in pred.interval(level))
+    mlo, mhi = (float(v[0]) for v in pred.interval(level, kind="mean"))
+    median = None if pred.median is None else float(pred.median[0])
+    h0 = float(pred.leverage[0])
     h_max = float(fit.leverage().max())
     warnings = list(extrapolation_warnings(fit, subject))
     if h0 > h_max:
@@ -173,21 +143,21 @@ def value_subject(fit: FitResult, subject: pd.DataFrame, level: float | None = N
     if fit.spec.response == "linear" and lo < 0:
         warnings.append("the lower bound is negative: a linear response fits this subject poorly")
 
-    subj = {k: _jsonable(v) for k, v in subject.iloc[0].items() if k != ROW_COLUMN}
+    subj = {k: to_jsonable(v) for k, v in subject.iloc[0].items() if k != ROW_COLUMN}
     return Valuation(
-        estimate=float(estimate),
-        median=None if median is None else float(median),
-        low=float(lo),
-        high=float(hi),
+        estimate=float(pred.estimate[0]),
+        median=median,
+        low=lo,
+        high=hi,
         level=level,
-        mean_low=float(mlo),
-        mean_high=float(mhi),
+        mean_low=mlo,
+        mean_high=mhi,
         response=fit.spec.response,
         leverage=h0,
         max_sample_leverage=h_max,
         df=fit.df_resid,
-        se_obs=se_obs,
-        se_mean=se_mean,
+        se_obs=float(pred.se_obs[0]),
+        se_mean=float(pred.se_mean[0]),
         warnings=tuple(warnings),
         subject=subj,
     )

@@ -49,7 +49,6 @@ import dataclasses
 import datetime as _dt
 import hashlib
 import json
-import math
 import os
 import tempfile
 from collections.abc import Mapping, Sequence
@@ -57,12 +56,10 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, NamedTuple
 
-import numpy as np
-import pandas as pd
-
 from .. import __version__
 from .errors import AppraiseError, WorkfileError
 from .importing import load_sales
+from .jsonable import to_jsonable
 from .modelspec import ModelSpec, model_from_dict
 from .roles import RoleMap
 from .sales import ROW_COLUMN, Exclusion, SalesTable
@@ -162,42 +159,10 @@ class Restored(NamedTuple):
 
 
 def json_safe(value: Any, *, where: str = "value") -> Any:
-    """``value`` as plain JSON types: dicts, lists, str, int, float, bool, None.
-
-    Dates and timestamps become ISO strings, numpy scalars Python scalars,
-    non-finite floats and pandas' missing markers ``None``. Anything else is a
-    :class:`WorkfileError` naming ``where`` (the key path), so a state that
-    cannot be written is refused before the old workfile is touched.
-    """
-    if value is None or value is pd.NA or value is pd.NaT:
-        return None
-    if isinstance(value, bool | str):
-        return value
-    if isinstance(value, np.bool_):
-        return bool(value)
-    if isinstance(value, int | np.integer):
-        return int(value)
-    if isinstance(value, float | np.floating):
-        f = float(value)
-        return f if math.isfinite(f) else None
-    if isinstance(value, pd.Timestamp):
-        return None if pd.isna(value) else value.isoformat()
-    if isinstance(value, _dt.date | _dt.datetime | np.datetime64):
-        if isinstance(value, np.datetime64):
-            return None if np.isnat(value) else pd.Timestamp(value).isoformat()
-        return value.isoformat()
-    if isinstance(value, Mapping):
-        out = {}
-        for k, v in value.items():
-            if not isinstance(k, str):
-                raise WorkfileError(f"cannot be saved: key {k!r} in {where} is not text")
-            out[k] = json_safe(v, where=f"{where}.{k}")
-        return out
-    if isinstance(value, list | tuple | np.ndarray):
-        return [json_safe(v, where=f"{where}[{i}]") for i, v in enumerate(value)]
-    raise WorkfileError(
-        f"cannot be saved: {where} is a {type(value).__name__}, which a workfile cannot hold"
-    )
+    """``value`` as plain JSON types (:func:`.jsonable.to_jsonable`); anything a JSON
+    file cannot hold is a :class:`WorkfileError` naming ``where`` (the key path), so a
+    state that cannot be written is refused before the old workfile is touched."""
+    return to_jsonable(value, where=where, error=WorkfileError, full_timestamps=True)
 
 
 def import_settings_to_dict(settings: ImportSettings) -> dict:

@@ -1,0 +1,206 @@
+"""Predict any rows with a fitted model: the one prediction path of the tool.
+
+The subject, the comparables of the grid, a batch of properties, the sales left out of
+the fit (drawn on the plots) and the model assistant's candidates all go through
+:func:`predict`. For a design row :math:`x_0`, :math:`\\hat y_0 = x_0'\\hat\\beta`,
+:math:`V` the coefficient covariance of the fit's type (classical: :math:`s^2(X'X)^{-1}`)
+and :math:`s_0^2` the error variance of one sale at that row (the constant :math:`s^2`
+unless the fit models the spread):
+
+* standard error of the mean (a typical similar property): :math:`\\sqrt{x_0' V x_0}`;
+* standard error of a single sale (this property): :math:`\\sqrt{s_0^2 + x_0' V x_0}`;
+* intervals :math:`\\hat y_0 \\pm t_{1-\\alpha/2,\\,n-p}\\,se`. statsmodels'
+  ``get_prediction(...).summary_frame()`` computes the same (``mean_ci_*``, ``obs_ci_*``).
+
+For a log response :math:`e^{\\hat y_0}` estimates the *median* price, the mean is Duan's
+(1983) smearing estimate :math:`e^{\\hat y_0}\\cdot\\frac1n\\sum e^{\\hat e_i}`, and the
+bounds are the log-scale bounds exponentiated.
+
+Rows that cannot be predicted (a missing input, a non-finite feature, a category level the
+sales never had) come back with ``ok`` False and their reason; they are never dropped.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
+
+from .errors import SubjectError
+
+if TYPE_CHECKING:  # pragma: no cover - typing only
+    from .fitting import FitResult
+
+
+@dataclass(frozen=True, eq=False)
+class Prediction:
+    """Predictions for some rows, on the response scale and in price.
+
+    All arrays have one entry per row given to :func:`predict`, in that order; rows that
+    are not ``ok`` hold NaN and a ``reason`` (with the ``column`` at fault, when known).
+
+    Attributes
+    ----------
+    response:
+        ``"linear"`` or ``"log"``.
+    level:
+        Level of the intervals held (:meth:`interval` gives any other level).
+    df:
+        Residual degrees of freedom of the fit (for the t quantile).
+    fitted:
+        :math:`\\hat y_0` on the response scale (log price for a log response).
+    se_mean, se_obs:
+        Standard errors of the mean and of a single sale, response scale.
+    leverage:
+        :math:`x_0'(X'X)^{-1}x_0` (the classical hat value of the row).
+    smearing:
+        Duan's factor (1.0 for a linear response).
+    """
+
+    response: str
+    level: float
+    df: int
+    fitted: np.ndarray
+    se_mean: np.ndarray
+    se_obs: np.ndarray
+    leverage: np.ndarray
+    ok: np.ndarray
+    reasons: tuple[str | None, ...]
+    columns: tuple[str | None, ...]
+    smearing: float
+
+    def __len__(self) -> int:
+        return len(self.fitted)
+
+    # --- response scale ----------------------------------------------------------------
+    def t_quantile(self, level: float | None = None) -> float:
+        from scipy import stats
+
+        level = self.level if level is None else check_level(level)
+        return float(stats.t.ppf(1 - (1 - level) / 2, self.df))
+
+    def response_interval(
+        self, level: float | None = None, *, kind: str = "obs"
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Bounds on the response scale; ``kind`` ``"obs"`` (one sale) or ``"mean"``."""
+        se = {"obs": self.se_obs, "mean": self.se_mean}[kind]
+        tq = self.t_quantile(level)
+        return self.fitted - tq * se, self.fitted + tq * se
+
+    # --- price scale -------------------------------------------------------------------
+    @property
+    def estimate(self) -> np.ndarray:
+        """Point estimate in price: the mean (smearing-corrected for a log response)."""
+        if self.response == "log":
+            return np.exp(self.fitted) * self.smearing
+        return self.fitted
+
+    @property
+    def median(self) -> np.ndarray | None:
+        """:math:`e^{\\hat y_0}` for a log response, None for a linear one."""
+        return np.exp(self.fitted) if self.response == "log" else None
+
+    def interval(
+        self, level: float | None = None, *, kind: str = "obs"
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Price-scale bounds at ``level``: the single-sale interval, or ``kind="mean"``."""
+        lo, hi = self.response_interval(level, kind=kind)
+        if self.response == "log":
+            return np.exp(lo), np.exp(hi)
+        return lo, hi
+
+    @property
+    def low(self) -> np.ndarray:
+        return self.interval()[0]
+
+    @property
+    def high(self) -> np.ndarray:
+        return self.interval()[1]
+
+    def to_frame(self, level: float | None = None) -> pd.DataFrame:
+        """One row per predicted row: estimate, median, bounds, standard errors, reason."""
+        lo, hi = self.interval(level)
+        mlo, mhi = self.interval(level, kind="mean")
+        data = {"estimate": self.estimate}
+        if self.response == "log":
+            data["median"] = self.median
+        data.update(
+            low=lo,
+            high=hi,
+            mean_low=mlo,
+            mean_high=mhi,
+            fitted=self.fitted,
+            se_mean=self.se_mean,
+            se_obs=self.se_obs,
+            leverage=self.leverage,
+            reason=list(self.reasons),
+        )
+        return pd.DataFrame(data)
+
+
+def check_level(level: float) -> float:
+    level = float(level)
+    if not 0 < level < 1:
+        raise SubjectError(f"level must be strictly between 0 and 1, not {level}")
+    return level
+
+
+def predict(
+    fit: FitResult, frame: pd.DataFrame, level: float | None = None, *, unseen: str = "flag"
+) -> Prediction:
+    """Predict every row of ``frame`` with ``fit`` (see the module docstring).
+
+    Raises
+    ------
+    DesignError
+        ``frame`` lacks a column the model reads (a row-level problem, such as a
+        missing value or an unseen category level, is reported per row instead;
+        ``unseen="raise"`` makes an unseen level an error, as for the subject).
+    """
+    level = fit.spec.level if level is None else check_level(level)
+    built = fit.design.build(frame, unseen=unseen)
+    n = len(frame)
+    ok = np.asarray(built.row_ok, dtype=bool).copy()
+    reasons: list[str | None] = [None] * n
+    columns: list[str | None] = [None] * n
+    for pos, reason, column in built.problems:
+        reasons[pos] = reason
+        columns[pos] = column
+    X = np.asarray(built.matrix, dtype=float)
+    fitted = np.full(n, np.nan)
+    var_mean = np.full(n, np.nan)
+    lev = np.full(n, np.nan)
+    if ok.any():
+        Xo = X[ok]
+        fitted[ok] = Xo @ fit.params
+        var_mean[ok] = np.einsum("ij,jk,ik->i", Xo, fit.cov_params, Xo)
+        lev[ok] = np.einsum("ij,jk,ik->i", Xo, fit.xtx_inv, Xo)
+    var_obs = var_mean + error_variance(fit, frame, ok)
+    return Prediction(
+        response=fit.spec.response,
+        level=level,
+        df=fit.df_resid,
+        fitted=fitted,
+        se_mean=np.sqrt(var_mean),
+        se_obs=np.sqrt(var_obs),
+        leverage=lev,
+        ok=ok,
+        reasons=tuple(reasons),
+        columns=tuple(columns),
+        smearing=fit.smearing,
+    )
+
+
+def error_variance(fit: FitResult, frame: pd.DataFrame, ok: np.ndarray) -> np.ndarray:
+    """Variance of one sale's error at each row: the fit's :math:`s^2` for every row.
+
+    This is the single place where a model of the error spread plugs in.
+    """
+    out = np.full(len(frame), np.nan)
+    out[ok] = fit.sigma**2
+    return out
+
+
+__all__ = ["Prediction", "check_level", "predict"]
