@@ -4,12 +4,10 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import sys
-from pathlib import Path
 
-from ..engine.errors import AppraiseError
-from ..engine.modelspec import ModelSpec, load_model
+from ..engine.jsonable import to_jsonable
+from ..engine.modelspec import ModelSpec
 from ..engine.settings import ImportSettings
 from ..report.cautions import ONE_LINE_CAUTION
 
@@ -52,11 +50,9 @@ def import_settings(args: argparse.Namespace) -> ImportSettings:
 
 
 def load_sales_from_args(args: argparse.Namespace):
-    from ..engine.importing import load_sales
-    from ..engine.roles import load_role_map
+    from .. import pipeline
 
-    roles = load_role_map(args.roles) if getattr(args, "roles", None) else None
-    return load_sales(args.sales, import_settings(args), roles)
+    return pipeline.load(args.sales, import_settings(args), getattr(args, "roles", None))
 
 
 def add_model_argument(parser: argparse.ArgumentParser, *, multiple: bool = False) -> None:
@@ -97,57 +93,27 @@ def add_json_argument(parser: argparse.ArgumentParser) -> None:
 
 
 def load_model_from_args(args: argparse.Namespace) -> ModelSpec:
-    return load_model(args.model)
+    from .. import pipeline
+
+    return pipeline.read_model(args.model)
 
 
 def fit_from_args(args: argparse.Namespace, spec: ModelSpec | None = None):
     """Read sales and model, fit; returns ``(sales, spec, fit)``."""
-    from ..engine.fitting import fit_model
+    from .. import pipeline
 
     sales = load_sales_from_args(args)
     spec = spec if spec is not None else load_model_from_args(args)
-    return sales, spec, fit_model(sales, spec)
+    return sales, spec, pipeline.fit(sales, spec)
 
 
 def read_subject_from_args(args: argparse.Namespace, sales):
-    from ..engine.subject import read_subject
+    from .. import pipeline
 
-    return read_subject(args.subject, sales, import_settings(args))
-
-
-def _clean(o):
-    if isinstance(o, float) and not math.isfinite(o):
-        return None
-    if isinstance(o, dict):
-        return {k: _clean(v) for k, v in o.items()}
-    if isinstance(o, list | tuple):
-        return [_clean(v) for v in o]
-    return o
+    return pipeline.subject_frame(args.subject, sales, import_settings(args))
 
 
 def print_json(obj) -> None:
     """JSON on stdout: NaN and infinities become null, so any JSON reader accepts it."""
-    json.dump(_clean(obj), sys.stdout, indent=2, default=str, allow_nan=False)
+    json.dump(to_jsonable(obj), sys.stdout, indent=2, allow_nan=False)
     sys.stdout.write("\n")
-
-
-def sample_dir() -> Path:
-    """The shipped sample_data folder (beside the package in a source checkout)."""
-    here = Path(__file__).resolve().parents[2] / "sample_data"
-    if not (here / "ashcombe_sales.csv").is_file():
-        raise AppraiseError(
-            "the sample data folder was not found; run this from a source checkout of appraise",
-            file=str(here),
-        )
-    return here
-
-
-def has_display() -> bool:
-    """Whether a Qt window can be shown: a display server, or an explicit Qt platform."""
-    import os
-
-    if os.environ.get("QT_QPA_PLATFORM"):
-        return True
-    if sys.platform.startswith("linux") or "bsd" in sys.platform:
-        return bool(os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
-    return True  # Windows and macOS always have a window system

@@ -15,9 +15,9 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from .. import pipeline
 from ..engine.diagnostics import Comparison, compare_models
-from ..engine.fitting import fit_model
-from ..engine.modelspec import load_model
+from ..report.numbers import money
 from .common import (
     SHORT_CAUTION,
     add_json_argument,
@@ -27,7 +27,6 @@ from .common import (
     print_json,
 )
 from .diagnose import add_diagnostic_arguments, diagnostic_settings
-from .text import money
 
 
 def register(sub) -> None:
@@ -53,7 +52,7 @@ def model_labels(paths: list[str]) -> list[str]:
 def run(args: argparse.Namespace) -> int:
     settings = diagnostic_settings(args)
     sales = load_sales_from_args(args)
-    fits = [fit_model(sales, load_model(path)) for path in args.model]
+    fits = [pipeline.fit(sales, pipeline.read_model(path)) for path in args.model]
     labels = model_labels(args.model)
     comparison = compare_models(fits, labels, settings)
     if args.json:

@@ -9,14 +9,11 @@ from __future__ import annotations
 
 import argparse
 
-from ..engine.fitting import fit_model
-from ..engine.importing import load_sales
-from ..engine.modelspec import load_model
 from ..engine.settings import ImportSettings
-from ..engine.subject import read_subject
-from ..engine.valuation import value_subject
-from .common import SHORT_CAUTION, has_display, sample_dir
-from .text import format_fit, format_valuation
+from ..qtrender.qtapp import has_display
+from ..report.text import format_fit, format_valuation
+from ..resources import SAMPLE_MODEL, SAMPLE_SALES, SAMPLE_SUBJECT, sample_dir
+from .common import SHORT_CAUTION
 
 
 def register(sub) -> None:
@@ -34,16 +31,17 @@ def run(args: argparse.Namespace) -> int:
         from ..gui.app import open_sample
 
         return open_sample()
+    from .. import pipeline
+
     folder = sample_dir()
     settings = ImportSettings()
-    sales = load_sales(folder / "ashcombe_sales.csv", settings)
-    spec = load_model(folder / "ashcombe_model.toml")
-    fit = fit_model(sales, spec)
-    subject = read_subject(folder / "subject.json", sales, settings)
-    val = value_subject(fit, subject)
+    sales = pipeline.load(folder / SAMPLE_SALES, settings)
+    spec = pipeline.read_model(folder / SAMPLE_MODEL)
+    run_ = pipeline.analyse(sales, spec, subject=folder / SAMPLE_SUBJECT, import_settings=settings)
+    fit, val = run_.fit, run_.valuation
     print("Sample scenario: Ashcombe Vale (invented town and sales)")
     print(
-        f"Read {sales.source.rows_in_file} rows from {folder.name}/ashcombe_sales.csv: "
+        f"Read {sales.source.rows_in_file} rows from {folder.name}/{SAMPLE_SALES}: "
         f"{sales.n_used} used, {len(sales.excluded)} excluded at import"
     )
     print()

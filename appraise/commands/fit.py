@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 
+from ..report.text import format_fit
 from .common import (
     add_json_argument,
     add_model_argument,
@@ -11,7 +12,6 @@ from .common import (
     fit_from_args,
     print_json,
 )
-from .text import format_fit
 
 
 def register(sub) -> None:

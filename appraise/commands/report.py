@@ -18,7 +18,8 @@ from .common import (
     add_model_argument,
     add_sales_arguments,
     add_subject_arguments,
-    fit_from_args,
+    load_model_from_args,
+    load_sales_from_args,
     read_subject_from_args,
 )
 
@@ -54,7 +55,6 @@ def register(sub) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from ..engine.valuation import value_subject
     from ..qtrender.figures import worksheet_figures
     from ..qtrender.pdf import write_pdf
     from ..report.html import render_html
@@ -68,14 +68,18 @@ def run(args: argparse.Namespace) -> int:
     for target in (out, *(Path(x) for x in (args.html,) if x)):
         if not target.parent.is_dir():  # fail before the fit, not after it
             raise ReportError("the folder does not exist", file=str(target))
-    sales, _, fit = fit_from_args(args)
-    subject = read_subject_from_args(args, sales)
-    valuation = value_subject(fit, subject, args.level)
-    diagnostics = None
-    if not args.no_diagnostics:
-        from ..engine.diagnostics import diagnose
+    from .. import pipeline
+    from ..engine.diagnostics import DiagnosticSettings
 
-        diagnostics = diagnose(fit)
+    sales = load_sales_from_args(args)
+    run_ = pipeline.analyse(
+        sales,
+        load_model_from_args(args),
+        subject=read_subject_from_args(args, sales),
+        level=args.level,
+        diagnostics=None if args.no_diagnostics else DiagnosticSettings(),
+    )
+    fit, valuation, diagnostics = run_.fit, run_.valuation, run_.diagnostics
     settings = ReportSettings(currency=args.currency, page_size=args.page_size)
     worksheet = build_worksheet(
         fit,

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import argparse
 
-from ..engine.valuation import value_subject
+from .. import pipeline
+from ..report.text import format_valuation
 from .common import (
     SHORT_CAUTION,
     add_json_argument,
@@ -15,7 +16,6 @@ from .common import (
     print_json,
     read_subject_from_args,
 )
-from .text import format_valuation
 
 
 def register(sub) -> None:
@@ -32,7 +32,7 @@ def register(sub) -> None:
 def run(args: argparse.Namespace) -> int:
     sales, _, fit = fit_from_args(args)
     subject = read_subject_from_args(args, sales)
-    val = value_subject(fit, subject, args.level)
+    val = pipeline.value(fit, subject, level=args.level)
     if args.json:
         d = val.to_dict()
         d["caution"] = SHORT_CAUTION

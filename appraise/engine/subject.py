@@ -34,7 +34,16 @@ from .settings import ImportSettings
 EFFECTIVE_DATE = "effective_date"
 
 
-def _read_subject_file(path: Path, settings: ImportSettings) -> dict[str, object]:
+def read_subject_attributes(
+    path: str | Path,
+    settings: ImportSettings = ImportSettings(),  # noqa: B008 - frozen, safe as a default
+) -> dict[str, object]:
+    """The attributes of a subject file as a plain dict, values as written (not cleaned).
+
+    The one reader of subject files: a JSON object, or a file with a header and one row
+    (CSV, XLSX, Parquet). :func:`read_subject` cleans the values against the sales.
+    """
+    path = Path(path)
     file = str(path)
     if path.suffix.lower() == ".json":
         try:
@@ -159,7 +168,7 @@ def read_subject(
         values = dict(source)
     else:
         file = str(source)
-        values = _read_subject_file(Path(source), settings)
+        values = read_subject_attributes(source, settings)
     landed: dict[str, tuple[str, object, str | None]] = {}  # column -> (key, value, kind)
     for key, value in values.items():
         key = str(key).strip()

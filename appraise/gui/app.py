@@ -6,7 +6,7 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from appraise.commands.common import has_display
+from appraise.qtrender.qtapp import has_display
 
 NO_DISPLAY_MESSAGE = (
     "appraise: no display found; the desktop app needs one. "

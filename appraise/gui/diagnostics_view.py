@@ -54,7 +54,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from appraise.commands.diagnose import format_diagnostics
+from appraise.report.text import format_diagnostics
 from appraise.engine.diagnostics import Diagnostics, SaleFlag
 from appraise.report.cautions import ONE_LINE_CAUTION
 

@@ -18,7 +18,7 @@ from typing import Any
 
 from PySide6.QtCore import QObject, QThreadPool, QTimer, Signal
 
-from appraise.commands.common import sample_dir
+from appraise.resources import sample_dir
 from appraise.engine.diagnostics import Diagnostics, DiagnosticSettings
 from appraise.engine.fitting import FitResult
 from appraise.engine.modelspec import ModelSpec

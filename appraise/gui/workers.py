@@ -11,7 +11,6 @@ is no longer current, which is how a stale fit or a cancelled load is discarded.
 
 from __future__ import annotations
 
-import json
 import logging
 import threading
 import traceback
@@ -22,21 +21,20 @@ from typing import Any
 
 from PySide6.QtCore import QObject, QRunnable, Signal
 
-from appraise.engine.diagnostics import DiagnosticSettings, diagnose
-from appraise.engine.errors import AppraiseError, Cancelled, SubjectError
-from appraise.engine.fitting import FitResult, fit_model
-from appraise.engine.importing import load_sales
-from appraise.engine.modelspec import ModelSpec, load_model
+from appraise import pipeline
+from appraise.engine.diagnostics import DiagnosticSettings
+from appraise.engine.errors import AppraiseError, Cancelled
+from appraise.engine.fitting import FitResult
+from appraise.engine.modelspec import ModelSpec
 from appraise.engine.roles import RoleMap
 from appraise.engine.sales import Exclusion, SalesTable
 from appraise.engine.settings import ImportSettings
-from appraise.engine.subject import read_subject
-from appraise.engine.valuation import Valuation, value_subject
+from appraise.engine.subject import read_subject_attributes
+from appraise.engine.valuation import Valuation
 
 log = logging.getLogger(__name__)
 
-Report = Callable[[str, object], None]
-"""How a job hands over a partial result: ``report(stage, payload)``."""
+Report = pipeline.Report
 
 
 # --- the jobs (no Qt) ----------------------------------------------------------
@@ -60,34 +58,32 @@ class FitJob:
 
 
 def run_fit_job(job: FitJob, report: Report) -> None:
-    """Fit (unless reusing), then value the subject, then compute diagnostics.
+    """The pipeline's :func:`~appraise.pipeline.analyse` for one refit.
 
-    Reports, in this order: ``("fit", FitResult)``; ``("valuation", Valuation | None)``
-    or ``("valuation_error", message)``; ``("diagnostics", Diagnostics)`` (new fits,
-    or a reused one with ``recheck``). A failing fit raises; the task turns that into a
-    ``failed`` report.
+    Reports, in this order: ``("fit", FitResult)`` (new fits only);
+    ``("valuation", Valuation | None)`` or ``("valuation_error", message)``;
+    ``("diagnostics", Diagnostics)`` (new fits, or a reused one with ``recheck``).
+    A failing fit raises; the task turns that into a ``failed`` report.
     """
-    fit = job.reuse
-    if fit is None:
-        fit = fit_model(job.sales, job.spec, user_exclusions=job.user_exclusions)
-        report("fit", fit)
-    try:
-        report("valuation", value_job_subject(fit, job.subject, job.import_settings))
-    except AppraiseError as exc:
-        report("valuation_error", str(exc))
-    if job.reuse is None or job.recheck:
-        report("diagnostics", diagnose(fit, job.diagnostic_settings))
+    checks = job.reuse is None or job.recheck
+    pipeline.analyse(
+        job.sales,
+        job.spec,
+        subject=dict(job.subject),
+        import_settings=job.import_settings,
+        user_exclusions=job.user_exclusions,
+        diagnostics=job.diagnostic_settings if checks else None,
+        reuse=job.reuse,
+        report=report,
+        strict_subject=False,
+    )
 
 
 def value_job_subject(
     fit: FitResult, subject: Mapping[str, Any], settings: ImportSettings
 ) -> Valuation | None:
     """The subject's valuation under ``fit``; None while no attribute is filled in."""
-    filled = {k: v for k, v in subject.items() if v is not None and str(v).strip() != ""}
-    if not filled:
-        return None
-    frame = read_subject(filled, fit.sales, settings)
-    return value_subject(fit, frame, level=fit.spec.level)
+    return pipeline.value(fit, subject, settings)
 
 
 @dataclass(frozen=True)
@@ -118,23 +114,14 @@ def run_load_job(job: LoadJob, report: Report) -> LoadOutcome:
             raise Cancelled(f"reading {job.path.name} was cancelled")
         report("progress", (fraction, message))
 
-    sales = load_sales(job.path, job.settings, job.roles, progress=progress)
-    spec = load_model(job.model_path) if job.model_path is not None else None
-    subject = read_subject_file(job.subject_path) if job.subject_path is not None else None
+    sales = pipeline.load(job.path, job.settings, job.roles, progress=progress)
+    spec = pipeline.read_model(job.model_path) if job.model_path is not None else None
+    subject = (
+        read_subject_attributes(job.subject_path, job.settings)
+        if job.subject_path is not None
+        else None
+    )
     return LoadOutcome(sales, spec, subject)
-
-
-def read_subject_file(path: Path) -> dict:
-    """The attributes of a subject JSON file as a plain dict (values not yet cleaned)."""
-    try:
-        data = json.loads(Path(path).read_text(encoding="utf-8-sig"))
-    except OSError as exc:
-        raise SubjectError(f"cannot read subject file: {exc.strerror}", file=str(path)) from None
-    except json.JSONDecodeError as exc:
-        raise SubjectError(f"not valid JSON: {exc.msg}", file=str(path), row=exc.lineno) from None
-    if not isinstance(data, dict):
-        raise SubjectError("a subject file holds one JSON object of attributes", file=str(path))
-    return data
 
 
 # --- running a job on a pool thread ----------------------------------------------

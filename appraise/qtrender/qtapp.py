@@ -14,6 +14,16 @@ def _no_display() -> bool:
     return False
 
 
+def has_display() -> bool:
+    """Whether a Qt window can be shown: a display server, or an explicit Qt platform.
+
+    Imports no Qt, so the command line can ask before deciding to open the window.
+    """
+    if os.environ.get("QT_QPA_PLATFORM"):
+        return True
+    return not _no_display()  # Windows and macOS always have a window system
+
+
 def ensure_app():
     """Return the running ``QApplication``, creating one if there is none.
 
