@@ -192,10 +192,9 @@ def interval_bar(x: float, estimate: float, low: float, high: float) -> list[pg.
 
 
 def subject_label(x: float, y: float) -> pg.TextItem:
-    """The word "Subject" beside the subject's star."""
-    label = pg.TextItem(
-        "Subject", color=SUBJECT_COLOUR, anchor=(-0.12, 1.05), fill=pg.mkBrush(255, 255, 255, 190)
-    )
+    """The word "Subject" beside the subject's star, on no background (the sales under
+    it stay visible)."""
+    label = pg.TextItem("Subject", color=SUBJECT_COLOUR, anchor=(-0.15, 1.1))
     font = label.textItem.font()
     font.setBold(True)
     label.setFont(font)

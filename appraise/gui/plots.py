@@ -1,43 +1,43 @@
-"""The four sale plots and the view that shows them beside a session.
+"""The window's four sale plots, drawn with pyqtgraph from the one plot-data definition.
 
-* price against living area, coloured by region, the subject's estimate and
-  its prediction interval marked;
-* predicted against sale price, with the 45-degree line of a perfect fit;
-* residuals against fitted price, with zero and two residual standard deviations;
-* where the sales are (longitude, latitude; degrees scaled so distances look
-  right at the sales' latitude), the subject marked.
-
-The ``build_*_plot`` functions are pure: results in, a ``pg.PlotItem`` out, no
-session, so the worksheet's figure renderer can draw the very same plots off
-screen; each takes ``points=`` (from :func:`sale_points`) so that a caller
-drawing several computes them once. :class:`PlotsView` builds them for a
-:class:`~appraise.gui.session.Session`, redraws them when the session's results
-change, and turns clicks into the session's selection and right clicks into
-exclusions (with a reason).
+What each plot shows (titles, axes, the subject, reference lines, the map in km) is
+defined without Qt in :mod:`appraise.report.plotdata`, which the worksheet's figures
+(:mod:`appraise.qtrender.figures`) draw too. Here the data become interactive
+``pg.PlotItem`` objects: hover a sale for its details, click to select it, right-click
+to exclude it (with a reason). The ``*_figure`` functions are pure (results in, a
+:class:`SalePlot` out); :class:`PlotsView` builds them for a
+:class:`~appraise.gui.session.Session` and redraws them when its results change.
 """
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from html import escape
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-import pandas as pd
 import pyqtgraph as pg
 from PySide6.QtCore import QPoint, QTimer
-from PySide6.QtWidgets import QLabel, QMenu, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QGraphicsEllipseItem, QLabel, QMenu, QVBoxLayout, QWidget
 
-from appraise.engine.errors import AppraiseError
-from appraise.engine.sales import ROW_COLUMN, Exclusion, SalesTable
-from appraise.report.numbers import money
+from appraise.engine.sales import Exclusion, SalesTable
+from appraise.report.plotdata import (
+    PlotData,
+    SalePoints,
+    group_order,
+    location_plot,
+    model_sale_plot,
+    price_area_plot,
+    residual_plot,
+    sale_points,
+    subject_mark,
+)
 
 from .plot_items import (
-    AREA_UNIT_LABELS,
     AXIS_COLOUR,
     EXCLUDED_COLOUR,
+    REFERENCE_LINE_COLOUR,
     SINGLE_COLOUR,
     SUBJECT_COLOUR,
     TEXT_COLOUR,
@@ -61,180 +61,17 @@ if TYPE_CHECKING:
 
     from .session import Session
 
-NO_REGION = "(no region)"
-
-
-# --- the numbers behind the plots -----------------------------------------------------------
-
-
-@dataclass(frozen=True, eq=False)
-class SalePoints:
-    """One entry per sale in the sales table (imported rows), aligned arrays.
-
-    ``used`` is False for sales the model or the user left out; ``reason`` says
-    why. ``fitted`` is the model's value in price units (for a log response the
-    smearing-corrected mean, as the valuation's estimate), also for a left-out
-    sale when the model can be evaluated on it; NaN otherwise. ``resid`` is on
-    the response scale (log price for a log response): sale minus model.
-    """
-
-    rows: np.ndarray
-    sale_ids: np.ndarray
-    price: np.ndarray
-    area: np.ndarray | None
-    region: np.ndarray | None
-    lat: np.ndarray | None
-    lon: np.ndarray | None
-    used: np.ndarray
-    reason: np.ndarray
-    fitted: np.ndarray
-    resid: np.ndarray
-    area_unit: str
-    roles: Mapping[str, str] = field(default_factory=dict)
-
-    def __len__(self) -> int:
-        return len(self.rows)
-
-    @property
-    def unit_label(self) -> str:
-        return AREA_UNIT_LABELS.get(self.area_unit, self.area_unit)
-
-    def describe(self, i: int, currency: str = "$") -> str:
-        """What a hover shows for sale ``i``: id, price, living area, region, file row."""
-        lines = [f"Sale {self.sale_ids[i]}" if self.sale_ids[i] is not None else "Sale"]
-        lines.append(f"Price {money(self.price[i], currency)}")
-        if self.area is not None and math.isfinite(self.area[i]):
-            lines.append(f"Living area {self.area[i]:,.0f} {self.unit_label}")
-        if self.region is not None:
-            lines.append(f"Region {self.region[i]}")
-        if math.isfinite(self.fitted[i]):
-            lines.append(f"Model {money(self.fitted[i], currency)}")
-        lines.append(f"File row {int(self.rows[i])}")
-        if not self.used[i]:
-            lines.append(f"Excluded: {self.reason[i]}")
-        return "\n".join(lines)
-
-
-def _column(frame: pd.DataFrame, name: str | None, kind: str = "number") -> np.ndarray | None:
-    if name is None or name not in frame.columns:
-        return None
-    if kind == "number":
-        return pd.to_numeric(frame[name], errors="coerce").to_numpy(dtype=float)
-    values = frame[name].astype("string").fillna(NO_REGION).str.strip()
-    return values.replace("", NO_REGION).to_numpy(dtype=object)
-
-
-def sale_points(
-    fit: FitResult | None = None,
-    *,
-    sales: SalesTable | None = None,
-    user_exclusions: Iterable[Exclusion] = (),
-) -> SalePoints:
-    """Collect what the plots draw from a fit (or, before any fit, from the sales alone).
-
-    ``user_exclusions`` made after ``fit`` was computed are shown as excluded at once,
-    before the refit lands.
-    """
-    if fit is not None:
-        sales = fit.sales
-    if sales is None:
-        raise ValueError("sale_points needs a fit or a sales table")
-    frame = sales.frame
-    roles = sales.roles
-    rows = frame[ROW_COLUMN].to_numpy(dtype=np.int64)
-    n = len(rows)
-    price_col = fit.target if fit is not None else roles.column("price")
-    price = _column(frame, price_col)
-    if price is None:
-        price = np.full(n, np.nan)
-    id_col = roles.column("sale_id")
-    if id_col in frame.columns:
-        ids = frame[id_col].astype("string").to_numpy(dtype=object, na_value=None)
-    else:
-        ids = np.full(n, None, dtype=object)
-
-    reason = np.full(n, None, dtype=object)
-    used = np.ones(n, dtype=bool)
-    fitted = np.full(n, np.nan)
-    resid = np.full(n, np.nan)
-    pos = pd.Index(rows)
-    if fit is not None:
-        at = pos.get_indexer(np.asarray(fit.rows, dtype=np.int64))
-        ok = at >= 0
-        used[:] = False
-        used[at[ok]] = True
-        fitted[at[ok]] = fit.fitted_price()[ok]
-        resid[at[ok]] = np.asarray(fit.resid, dtype=float)[ok]
-        for e in fit.excluded:
-            i = pos.get_indexer([e.row])[0]
-            if i >= 0:
-                reason[i] = e.reason
-        _predict_left_out(fit, frame, ~used, price, fitted, resid)
-    for e in user_exclusions:
-        i = pos.get_indexer([int(e.row)])[0]
-        if i >= 0:
-            used[i] = False
-            reason[i] = e.reason
-    reason[~used & (reason == None)] = "left out of the model"  # noqa: E711 (elementwise)
-    return SalePoints(
-        rows=rows,
-        sale_ids=ids,
-        price=price,
-        area=_column(frame, roles.column("living_area")),
-        region=_column(frame, roles.column("region"), kind="text"),
-        lat=_column(frame, roles.column("latitude")),
-        lon=_column(frame, roles.column("longitude")),
-        used=used,
-        reason=reason,
-        fitted=fitted,
-        resid=resid,
-        area_unit=sales.area_unit,
-        roles=dict(roles.columns),
-    )
-
-
-def _predict_left_out(fit, frame, left_out, price, fitted, resid) -> None:
-    """The model's value for sales it did not use, where their inputs allow (in place).
-
-    A left-out sale may lack an input or hold a category level the fit never saw;
-    it then simply has no model value.
-    """
-    idx = np.flatnonzero(left_out)
-    if idx.size == 0:
-        return
-    sub = frame.iloc[idx]
-    try:
-        built = fit.design.build(sub)
-    except AppraiseError:
-        return
-    ok = np.asarray(built.row_ok, dtype=bool)
-    if not ok.any():
-        return
-    xb = np.asarray(built.matrix, dtype=float)[ok] @ np.asarray(fit.params, dtype=float)
-    at = idx[ok]
-    if fit.spec.response == "log":
-        fitted[at] = np.exp(xb) * fit.smearing
-        with np.errstate(divide="ignore", invalid="ignore"):
-            resid[at] = np.log(price[at]) - xb
-    else:
-        fitted[at] = xb
-        resid[at] = price[at] - xb
-
-
-def subject_value(
-    subject: Mapping[str, Any] | None, roles: Mapping[str, str], role: str
-) -> float | None:
-    """A numeric subject attribute looked up by its sales column, else by its role name."""
-    if not subject:
-        return None
-    for key in (roles.get(role), role):
-        if key is not None and key in subject:
-            try:
-                v = float(subject[key])
-            except (TypeError, ValueError):
-                return None
-            return v if math.isfinite(v) else None
-    return None
+__all__ = [
+    "PlotsView",
+    "SalePlot",
+    "SalePoints",
+    "location_figure",
+    "predicted_actual_figure",
+    "price_area_figure",
+    "residual_figure",
+    "sale_menu",
+    "sale_points",
+]
 
 
 # --- building the plots -----------------------------------------------------------------------
@@ -244,8 +81,8 @@ def subject_value(
 class SalePlot:
     """A built plot, plus what a view needs to highlight a sale or move the subject in it.
 
-    ``kind`` is one of "price_area", "model_sale", "residuals", "location";
-    ``rows``/``xy`` are the file rows drawn (sorted) and their positions.
+    ``kind`` is one of "price_area", "model_sale", "residuals", "location" (or a checks
+    plot's kind); ``rows``/``xy`` are the file rows drawn (sorted) and their positions.
     """
 
     plot: pg.PlotItem
@@ -256,6 +93,7 @@ class SalePlot:
     xy: np.ndarray = field(default_factory=lambda: np.zeros((0, 2)))
     ring: pg.ScatterPlotItem | None = None
     subject_items: list = field(default_factory=list)
+    points: SalePoints | None = None
 
     def position(self, row: int) -> tuple[float, float] | None:
         """Where the sale at file row ``row`` is drawn, or None."""
@@ -283,52 +121,36 @@ class SalePlot:
         for item in self.subject_items:
             self.plot.removeItem(item)
         self.subject_items = []
-        if self.ring is None:  # nothing drawn: the plot holds a message
+        if self.ring is None or self.points is None:  # a message, or not a sale plot
             return
-        for item in _SUBJECT_PAINTERS[self.kind](self, valuation, subject):
+        mark = subject_mark(self.kind, self.points, valuation, subject)
+        for item in _subject_items(mark):
             self.plot.addItem(item)
             self.subject_items.append(item)
 
 
-def _subject_on_price_area(sp: SalePlot, valuation, subject) -> list:
-    area0 = subject_value(valuation.subject if valuation else None, sp.roles, "living_area")
-    if valuation is None or area0 is None:
+def _subject_items(mark) -> list:
+    if mark is None:
         return []
-    est = valuation.estimate
-    return [
-        *interval_bar(area0, est, valuation.low, valuation.high),
-        subject_marker(area0, est),
-        subject_label(area0, est),
-    ]
-
-
-def _subject_on_model_sale(sp: SalePlot, valuation, subject) -> list:
-    if valuation is None:
-        return []
-    return [reference_line(0, valuation.estimate, "Subject", dashed=False)]
-
-
-def _subject_on_residuals(sp: SalePlot, valuation, subject) -> list:
-    if valuation is None:
-        return []
-    return [reference_line(90, valuation.estimate, "Subject", dashed=False)]
-
-
-def _subject_on_map(sp: SalePlot, valuation, subject) -> list:
-    source = valuation.subject if valuation is not None else subject
-    lat0 = subject_value(source, sp.roles, "latitude")
-    lon0 = subject_value(source, sp.roles, "longitude")
-    if lat0 is None or lon0 is None:
-        return []
-    return [subject_marker(lon0, lat0), subject_label(lon0, lat0)]
-
-
-_SUBJECT_PAINTERS = {
-    "price_area": _subject_on_price_area,
-    "model_sale": _subject_on_model_sale,
-    "residuals": _subject_on_residuals,
-    "location": _subject_on_map,
-}
+    items = []
+    if mark.line is not None:
+        angle = 90 if mark.line == "vertical" else 0
+        at = mark.x if angle == 90 else mark.y
+        items.append(reference_line(angle, at, "Subject", dashed=False))
+    if mark.x is None or mark.y is None:
+        return items
+    if mark.low is not None and mark.high is not None:
+        items += interval_bar(mark.x, mark.y, mark.low, mark.high)
+    items.append(subject_marker(mark.x, mark.y))
+    items.append(subject_label(mark.x, mark.y))
+    for r in mark.rings_km:
+        circle = QGraphicsEllipseItem(mark.x - r, mark.y - r, 2 * r, 2 * r)
+        circle.setPen(pg.mkPen(REFERENCE_LINE_COLOUR, width=1, style=pg.QtCore.Qt.PenStyle.DotLine))
+        circle.setZValue(-4)
+        label = pg.TextItem(f"{r:g} km", color=REFERENCE_LINE_COLOUR, anchor=(0.5, 1.0))
+        label.setPos(mark.x, mark.y + r)
+        items += [circle, label]
+    return items
 
 
 def new_plot(title: str, bottom: pg.AxisItem, left: pg.AxisItem, legend: bool) -> pg.PlotItem:
@@ -355,8 +177,11 @@ def new_plot(title: str, bottom: pg.AxisItem, left: pg.AxisItem, legend: bool) -
 def _scatter_sales(
     sp: SalePlot, pts: SalePoints, x: np.ndarray, y: np.ndarray, currency: str
 ) -> None:
-    """Excluded sales hollow and grey underneath, used sales on top by region."""
-    finite = np.isfinite(x) & np.isfinite(y)
+    """Excluded sales hollow and grey underneath, used sales on top by region group
+    (beyond the readable number of colours the smallest regions share one "other")."""
+    drawn_mask = np.zeros(len(pts), dtype=bool)
+    drawn_mask[pts.drawn()] = True
+    finite = np.isfinite(x) & np.isfinite(y) & drawn_mask
     order_idx = np.argsort(pts.rows, kind="stable")
     order_rows = pts.rows[order_idx]
 
@@ -372,19 +197,19 @@ def _scatter_sales(
             pts.rows[out],
             colour=EXCLUDED_COLOUR,
             hollow=True,
-            name=f"Excluded ({int(out.sum())})",
+            name=f"Excluded ({int((~pts.used).sum())})",
             tip=tip,
         )
         s.setZValue(-1)
         sp.plot.addItem(s)
         sp.scatters.append(s)
     keep = pts.used & finite
-    if pts.region is None:
+    if pts.groups is None:
         groups = [("Sales", keep, SINGLE_COLOUR, "o")]
     else:
-        styles = region_styles(list(dict.fromkeys(pts.region)))
+        styles = region_styles(group_order(pts.groups))
         groups = [
-            (lvl, keep & (pts.region == lvl), st.colour, st.symbol) for lvl, st in styles.items()
+            (lvl, keep & (pts.groups == lvl), st.colour, st.symbol) for lvl, st in styles.items()
         ]
     for name, mask, colour, symbol in groups:
         if mask.any():
@@ -399,6 +224,69 @@ def _scatter_sales(
     sp.roles = pts.roles
     sp.ring = selection_ring()
     sp.plot.addItem(sp.ring)
+
+
+def _axis(orientation: str, money: bool, currency: str) -> pg.AxisItem:
+    return money_axis(orientation, currency) if money else GroupedAxis(orientation)
+
+
+def draw_plot(
+    data: PlotData,
+    pts: SalePoints,
+    *,
+    currency: str = "$",
+    selected: int | None = None,
+    legend: bool = True,
+    valuation: Valuation | None = None,
+    subject: Mapping[str, Any] | None = None,
+) -> SalePlot:
+    """Draw one :class:`~appraise.report.plotdata.PlotData` as an interactive plot."""
+    title = data.title if data.note is None else f"{data.title} ({data.note})"
+    plot = new_plot(
+        title,
+        _axis("bottom", data.x_axis.money, currency),
+        _axis("left", data.y_axis.money, currency),
+        legend,
+    )
+    sp = SalePlot(plot, data.kind, points=pts)
+    plot.setLabel("bottom", data.x_axis.label)
+    plot.setLabel("left", data.y_axis.label)
+    if data.message is not None or data.x is None or data.y is None:
+        show_message(plot, data.message or "Nothing to draw.")
+        return sp
+    _scatter_sales(sp, pts, data.x, data.y, currency)
+    for line in data.lines:
+        if line.kind == "diagonal":
+            both = np.concatenate([data.x, data.y])
+            both = both[np.isfinite(both)]
+            if both.size:
+                lo, hi = float(both.min()), float(both.max())
+                plot.addItem(reference_line(45, (0, 0), line.label))
+                plot.setXRange(lo, hi, padding=0.04)
+                plot.setYRange(lo, hi, padding=0.04)
+        else:
+            angle = 0 if line.kind == "horizontal" else 90
+            plot.addItem(reference_line(angle, line.value, line.label, dashed=line.dashed))
+    if data.equal_aspect:
+        plot.getViewBox().setAspectLocked(True, ratio=1.0)
+        _scale_bar(plot, data)
+    sp.set_subject(valuation, subject)
+    sp.select(selected)
+    return sp
+
+
+def _scale_bar(plot: pg.PlotItem, data: PlotData) -> None:
+    """A round-length bar in the map's corner (the axes are in km, drawn to scale)."""
+    x = data.x[np.isfinite(data.x)] if data.x is not None else np.zeros(0)
+    if x.size == 0:
+        return
+    span = float(x.max() - x.min()) or 1.0
+    size = next((v for v in (10.0, 5.0, 2.0, 1.0, 0.5) if v <= span / 4), 0.5)
+    bar = pg.ScaleBar(size=size, suffix="m", pen=pg.mkPen(TEXT_COLOUR, width=2))
+    bar.size = size  # in km: the label below says so
+    bar.text.setText(f"{size:g} km")
+    bar.setParentItem(plot.getViewBox())
+    bar.anchor((1, 1), (1, 1), offset=(-16, -16))
 
 
 def price_area_figure(
@@ -418,19 +306,14 @@ def price_area_figure(
         if points is not None
         else sale_points(fit, sales=sales, user_exclusions=user_exclusions)
     )
-    plot = new_plot(
-        "Price against living area", GroupedAxis("bottom"), money_axis("left", currency), legend
+    return draw_plot(
+        price_area_plot(pts, valuation, currency),
+        pts,
+        currency=currency,
+        selected=selected,
+        legend=legend,
+        valuation=valuation,
     )
-    sp = SalePlot(plot, "price_area")
-    plot.setLabel("bottom", f"Gross living area ({pts.unit_label})")
-    plot.setLabel("left", f"Sale price ({currency})")
-    if pts.area is None:
-        show_message(plot, "No living-area column is mapped: map one under column roles.")
-        return sp
-    _scatter_sales(sp, pts, pts.area, pts.price, currency)
-    sp.set_subject(valuation)
-    sp.select(selected)
-    return sp
 
 
 def predicted_actual_figure(
@@ -444,30 +327,17 @@ def predicted_actual_figure(
     points: SalePoints | None = None,
 ) -> SalePlot:
     """The model's value against the sale price; on the dashed 45-degree line they agree."""
-    plot = new_plot(
-        "Model value against sale price",
-        money_axis("bottom", currency),
-        money_axis("left", currency),
-        legend,
-    )
-    sp = SalePlot(plot, "model_sale")
-    plot.setLabel("bottom", f"Sale price ({currency})")
-    plot.setLabel("left", f"Model value ({currency})")
-    if fit is None:
-        show_message(plot, "No fit yet.")
-        return sp
+    if fit is None and points is None:
+        return _message_plot(model_sale_plot, currency, legend)
     pts = points if points is not None else sale_points(fit, user_exclusions=user_exclusions)
-    _scatter_sales(sp, pts, pts.price, pts.fitted, currency)
-    both = np.concatenate([pts.price, pts.fitted])
-    both = both[np.isfinite(both)]
-    if both.size:
-        lo, hi = float(both.min()), float(both.max())
-        plot.addItem(reference_line(45, (0, 0), "model = sale"))
-        plot.setXRange(lo, hi, padding=0.04)
-        plot.setYRange(lo, hi, padding=0.04)
-    sp.set_subject(valuation)
-    sp.select(selected)
-    return sp
+    return draw_plot(
+        model_sale_plot(pts, fit, valuation, currency),
+        pts,
+        currency=currency,
+        selected=selected,
+        legend=legend,
+        valuation=valuation,
+    )
 
 
 def residual_figure(
@@ -481,24 +351,17 @@ def residual_figure(
     points: SalePoints | None = None,
 ) -> SalePlot:
     """Residuals (response scale) against the model's value in price units; zero and ±2s."""
-    log = fit is not None and fit.spec.response == "log"
-    left = GroupedAxis("left") if log or fit is None else money_axis("left", currency)
-    plot = new_plot("Residuals against model value", money_axis("bottom", currency), left, legend)
-    sp = SalePlot(plot, "residuals")
-    plot.setLabel("bottom", f"Model value ({currency})")
-    plot.setLabel("left", "Residual (log of price)" if log else f"Residual ({currency})")
-    if fit is None:
-        show_message(plot, "No fit yet.")
-        return sp
+    if fit is None and points is None:
+        return _message_plot(residual_plot, currency, legend)
     pts = points if points is not None else sale_points(fit, user_exclusions=user_exclusions)
-    _scatter_sales(sp, pts, pts.fitted, pts.resid, currency)
-    plot.addItem(reference_line(0, 0.0, None, dashed=False))
-    s = float(fit.sigma)
-    plot.addItem(reference_line(0, 2 * s, "+2s"))
-    plot.addItem(reference_line(0, -2 * s, "-2s"))
-    sp.set_subject(valuation)
-    sp.select(selected)
-    return sp
+    return draw_plot(
+        residual_plot(pts, fit, valuation, currency),
+        pts,
+        currency=currency,
+        selected=selected,
+        legend=legend,
+        valuation=valuation,
+    )
 
 
 def location_figure(
@@ -513,61 +376,57 @@ def location_figure(
     legend: bool = True,
     points: SalePoints | None = None,
 ) -> SalePlot:
-    """Longitude against latitude, one degree of longitude drawn cos(latitude) as wide.
-
-    The subject comes from ``valuation.subject``, else from ``subject`` (keys are
-    sales columns or role names).
-    """
-    plot = new_plot("Where the sales are", GroupedAxis("bottom"), GroupedAxis("left"), legend)
-    sp = SalePlot(plot, "location")
-    plot.setLabel("bottom", "Longitude (degrees)")
-    plot.setLabel("left", "Latitude (degrees)")
-    if fit is None and sales is None:
-        show_message(plot, "No sales loaded.")
-        return sp
+    """The sales in km east and north of their median position, to scale; the subject
+    (from ``valuation.subject``, else from ``subject``) with distance rings."""
+    if fit is None and sales is None and points is None:
+        return _message_plot(location_plot, currency, legend, "No sales loaded.")
     pts = (
         points
         if points is not None
         else sale_points(fit, sales=sales, user_exclusions=user_exclusions)
     )
-    if pts.lat is None or pts.lon is None:
-        show_message(plot, "Latitude and longitude are not mapped: map them under column roles.")
-        return sp
-    _scatter_sales(sp, pts, pts.lon, pts.lat, currency)
-    lat_ok = pts.lat[np.isfinite(pts.lat)]
-    if lat_ok.size:
-        # x pixels per degree / y pixels per degree = cos(latitude): equal distances look equal
-        plot.getViewBox().setAspectLocked(True, ratio=math.cos(math.radians(lat_ok.mean())))
-    sp.set_subject(valuation, subject)
-    sp.select(selected)
-    return sp
+    return draw_plot(
+        location_plot(pts, valuation, subject),
+        pts,
+        currency=currency,
+        selected=selected,
+        legend=legend,
+        valuation=valuation,
+        subject=subject,
+    )
 
 
-def build_price_area_plot(fit, valuation=None, **kw) -> pg.PlotItem:
-    """:func:`price_area_figure`'s plot: price against living area, subject marked."""
-    return price_area_figure(fit, valuation, **kw).plot
+def _message_plot(builder, currency: str, legend: bool, message: str | None = None) -> SalePlot:
+    """A plot that only says why it is empty (no fit, no sales), with its usual axes."""
+    empty = SalePoints(
+        rows=np.zeros(0, dtype=np.int64),
+        sale_ids=np.zeros(0, dtype=object),
+        price=np.zeros(0),
+        area=None,
+        region=None,
+        lat=None,
+        lon=None,
+        used=np.zeros(0, dtype=bool),
+        reason=np.zeros(0, dtype=object),
+        fitted=np.zeros(0),
+        resid=np.zeros(0),
+        area_unit="ft2",
+    )
+    data = (
+        builder(empty, None) if builder is location_plot else builder(empty, None, None, currency)
+    )
+    if message is not None:
+        from dataclasses import replace
 
-
-def build_predicted_actual_plot(fit, valuation=None, **kw) -> pg.PlotItem:
-    """:func:`predicted_actual_figure`'s plot: model value against sale price, 45-degree line."""
-    return predicted_actual_figure(fit, valuation, **kw).plot
-
-
-def build_residual_plot(fit, valuation=None, **kw) -> pg.PlotItem:
-    """:func:`residual_figure`'s plot: residuals against the model's value."""
-    return residual_figure(fit, valuation, **kw).plot
-
-
-def build_location_plot(fit, valuation=None, **kw) -> pg.PlotItem:
-    """:func:`location_figure`'s plot: the sales' coordinates, subject marked."""
-    return location_figure(fit, valuation, **kw).plot
+        data = replace(data, message=message)
+    return draw_plot(data, empty, currency=currency, legend=legend)
 
 
 def legend_html(pts: SalePoints | None) -> str:
     """A one-line legend shared by the four plots (rich text for a QLabel)."""
     parts = []
-    if pts is not None and pts.region is not None:
-        for level, st in region_styles(list(dict.fromkeys(pts.region))).items():
+    if pts is not None and pts.groups is not None:
+        for level, st in region_styles(group_order(pts.groups)).items():
             mark = {"o": "●", "s": "■", "t": "▼", "d": "◆"}.get(st.symbol, "⬟")
             parts.append(f'<span style="color:{st.colour}">{mark}</span>&nbsp;{escape(level)}')
     elif pts is not None:
@@ -706,10 +565,6 @@ class PlotsView(QWidget):
     def open_sale_menu(self, row: int, screen_pos: QPoint) -> None:
         self.session.select_sale(row)
         self.sale_menu(row).exec(screen_pos)
-
-    def ask_exclusion(self, row: int) -> bool:
-        """Ask why the sale is left out (the sales table's own dialog); exclude it if told."""
-        return exclude_with_reason(self, self.session, row)
 
 
 def sale_menu(parent: QWidget, session: Session, row: int, suggested: str = "") -> QMenu:

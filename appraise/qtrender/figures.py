@@ -2,8 +2,8 @@
 
 Each chart is laid out at 800 x 500 logical pixels and exported twice as wide
 (1600 px), so text and markers stay legible in print. The functions that know
-about fits (:func:`worksheet_figures`) only pick the numbers; :func:`scatter_chart`
-draws.
+about fits (:func:`worksheet_figures`) take the plot data the window draws too
+(:mod:`appraise.report.plotdata`); :func:`scatter_chart` draws.
 """
 
 from __future__ import annotations
@@ -47,10 +47,10 @@ class Series:
 
 @dataclass(frozen=True)
 class Line:
-    """A straight reference line through two points."""
+    """A reference line through its points (two for a straight line; more for a ring)."""
 
-    x: tuple[float, float]
-    y: tuple[float, float]
+    x: tuple[float, ...]
+    y: tuple[float, ...]
     label: str = ""
 
 
@@ -199,177 +199,101 @@ def _png_bytes(image) -> bytes:
 
 # --- the worksheet's charts ------------------------------------------------------
 def worksheet_figures(fit: Any, valuation: Any, *, currency: str = "$") -> tuple[Figure, ...]:
-    """The worksheet's charts for a fit and the subject's valuation.
+    """The worksheet's sale plots for a fit and the subject's valuation: the very plots
+    the window shows (:mod:`appraise.report.plotdata`), drawn for print.
 
-    Predicted against actual price, residuals against fitted values, price
-    against living area with the subject marked, and a map of the sales with the
-    subject (the last two only when the living-area / latitude and longitude
-    roles are mapped and the subject has those values).
+    A plot that cannot be drawn (no living-area or coordinate roles mapped) is left out.
     """
-    figures = [
-        Figure(predicted_vs_actual(fit, valuation, currency), _caption_pva(valuation), "predicted"),
-        Figure(residual_chart(fit), _caption_resid(fit), "residuals"),
-    ]
-    area = price_vs_area(fit, valuation, currency)
-    if area is not None:
-        figures.append(Figure(area, _caption_area(valuation), "price-area"))
-    where = sales_map(fit, valuation)
-    if where is not None:
-        figures.append(
-            Figure(
-                where,
-                "Where the sales are (longitude against latitude), with "
-                "the subject marked by a star.",
-                "map",
-            )
-        )
+    from ..report.plotdata import sale_plots, sale_points
+
+    points = sale_points(fit)
+    figures = []
+    for data in sale_plots(points, fit, valuation, currency=currency):
+        if data.message is not None or data.x is None:
+            continue
+        key = FIGURE_KEYS[data.kind]
+        figures.append(Figure(plot_chart(data, points, currency), data.caption, key))
     return tuple(figures)
 
 
-def _lvl(valuation: Any) -> str:
-    return f"{100.0 * float(valuation.level):g}%"
+FIGURE_KEYS = {
+    "price_area": "price-area",
+    "model_sale": "predicted",
+    "residuals": "residuals",
+    "location": "map",
+}
+"""The worksheet's name of each sale plot (kept from the first worksheets)."""
 
 
-def _caption_pva(valuation: Any) -> str:
-    return (
-        "Predicted against actual sale price. Points on the dashed line are predicted "
-        f"exactly; the subject's estimate is shown on the line with its {_lvl(valuation)} "
-        "prediction interval."
-    )
+EXCLUDED_COLOUR = (138, 138, 138, 150)
 
 
-def _caption_resid(fit: Any) -> str:
-    scale = " (log scale)" if fit.spec.response == "log" else ""
-    return (
-        f"Residuals against fitted values{scale}. A funnel or a curve suggests unequal "
-        "variance or a missing term."
-    )
+def plot_chart(data: Any, points: Any, currency: str = "$") -> bytes:
+    """One :class:`~appraise.report.plotdata.PlotData` as PNG bytes: left-out sales grey
+    and small, the used sales by region group, the subject in its own colour."""
+    from ..report.plotdata import group_order
 
-
-def _caption_area(valuation: Any) -> str:
-    return (
-        "Sale price against living area; the subject (star) is drawn at its estimate with "
-        f"its {_lvl(valuation)} prediction interval."
-    )
-
-
-def _subject_bar(valuation: Any) -> tuple[tuple[float, float], ...]:
-    return ((float(valuation.low), float(valuation.high)),)
-
-
-def predicted_vs_actual(fit: Any, valuation: Any, currency: str = "$") -> bytes:
-    pred = np.asarray(fit.fitted_price(), dtype=float)
-    actual = np.asarray(fit.price, dtype=float)
-    est = float(valuation.estimate)
-    lo = float(np.nanmin([pred.min(), actual.min(), valuation.low]))
-    hi = float(np.nanmax([pred.max(), actual.max(), valuation.high]))
-    return scatter_chart(
-        [
-            Series(pred, actual, "Sales"),
+    drawn = np.zeros(len(points), dtype=bool)
+    drawn[points.drawn()] = True
+    x = np.asarray(data.x, dtype=float)
+    y = np.asarray(data.y, dtype=float)
+    series: list[Series] = []
+    out = ~points.used & drawn
+    if out.any():
+        series.append(Series(x[out], y[out], "Left out", EXCLUDED_COLOUR, "o", 5.0))
+    keep = points.used & drawn
+    if points.groups is None:
+        series.append(Series(x[keep], y[keep], "Sales"))
+    else:
+        levels = sorted(group_order(points.groups), key=str)
+        for i, level in enumerate(levels):
+            mask = keep & (points.groups == level)
+            if mask.any():
+                colour, symbol = region_style(i)
+                series.append(Series(x[mask], y[mask], str(level), rgba(colour, 200), symbol))
+    lines: list[Line] = []
+    finite = np.concatenate([x[np.isfinite(x)], y[np.isfinite(y)]])
+    xs = x[np.isfinite(x)]
+    for ln in data.lines:
+        if ln.kind == "diagonal" and finite.size:
+            lo, hi = float(finite.min()), float(finite.max())
+            lines.append(Line((lo, hi), (lo, hi), ln.label or ""))
+        elif ln.kind == "horizontal" and xs.size:
+            lines.append(
+                Line((float(xs.min()), float(xs.max())), (ln.value, ln.value), ln.label or "")
+            )
+    mark = data.subject
+    if mark is not None and mark.x is not None and mark.y is not None:
+        bars = ((mark.low, mark.high),) if mark.low is not None and mark.high is not None else ()
+        series.append(
             Series(
-                np.array([est]),
-                np.array([est]),
-                "Subject (estimate)",
+                np.array([mark.x]),
+                np.array([mark.y]),
+                "Subject (estimate)" if bars else "Subject",
                 SUBJECT_COLOUR,
                 "star",
                 18,
-                _subject_bar(valuation),
-            ),
-        ],
-        lines=[Line((lo, hi), (lo, hi), "Predicted = actual")],
-        title="Predicted against actual price",
-        xlabel="Predicted price",
-        ylabel="Sale price",
-        money_x=True,
-        money_y=True,
+                bars,
+            )
+        )
+        for r in mark.rings_km:
+            t = np.linspace(0, 2 * math.pi, 97)
+            lines.append(
+                Line(tuple(mark.x + r * np.cos(t)), tuple(mark.y + r * np.sin(t)), f"{r:g} km")
+            )
+    elif mark is not None and mark.line == "vertical" and mark.x is not None:
+        ys = y[np.isfinite(y)]
+        if ys.size:
+            lines.append(Line((mark.x, mark.x), (float(ys.min()), float(ys.max())), "Subject"))
+    title = data.title if data.note is None else f"{data.title} ({data.note})"
+    return scatter_chart(
+        series,
+        lines=lines,
+        title=title,
+        xlabel=data.x_axis.label,
+        ylabel=data.y_axis.label,
+        money_x=data.x_axis.money,
+        money_y=data.y_axis.money,
         currency=currency,
-    )
-
-
-def residual_chart(fit: Any) -> bytes:
-    fitted = np.asarray(fit.fitted, dtype=float)
-    resid = np.asarray(fit.resid, dtype=float)
-    log = fit.spec.response == "log"
-    return scatter_chart(
-        [Series(fitted, resid, "")],
-        lines=[Line((float(fitted.min()), float(fitted.max())), (0.0, 0.0))],
-        title="Residuals against fitted values",
-        xlabel="Fitted value (log of price)" if log else "Fitted price",
-        ylabel="Residual (log scale)" if log else "Residual",
-        money_x=not log,
-        money_y=not log,
-    )
-
-
-def _subject_number(fit: Any, valuation: Any, role: str) -> tuple[str, float] | None:
-    col = fit.sales.roles.column(role)
-    if col is None or col not in fit.frame.columns:
-        return None
-    v = (valuation.subject or {}).get(col)
-    try:
-        fv = float(v)
-    except (TypeError, ValueError):
-        return None
-    return (col, fv) if math.isfinite(fv) else None
-
-
-def price_vs_area(fit: Any, valuation: Any, currency: str = "$") -> bytes | None:
-    found = _subject_number(fit, valuation, "living_area")
-    if found is None:
-        return None
-    col, subject_area = found
-    area = fit.frame[col].to_numpy(dtype=float)
-    return scatter_chart(
-        [
-            *_by_region(fit, area, np.asarray(fit.price, dtype=float)),
-            Series(
-                np.array([subject_area]),
-                np.array([float(valuation.estimate)]),
-                "Subject (estimate)",
-                SUBJECT_COLOUR,
-                "star",
-                18,
-                _subject_bar(valuation),
-            ),
-        ],
-        title="Sale price against living area",
-        xlabel=f"Living area ({fit.sales.area_unit})",
-        ylabel="Sale price",
-        money_y=True,
-        currency=currency,
-    )
-
-
-def _by_region(fit: Any, x: np.ndarray, y: np.ndarray) -> list[Series]:
-    """One series per region (sorted, the app's colours and symbols), or one for all sales."""
-    col = fit.sales.roles.column("region")
-    if col is None or col not in fit.frame.columns:
-        return [Series(x, y, "Sales")]
-    labels = fit.frame[col].astype("string").fillna("(blank)").to_numpy(dtype=object)
-    out = []
-    for i, level in enumerate(sorted(set(labels), key=str)):
-        mask = labels == level
-        colour, symbol = region_style(i)
-        out.append(Series(x[mask], y[mask], str(level), rgba(colour, 200), symbol))
-    return out
-
-
-def sales_map(fit: Any, valuation: Any) -> bytes | None:
-    lat = _subject_number(fit, valuation, "latitude")
-    lon = _subject_number(fit, valuation, "longitude")
-    if lat is None or lon is None:
-        return None
-    lats = fit.frame[lat[0]].to_numpy(dtype=float)
-    lons = fit.frame[lon[0]].to_numpy(dtype=float)
-    # Equal distances look equal: a degree of longitude is cos(latitude) degrees of latitude.
-    mid = float(np.nanmean(np.append(lats, lat[1])))
-    return scatter_chart(
-        [
-            *_by_region(fit, lons, lats),
-            Series(np.array([lon[1]]), np.array([lat[1]]), "Subject", SUBJECT_COLOUR, "star", 18),
-        ],
-        title="Sales and subject",
-        xlabel="Longitude",
-        ylabel="Latitude",
-        aspect=max(math.cos(math.radians(mid)), 0.05),
+        aspect=1.0 if data.equal_aspect else None,
     )

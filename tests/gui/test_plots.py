@@ -35,7 +35,6 @@ from appraise.engine.sales import Exclusion
 from appraise.engine.valuation import value_subject
 from appraise.gui.plot_items import OKABE_ITO, SaleScatter, region_styles
 from appraise.gui.plots import (
-    build_location_plot,
     location_figure,
     predicted_actual_figure,
     price_area_figure,
@@ -298,9 +297,11 @@ def test_map_draws_equal_ground_distances_equally_long(qtbot):
     d_east = (
         d_north * _haversine_km(60, 10, 60 + d_north, 10) / _haversine_km(60, 10, 60, 10 + d_north)
     )
-    origin = _pixel(view, fig.plot, 10.0, 60.0)
-    north = _pixel(view, fig.plot, 10.0, 60.0 + d_north)
-    east = _pixel(view, fig.plot, 10.0 + d_east, 60.0)
+    # the map is drawn in km east and north of the sales' median position
+    km = fig.points.to_km
+    origin = _pixel(view, fig.plot, *km(60.0, 10.0))
+    north = _pixel(view, fig.plot, *km(60.0 + d_north, 10.0))
+    east = _pixel(view, fig.plot, *km(60.0, 10.0 + d_east))
     px_north = abs(north.y() - origin.y())
     px_east = abs(east.x() - origin.x())
     # same ground distance (haversine), same length on screen, to within a pixel in ~50
@@ -312,7 +313,7 @@ def test_map_draws_equal_ground_distances_equally_long(qtbot):
         if isinstance(i, pg.ScatterPlotItem) and i.opts["symbol"] == "star"
     ]
     assert [tuple(map(float, (s.getData()[0][0], s.getData()[1][0]))) for s in stars] == [
-        (10.0, 60.0)
+        km(60.0, 10.0)
     ]
 
 
@@ -327,7 +328,7 @@ def test_plots_say_what_is_missing_instead_of_drawing_nothing(qapp, hprice1):
         texts = [i.toPlainText() for i in fig.plot.items if isinstance(i, pg.TextItem)]
         assert any(words in t for t in texts), texts
         assert fig.scatters == []
-    assert isinstance(build_location_plot(fit), pg.PlotItem)
+    assert isinstance(location_figure(fit).plot, pg.PlotItem)
 
 
 # --- the view, following a real session on the invented sample ---------------------------------
