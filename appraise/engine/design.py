@@ -124,10 +124,6 @@ class Design:
     row_ok: np.ndarray
     problems: tuple[tuple[int, str, str | None], ...]
 
-    @property
-    def n_ok(self) -> int:
-        return int(self.row_ok.sum())
-
 
 @dataclass(frozen=True, eq=False)
 class DesignSpec:

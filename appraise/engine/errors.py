@@ -104,16 +104,3 @@ class Cancelled(Exception):  # noqa: N818 - a request, not a fault
 
     Not an :class:`AppraiseError`: nothing is wrong with the user's input.
     """
-
-
-# --- warnings ------------------------------------------------------------------
-class AppraiseWarning(UserWarning):
-    """Base of warnings the engine emits; each is also recorded in results."""
-
-
-class ExtrapolationWarning(AppraiseWarning):
-    """The subject lies outside the data the model was fitted on."""
-
-
-class ThinDataWarning(AppraiseWarning):
-    """Few sales per term; estimates and intervals are fragile."""

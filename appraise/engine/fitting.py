@@ -140,16 +140,7 @@ class FitResult:
             "smearing": self.smearing,
             "references": self.references(),
             "terms": [t.to_dict() for t in self.terms],
-            "excluded": [
-                {
-                    "row": e.row,
-                    "id": e.sale_id,
-                    "reason": e.reason,
-                    "column": e.column,
-                    "source": e.source,
-                }
-                for e in self.excluded
-            ],
+            "excluded": [e.to_dict() for e in self.excluded],
             "warnings": list(self.warnings),
         }
 

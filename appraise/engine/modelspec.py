@@ -29,7 +29,7 @@ from __future__ import annotations
 import hashlib
 import tomllib
 from collections.abc import Mapping
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
 from typing import Literal
@@ -77,9 +77,6 @@ class ModelSpec:
     intercept: bool = True
     title: str = ""
     effective_date: str | None = None  # ISO date the value is as of; default: today
-
-    def with_features(self, features: tuple[str, ...]) -> ModelSpec:
-        return replace(self, features=tuple(features))
 
     def to_dict(self) -> dict:
         d: dict = {

@@ -24,7 +24,7 @@ from appraise.report.numbers import MISSING, money, pvalue
 
 from .diagnostics_plots import FLAG_COLOUR, number_text, positions_by_row
 from .plot_items import OKABE_ITO
-from .sales_view import stable_sort
+from .table_sorting import SortableTableModel, stable_sort
 
 WITHIN_COLOUR = OKABE_ITO["blue"]
 OUTSIDE_COLOUR = OKABE_ITO["vermillion"]
@@ -311,7 +311,7 @@ class SaleColumn:
     numeric: bool = True
 
 
-class SaleChecksModel(QAbstractTableModel):
+class SaleChecksModel(SortableTableModel, QAbstractTableModel):
     """Every sale of the fit with its measures; sorted on whole columns (numpy/pandas).
 
     Cells are formatted when Qt asks for them, so 50,000 sales cost 13 arrays, not
@@ -362,12 +362,6 @@ class SaleChecksModel(QAbstractTableModel):
             self._find = positions_by_row(d)
         self._apply_order()
         self.endResetModel()
-
-    def sort(self, column: int, order: Qt.SortOrder = Qt.SortOrder.AscendingOrder) -> None:
-        self.layoutAboutToBeChanged.emit()
-        self._sort = (column, order)
-        self._apply_order()
-        self.layoutChanged.emit()
 
     def _apply_order(self) -> None:
         n = len(self._rows)

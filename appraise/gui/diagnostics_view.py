@@ -54,9 +54,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from appraise.report.text import format_diagnostics
 from appraise.engine.diagnostics import Diagnostics, SaleFlag
 from appraise.report.cautions import ONE_LINE_CAUTION
+from appraise.report.text import format_diagnostics
 
 from .diagnostics_plots import influence_figure, legend_html, ratio_figure
 from .diagnostics_tables import (

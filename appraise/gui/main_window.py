@@ -25,7 +25,7 @@ from PySide6.QtWidgets import (
 )
 
 from appraise import __version__
-from appraise.report.cautions import FULL_CAUTIONS
+from appraise.report.cautions import FULL_CAUTIONS, STATUS_CAUTION
 
 from .actions import Actions
 from .diagnostics_view import DiagnosticsView
@@ -48,7 +48,6 @@ from .settings_dialog import SettingsDialog
 from .subject_view import SubjectView
 from .worksheet_view import WorksheetView
 
-SHORT_STATUS_CAUTION = "Statistical estimate — not an appraisal"
 OPEN_FILTER = (
     f"Sales or workfiles (*{' *'.join(SALES_SUFFIXES)} *.json);;"
     f"Sales files (*{' *'.join(SALES_SUFFIXES)});;Workfiles (*{WORKFILE_SUFFIX} *.json)"
@@ -105,7 +104,7 @@ class MainWindow(QMainWindow):
         # status bar
         self.rows_label = QLabel()
         self.fit_label = QLabel()
-        self.caution_label = QLabel(SHORT_STATUS_CAUTION)
+        self.caution_label = QLabel(STATUS_CAUTION)
         self.caution_label.setToolTip(FULL_CAUTIONS[0][1])
         bar = self.statusBar()
         bar.addPermanentWidget(self.rows_label)

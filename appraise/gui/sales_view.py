@@ -45,6 +45,7 @@ from appraise.report.numbers import plain
 from appraise.report.tables import write_exclusion_log
 
 from .session import Session
+from .table_sorting import SortableTableModel, stable_sort
 
 GREY = QColor(128, 128, 128)
 _ROOT = QModelIndex()
@@ -98,7 +99,7 @@ def exclude_with_reason(parent: QWidget, session: Session, row: int, suggested: 
 
 
 # --- the sales table -------------------------------------------------------------
-class SalesTableModel(QAbstractTableModel):
+class SalesTableModel(SortableTableModel, QAbstractTableModel):
     """All rows of the file: the used rows, then the rows the importer left out.
 
     Columns: file row, why it is left out (empty when used), then the file's columns.
@@ -192,12 +193,6 @@ class SalesTableModel(QAbstractTableModel):
         self._apply_order()
         self.endResetModel()
 
-    def sort(self, column: int, order: Qt.SortOrder = Qt.SortOrder.AscendingOrder) -> None:
-        self.layoutAboutToBeChanged.emit()
-        self._sort = (column, order)
-        self._apply_order()
-        self.layoutChanged.emit()
-
     def _apply_order(self) -> None:
         n = len(self._rows)
         order = np.argsort(self._rows, kind="stable")
@@ -273,14 +268,6 @@ class SalesTableModel(QAbstractTableModel):
 
     def row_at(self, position: int) -> int:
         return int(self._rows[self._order[position]])
-
-
-def stable_sort(keys: pd.Series, descending: bool) -> np.ndarray:
-    """Positions of ``keys`` in order, ties in their original order, missing values last."""
-    ordered = keys.reset_index(drop=True).sort_values(
-        ascending=not descending, kind="stable", na_position="last"
-    )
-    return ordered.index.to_numpy(dtype=int)
 
 
 class SalesView(QWidget):

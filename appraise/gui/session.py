@@ -18,9 +18,9 @@ from typing import Any
 
 from PySide6.QtCore import QObject, QThreadPool, QTimer, Signal
 
-from appraise.resources import sample_dir
 from appraise.engine.diagnostics import Diagnostics, DiagnosticSettings
 from appraise.engine.fitting import FitResult
+from appraise.engine.importing import FORMATS
 from appraise.engine.modelspec import ModelSpec
 from appraise.engine.roles import RoleMap
 from appraise.engine.sales import ROW_COLUMN, Exclusion, SalesTable
@@ -35,16 +35,18 @@ from appraise.engine.workfile import (
     restore,
     save_workfile,
 )
+from appraise.resources import sample_dir
 
 from .workers import FitJob, LoadJob, LoadOutcome, Task, TaskSignals, run_fit_job, run_load_job
 
 log = logging.getLogger(__name__)
 
-SALES_SUFFIXES: tuple[str, ...] = (".csv", ".xlsx", ".parquet")
+SALES_SUFFIXES: tuple[str, ...] = tuple(FORMATS)
+"""Every suffix the importer reads (one list: the engine's), for the open dialog and drops."""
 WORKFILE_SUFFIX = ".appraise.json"
+"""Workfiles are JSON; the double suffix tells them apart from other JSON at a glance."""
 CHECK_SETTINGS_KEY = "checks"
 """Key of the model-check settings (trim, folds, seed, thresholds) in a workfile's settings."""
-"""Workfiles are JSON; the double suffix tells them apart from other JSON at a glance."""
 
 REFIT_DELAY_MS = 300
 """Edits within this many milliseconds of each other lead to one refit."""

@@ -228,11 +228,25 @@ FIGURE_KEYS = {
 EXCLUDED_COLOUR = (138, 138, 138, 150)
 
 
+def region_series(points: Any, x: np.ndarray, y: np.ndarray, mask: np.ndarray) -> list[Series]:
+    """The sales under ``mask`` as one series per region group, in the colours and
+    symbols the window gives them (levels sorted; see ``gui.plot_items.region_styles``)."""
+    from ..report.plotdata import group_order
+
+    if points.groups is None:
+        return [Series(x[mask], y[mask], "Sales")]
+    out = []
+    for i, level in enumerate(sorted(group_order(points.groups), key=str)):
+        m = mask & (points.groups == level)
+        if m.any():
+            colour, symbol = region_style(i)
+            out.append(Series(x[m], y[m], str(level), rgba(colour, 200), symbol))
+    return out
+
+
 def plot_chart(data: Any, points: Any, currency: str = "$") -> bytes:
     """One :class:`~appraise.report.plotdata.PlotData` as PNG bytes: left-out sales grey
     and small, the used sales by region group, the subject in its own colour."""
-    from ..report.plotdata import group_order
-
     drawn = np.zeros(len(points), dtype=bool)
     drawn[points.drawn()] = True
     x = np.asarray(data.x, dtype=float)
@@ -241,16 +255,7 @@ def plot_chart(data: Any, points: Any, currency: str = "$") -> bytes:
     out = ~points.used & drawn
     if out.any():
         series.append(Series(x[out], y[out], "Left out", EXCLUDED_COLOUR, "o", 5.0))
-    keep = points.used & drawn
-    if points.groups is None:
-        series.append(Series(x[keep], y[keep], "Sales"))
-    else:
-        levels = sorted(group_order(points.groups), key=str)
-        for i, level in enumerate(levels):
-            mask = keep & (points.groups == level)
-            if mask.any():
-                colour, symbol = region_style(i)
-                series.append(Series(x[mask], y[mask], str(level), rgba(colour, 200), symbol))
+    series += region_series(points, x, y, points.used & drawn)
     lines: list[Line] = []
     finite = np.concatenate([x[np.isfinite(x)], y[np.isfinite(y)]])
     xs = x[np.isfinite(x)]

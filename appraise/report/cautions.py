@@ -55,6 +55,9 @@ ONE_LINE_CAUTION = (
 )
 """For page footers and command-line output."""
 
+STATUS_CAUTION = "Statistical estimate — not an appraisal"
+"""The window's status bar: always shown, the full cautions one click away."""
+
 CERTIFICATION_STATEMENT = (
     "To be completed by the appraiser who adopts, changes or rejects this estimate. "
     "Until it is completed and signed, this worksheet is not an opinion of value."

@@ -14,8 +14,9 @@ from appraise.engine.fitting import fit_model  # noqa: E402
 from appraise.engine.importing import load_sales  # noqa: E402
 from appraise.engine.modelspec import load_model  # noqa: E402
 from appraise.gui.plot_items import region_styles  # noqa: E402
-from appraise.qtrender.figures import _by_region  # noqa: E402
+from appraise.qtrender.figures import region_series  # noqa: E402
 from appraise.qtrender.palette import rgba  # noqa: E402
+from appraise.report.plotdata import sale_points  # noqa: E402
 
 SAMPLE = Path(__file__).resolve().parents[2] / "sample_data"
 
@@ -25,8 +26,12 @@ def test_one_series_per_region_with_the_apps_colours():
         load_sales(SAMPLE / "ashcombe_sales.csv"), load_model(SAMPLE / "ashcombe_model.toml")
     )
     region = fit.sales.roles.column("region")
-    x = np.arange(fit.n, dtype=float)
-    series = _by_region(fit, x, x)
+    pts = sale_points(fit)
+    used = pts.used.copy()
+    # x holds each sale's position in the fit's frame, so a series can be traced back
+    at = np.full(len(pts), -1.0)
+    at[np.flatnonzero(used)] = np.arange(used.sum())
+    series = region_series(pts, at, at, used)
     levels = sorted(fit.frame[region].unique())
     assert [s.label for s in series] == levels  # sample_data/README.md: six neighbourhoods
     assert sum(len(s.x) for s in series) == fit.n

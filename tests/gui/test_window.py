@@ -239,7 +239,7 @@ def test_dropping_a_sales_file_opens_it(qtbot, window, tmp_path):
 
 @pytest.mark.filterwarnings("ignore:Function.*QDragEnterEvent:DeprecationWarning")
 def test_other_files_are_refused_at_the_door(window, tmp_path):
-    path = tmp_path / "notes.txt"
+    path = tmp_path / "notes.docx"
     path.write_text("not sales", encoding="utf-8")
     accepted, _drop_event, _mime = _drop(window, path)
     assert not accepted

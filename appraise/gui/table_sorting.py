@@ -1,0 +1,36 @@
+"""The one way the window's table models sort: whole columns at once, ties kept in order.
+
+A model mixes in :class:`SortableTableModel` (before ``QAbstractTableModel``) and
+implements ``_apply_order()``, which reads ``self._sort`` (None, or the column and the
+direction Qt asked for) and sets the order its rows are shown in; :func:`stable_sort`
+orders one column's keys.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from PySide6.QtCore import Qt
+
+
+def stable_sort(keys: pd.Series, descending: bool) -> np.ndarray:
+    """Positions of ``keys`` in order, ties in their original order, missing values last."""
+    ordered = keys.reset_index(drop=True).sort_values(
+        ascending=not descending, kind="stable", na_position="last"
+    )
+    return ordered.index.to_numpy(dtype=int)
+
+
+class SortableTableModel:
+    """Qt's ``sort()`` for a table model that orders its rows in ``_apply_order()``."""
+
+    _sort: tuple[int, Qt.SortOrder] | None = None
+
+    def sort(self, column: int, order: Qt.SortOrder = Qt.SortOrder.AscendingOrder) -> None:
+        self.layoutAboutToBeChanged.emit()
+        self._sort = (column, order)
+        self._apply_order()
+        self.layoutChanged.emit()
+
+    def _apply_order(self) -> None:  # pragma: no cover - every model defines it
+        raise NotImplementedError
