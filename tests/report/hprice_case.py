@@ -18,7 +18,7 @@ from appraise.engine.roles import RoleMap
 from appraise.engine.subject import read_subject
 from appraise.engine.valuation import value_subject
 
-# Wooldridge, Introductory Econometrics, Example 8.4 point used in DOMAIN.md section 6.
+# Wooldridge, Introductory Econometrics, Example 8.4 (hprice1) prediction point.
 SUBJECT = {"id": "SUBJ", "lotsize": 10000, "sqrft": 2300, "bdrms": 4, "region": "Colonial"}
 
 

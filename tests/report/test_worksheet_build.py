@@ -49,7 +49,7 @@ def test_linear_estimate_and_interval_match_statsmodels_and_wooldridge(csv_path)
     assert rows["Estimated price"] == money(point)
     assert rows["95% prediction interval: low"] == money(lo)
     assert rows["95% prediction interval: high"] == money(hi)
-    # DOMAIN.md section 6 (hprice1, lotsize 10,000, sqrft 2,300, bdrms 4; recomputed with
+    # Wooldridge, Introductory Econometrics, data set hprice1 ( lotsize 10,000, sqrft 2,300, bdrms 4; recomputed with
     # statsmodels): y-hat 336.7067, 95% PI [216.8209, 456.5924] in $1000s.
     assert rows["Estimated price"] == "$336,707"
     assert rows["95% prediction interval: low"] == "$216,821"
@@ -71,7 +71,7 @@ def test_log_response_prints_mean_and_median(csv_path):
     )
     assert rows["95% prediction interval: low"] == money(math.exp(lo))
     assert rows["95% prediction interval: high"] == money(math.exp(hi))
-    # DOMAIN.md section 6: smearing factor 1.01635, e^y-hat 336.328 ($1000s), 95% interval
+    # Wooldridge hprice1 log model, recomputed with statsmodels: smearing factor 1.01635, e^y-hat 336.328 ($1000s), 95% interval
     # [232.209, 487.133] -- within a dollar of the printed figures.
     assert abs(math.exp(point) / 1000 - 336.328) < 0.001
     assert abs(smear - 1.01635) < 1e-5
@@ -167,7 +167,9 @@ def test_diagnostics_section_reports_ratio_study_with_ranges(csv_path):
     r = leave_one_out_predictions(csv_path) / np.asarray(fit.price)
     cod = 100 * np.mean(np.abs(r - np.median(r))) / np.median(r)
     assert by_label["COD"][1] == pytest.approx(cod, rel=1e-9)
-    assert by_label["COD"][2] == "5 to 15"  # IAAO 2013 range recorded in DOMAIN.md section 3
+    assert (
+        by_label["COD"][2] == "5 to 15"
+    )  # IAAO Standard on Ratio Studies (2013), single-family range
     assert ws.table("flagged") is not None
     # Diagnostic warnings (the Breusch-Pagan finding for hprice1) reach the Warnings section.
     warnings = ws.section("warnings").blocks[0].items

@@ -1,6 +1,6 @@
 """The ratio study against the worked examples of the IAAO Standard on Ratio Studies (2013).
 
-Published figures (Tables 1-1 and 1-4 of the standard, as recorded in DOMAIN.md section 3);
+Published figures (Tables 1-1 and 1-4 of the IAAO Standard on Ratio Studies, 2013);
 the tolerance is half a unit in the last printed decimal.
 """
 
@@ -62,7 +62,7 @@ def test_means_and_ppe10_against_pandas():
 
 def test_verdicts_against_the_standards_ranges():
     # Table 1-4 (IAAO 2013): COD 14.52 lies inside 5-15; PRD 0.9766 below 0.98; PRB 0.1355
-    # above +0.05; median 0.82 below 0.90 -- ranges from the standard (DOMAIN.md section 3).
+    # above +0.05; median 0.82 below 0.90 -- ranges from the IAAO Standard on Ratio Studies (2013).
     study = ratio_study(*iaao_table("1_4"))
     verdicts = {m.name: m.verdict for m in study.measures}
     assert verdicts == {
