@@ -1,8 +1,9 @@
-"""Every command of the main window, created in one place and enabled in one place.
+"""Every command of the main window, created in one place.
 
 The actions know nothing of what they do; the main window connects their
-``triggered`` signals. :meth:`Actions.update_actions` is the single function that
-decides what is enabled, from the session's state.
+``triggered`` signals. :meth:`Actions.update_actions` decides, from the session's
+state, what is enabled; the one exception is "Clear recent files", which the window
+enables when it rebuilds the recent-files menu.
 """
 
 from __future__ import annotations
