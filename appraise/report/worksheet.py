@@ -17,6 +17,7 @@ from pathlib import PurePath
 from typing import Any
 
 from .. import __version__
+from ..engine.fitting import COEF_CI_LEVEL
 from .cautions import (
     CERTIFICATION_FIELDS,
     CERTIFICATION_STATEMENT,
@@ -260,7 +261,7 @@ def _model_blocks(fit: Any, model_sha: str) -> tuple:
 
 
 def _coefficient_table(fit: Any) -> Table:
-    lvl = level_text(fit.spec.level)
+    lvl = level_text(COEF_CI_LEVEL)  # the level the coefficient intervals were computed at
     rows = []
     values = []
     for t in fit.terms:

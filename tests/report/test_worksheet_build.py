@@ -94,6 +94,17 @@ def test_coefficients_table_holds_the_statsmodels_estimates(csv_path):
     assert "classical" in table.note
 
 
+def test_coefficient_interval_headers_say_the_level_they_were_computed_at(csv_path):
+    # the prediction level is 90% here; the coefficient intervals are computed at 95%
+    # (engine.fitting.COEF_CI_LEVEL), and their headers must say 95%, as must the export
+    from dataclasses import replace
+
+    fit, val = fit_and_value(csv_path, replace(LINEAR, level=0.90))
+    assert fit.spec.level == 0.90
+    table = build_worksheet(fit, val, generated=WHEN).table("coefficients")
+    assert table.columns[-2:] == ("95% low", "95% high")
+
+
 def test_sections_order_cautions_first_and_last(csv_path):
     fit, val = fit_and_value(csv_path, LINEAR)
     ws = build_worksheet(fit, val, generated=WHEN)
