@@ -28,6 +28,7 @@ COMMANDS: dict[str, str] = {
     "data": "read a sales file and show what was used, what was excluded and why",
     "fit": "fit a model file to the sales and print the coefficients",
     "value": "value the subject property with a prediction interval",
+    "grid": "sales comparison: comparables, adjustment grid and reconciliation",
     "diagnose": "check a model: influential sales, redundant terms, accuracy, ratio study",
     "compare": "rank candidate model files by leave-one-out error on the same sales",
     "report": "write the valuation worksheet (PDF, optional HTML and tables)",

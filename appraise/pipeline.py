@@ -103,6 +103,68 @@ def check(
     return diagnose(fit, settings)
 
 
+def grid(
+    fit: FitResult,
+    subject: SubjectSource,
+    *,
+    effective_date: Any = None,
+    import_settings: ImportSettings = ImportSettings(),  # noqa: B008
+    selection: Any = None,
+    pinned: Iterable[str] = (),
+    comps: Iterable[str] | None = None,
+    weights: Iterable[float] | None = None,
+    limits: Any = None,
+    comments: Mapping[str, str] | None = None,
+    level: float | None = None,
+    caution: str = "",
+) -> Any:
+    """Sales comparison: rank the candidates, choose comparables, build the adjustment grid.
+
+    ``effective_date`` defaults to the subject's ``effective_date``, else the model file's.
+    Returns ``(Grid, candidates frame)``; see :mod:`appraise.engine.grid`.
+    """
+    from .engine.comparables import SelectionSettings, candidates, select
+    from .engine.grid import GridLimits, build_grid, subject_at
+    from .engine.market import market_index
+
+    if isinstance(subject, Mapping):
+        subject = filled(subject)
+    frame = subject_frame(subject, fit.sales, import_settings)
+    eff = effective_date
+    if eff is None and "effective_date" in frame.columns and not pd.isna(frame["effective_date"].iloc[0]):
+        eff = frame["effective_date"].iloc[0]
+    if eff is None:
+        eff = fit.spec.effective_date
+    if eff is None or (isinstance(eff, str) and not eff.strip()):
+        raise AppraiseError(
+            "the sales comparison needs an effective date of value: give --effective-date, "
+            "an 'effective_date' in the subject, or effective_date in the model file"
+        )
+    eff = pd.Timestamp(eff)
+    at = subject_at(fit, frame, eff)
+    valuation = value_subject(fit, at, level)
+    settings = selection if selection is not None else SelectionSettings()
+    table = candidates(fit, at, eff, settings)
+    chosen = select(table, settings, tuple(pinned), None if comps is None else list(comps))
+    market = market_index(fit, at, eff, level)
+    result = build_grid(
+        fit,
+        at,
+        chosen.rows,
+        effective_date=eff,
+        valuation=valuation,
+        market=market,
+        similarity=table,
+        pinned=chosen.pinned,
+        weights=None if weights is None else list(weights),
+        limits=limits if limits is not None else GridLimits(),
+        warnings=chosen.warnings + valuation.warnings,
+        comments=dict(comments or {}),
+        caution=caution,
+    )
+    return result, table
+
+
 # --- the whole sequence --------------------------------------------------------------------
 @dataclass(frozen=True, eq=False)
 class Analysis:
@@ -171,6 +233,7 @@ __all__ = [
     "check",
     "filled",
     "fit",
+    "grid",
     "load",
     "read_model",
     "subject_frame",
