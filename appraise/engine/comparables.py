@@ -35,6 +35,7 @@ from .functions import distance_km, months_between
 from .grid import adjust
 from .jsonable import to_jsonable
 from .market import date_inputs
+from .sales import ROW_COLUMN
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
     from .fitting import FitResult
@@ -82,6 +83,15 @@ def _column(fit: FitResult, role: str) -> str | None:
     return col if col is not None and col in fit.frame.columns else None
 
 
+def sale_labels(fit: FitResult) -> tuple[str, ...]:
+    """Each fitted sale's id, or ``row N`` (its file row) when the sales have no id column."""
+    rows = fit.frame[ROW_COLUMN].to_numpy() if ROW_COLUMN in fit.frame.columns else fit.rows
+    return tuple(
+        str(s) if s is not None and str(s).strip() else f"row {int(r)}"
+        for s, r in zip(fit.sale_ids, rows, strict=True)
+    )
+
+
 def sale_date_column(fit: FitResult) -> str | None:
     col = _column(fit, "sale_date")
     if col is None:
@@ -101,7 +111,7 @@ def candidates(
     f = fit.frame
     n = len(f)
     eff = pd.Timestamp(effective_date)
-    out = pd.DataFrame({"pos": np.arange(n), "sale_id": [str(s) for s in fit.sale_ids]})
+    out = pd.DataFrame({"pos": np.arange(n), "sale_id": list(sale_labels(fit))})
     out["sale_price"] = np.asarray(fit.price, dtype=float)
     dcol = sale_date_column(fit)
     if dcol is not None:

@@ -384,7 +384,7 @@ def build_grid(
     price = np.asarray(fit.price, dtype=float)[rows]
     adj = adjust(fit, subject, comps, price)
     if not adj.ok.all():
-        bad = [fit.sale_ids[r] for r, ok in zip(rows, adj.ok, strict=True) if not ok]
+        bad = [similarity["sale_id"].iloc[r] for r, ok in zip(rows, adj.ok, strict=True) if not ok]
         raise SubjectError(
             "these comparables cannot be adjusted (a value is missing): " + ", ".join(map(str, bad))
         )
@@ -393,8 +393,8 @@ def build_grid(
     pinned = set(pinned)
     cols = []
     for i, r in enumerate(rows):
-        sid = str(fit.sale_ids[r])
         sim = similarity.iloc[r]
+        sid = str(sim["sale_id"])
         cols.append(
             GridColumn(
                 sale_id=sid,
