@@ -18,6 +18,7 @@ from .common import (
     add_model_argument,
     add_sales_arguments,
     add_subject_arguments,
+    import_settings,
     load_model_from_args,
     load_sales_from_args,
     read_subject_from_args,
@@ -36,6 +37,13 @@ def register(sub) -> None:
     add_subject_arguments(p)
     p.add_argument("-o", "--output", required=True, metavar="WORKSHEET.pdf", help="PDF to write")
     p.add_argument("--html", metavar="WORKSHEET.html", help="also write the worksheet as HTML")
+    p.add_argument("--comps", metavar="ID,ID,...", help="comparables for the sales-comparison section")
+    p.add_argument(
+        "--effective-date",
+        metavar="YYYY-MM-DD",
+        help="date of value (default: the subject's effective_date, else the model file's)",
+    )
+    p.add_argument("--no-grid", action="store_true", help="leave out the sales-comparison section")
     p.add_argument(
         "--page-size", choices=PAGE_SIZES, default="A4", help="paper size of the PDF (default A4)"
     )
@@ -81,6 +89,26 @@ def run(args: argparse.Namespace) -> int:
     )
     fit, valuation, diagnostics = run_.fit, run_.valuation, run_.diagnostics
     settings = ReportSettings(currency=args.currency, page_size=args.page_size)
+    grid, grid_figs = None, ()
+    if not args.no_grid:
+        from ..engine.errors import AppraiseError
+
+        try:
+            comps = [c.strip() for c in args.comps.split(",") if c.strip()] if args.comps else None
+            grid, _ = pipeline.grid(
+                fit,
+                args.subject,
+                effective_date=args.effective_date,
+                import_settings=import_settings(args),
+                comps=comps,
+                level=args.level,
+            )
+        except AppraiseError as exc:
+            print(f"Sales comparison left out: {exc}")
+        else:
+            from ..qtrender.grid_figures import index_figure
+
+            grid_figs = (index_figure(grid),)
     worksheet = build_worksheet(
         fit,
         valuation,
@@ -88,6 +116,8 @@ def run(args: argparse.Namespace) -> int:
         figures=worksheet_figures(fit, valuation, currency=args.currency),
         settings=settings,
         workfile_id=args.workfile_id,
+        grid=grid,
+        grid_figures=grid_figs,
     )
     pages = write_pdf(worksheet, out, page_size=args.page_size)
     print(f"Wrote {out} ({pages} pages, {args.page_size})")

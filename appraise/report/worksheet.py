@@ -56,6 +56,8 @@ def build_worksheet(
     settings: ReportSettings | None = None,
     workfile_id: str | None = None,
     generated: datetime | None = None,
+    grid: Any = None,
+    grid_figures: Sequence[Figure] = (),
 ) -> Worksheet:
     """Assemble the worksheet.
 
@@ -84,7 +86,9 @@ def build_worksheet(
     data_sha = str(sales.source.sha256)
     model_sha = spec.sha256()
     wid = workfile_id or f"{data_sha[:8]}-{model_sha[:8]}"
-    if spec.effective_date:
+    if grid is not None:
+        effective = str(grid.to_dict()["effective_date"] if hasattr(grid, "to_dict") else grid["effective_date"])
+    elif spec.effective_date:
         effective = str(spec.effective_date)
     else:
         effective = f"{when.date().isoformat()} (date prepared; the model sets none)"
@@ -114,6 +118,12 @@ def build_worksheet(
     ]
     if diagnostics is not None:
         sections.append(Section("diagnostics", "Diagnostics", diagnostics_blocks(diagnostics, cur)))
+    if grid is not None:
+        from .grid_section import grid_blocks
+
+        sections.append(
+            Section("sales-comparison", "Sales comparison", grid_blocks(grid, cur, grid_figures))
+        )
     if figures:
         sections.append(Section("figures", "Figures", tuple(figures), new_page=True))
     sections.append(

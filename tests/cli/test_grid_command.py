@@ -142,3 +142,29 @@ def test_hprice1_identity_against_statsmodels(tmp_path, capsys, response):
         )
         worst = max(worst, abs(c["adjusted_price"]["amount"] / expect - 1))
     assert worst < 1e-9
+
+
+def test_report_has_the_sales_comparison_section(tmp_path, capsys):
+    html = tmp_path / "w.html"
+    code, out, _ = _run(
+        capsys,
+        "report",
+        SALES,
+        "--model",
+        MODEL,
+        "--subject",
+        SUBJECT,
+        "-o",
+        str(tmp_path / "w.pdf"),
+        "--html",
+        str(html),
+        "--no-diagnostics",
+        "--effective-date",
+        "2026-03-31",
+        "--comps",
+        "AV-0562,AV-0522,AV-0426",
+    )
+    assert code == 0
+    text = html.read_text(encoding="utf-8")
+    assert "Adjustment grid" in text and "Reconciled value" in text
+    assert "AV-0522" in text and "2026-03-31" in text
