@@ -211,7 +211,58 @@ def select(
     return Selection(tuple(picks), tuple(ids[p] for p in picks), pinned, tuple(warnings))
 
 
+@dataclass(frozen=True)
+class ComparablesChoice:
+    """What the user chose for the sales comparison, as kept in the workfile.
+
+    ``chosen`` None means "the ranking's best"; ``weights`` None the default weights;
+    ``effective_date`` ISO text or None (then the subject's or the model file's).
+    """
+
+    effective_date: str | None = None
+    filters: SelectionSettings = SelectionSettings()  # noqa: RUF009 - frozen, safe
+    pinned: tuple[str, ...] = ()
+    chosen: tuple[str, ...] | None = None
+    weights: tuple[float, ...] | None = None
+    comments: tuple[tuple[str, str], ...] = ()
+    net_limit: float = 0.15
+    gross_limit: float = 0.25
+
+    def to_dict(self) -> dict:
+        return to_jsonable(
+            {
+                "effective_date": self.effective_date,
+                "filters": self.filters.to_dict(),
+                "pinned": list(self.pinned),
+                "chosen": None if self.chosen is None else list(self.chosen),
+                "weights": None if self.weights is None else list(self.weights),
+                "comments": dict(self.comments),
+                "limits": {"net_pct": self.net_limit, "gross_pct": self.gross_limit},
+            }
+        )
+
+    @classmethod
+    def from_dict(cls, d: dict | None) -> ComparablesChoice:
+        if not d:
+            return cls()
+        try:
+            limits = d.get("limits") or {}
+            return cls(
+                effective_date=d.get("effective_date"),
+                filters=SelectionSettings.from_dict(d.get("filters") or {}),
+                pinned=tuple(str(x) for x in d.get("pinned") or ()),
+                chosen=None if d.get("chosen") is None else tuple(str(x) for x in d["chosen"]),
+                weights=None if d.get("weights") is None else tuple(float(x) for x in d["weights"]),
+                comments=tuple((str(k), str(v)) for k, v in (d.get("comments") or {}).items()),
+                net_limit=float(limits.get("net_pct", 0.15)),
+                gross_limit=float(limits.get("gross_pct", 0.25)),
+            )
+        except (TypeError, ValueError, AttributeError) as exc:
+            raise SubjectError(f"the workfile's comparables cannot be read: {exc}") from None
+
+
 __all__ = [
+    "ComparablesChoice",
     "MIN_COMPARABLES",
     "RECENT_MONTHS",
     "Selection",

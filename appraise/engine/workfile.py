@@ -108,6 +108,8 @@ class WorkfileState:
     subject: Mapping[str, Any] = field(default_factory=dict)
     settings: Mapping[str, Any] = field(default_factory=dict)
     last_results: Mapping[str, Any] | None = None
+    comparables: Mapping[str, Any] | None = None
+    """Sales-comparison choices (``ComparablesChoice.to_dict()``); optional, absent in older files."""
     created: str = ""
     saved: str = ""
     app_version: str = __version__
@@ -124,7 +126,7 @@ class WorkfileState:
                 "encoding": "base64",
                 "data": base64.b64encode(self.embedded_sales.data).decode("ascii"),
             }
-        return {
+        doc = {
             "format": self.format,
             "schema_version": self.schema_version,
             "created": self.created,
@@ -144,6 +146,9 @@ class WorkfileState:
             "settings": dict(self.settings),
             "last_results": None if self.last_results is None else dict(self.last_results),
         }
+        if self.comparables is not None:
+            doc["comparables"] = dict(self.comparables)
+        return doc
 
 
 class Restored(NamedTuple):
@@ -212,6 +217,7 @@ def make_state(
     workfile_path: str | Path | None = None,
     embed: bool = True,
     previous: WorkfileState | None = None,
+    comparables: Mapping[str, Any] | None = None,
 ) -> WorkfileState:
     """Collect what a workfile records from the objects the app holds.
 
@@ -270,6 +276,9 @@ def make_state(
         subject=json_safe(dict(subject or {}), where="subject"),
         settings=json_safe(dict(settings or {}), where="settings"),
         last_results=last,
+        comparables=None
+        if comparables is None
+        else json_safe(dict(comparables), where="comparables"),
         created=created,
         saved=now,
     )
@@ -467,6 +476,9 @@ def _state_from_doc(doc: dict, src: str) -> WorkfileState:
     if not all(isinstance(v, str) for v in roles.values()):
         raise WorkfileError("'roles' must map each role to a column name", file=src)
     last = need(doc, "last_results", (dict, type(None)))
+    comparables = doc.get("comparables")  # optional: older workfiles have none
+    if comparables is not None and not isinstance(comparables, dict):
+        raise WorkfileError("'comparables' must be an object", file=src)
     return WorkfileState(
         sales_sha256=sha,
         sales_path=rel,
@@ -479,6 +491,7 @@ def _state_from_doc(doc: dict, src: str) -> WorkfileState:
         subject=need(doc, "subject", dict),
         settings=need(doc, "settings", dict),
         last_results=last,
+        comparables=comparables,
         created=need(doc, "created", str),
         saved=need(doc, "saved", str),
         app_version=need(doc, "app_version", str),

@@ -95,3 +95,64 @@ def test_filters_and_pins(fit):
 def test_settings_round_trip():
     s = SelectionSettings(max_km=2.5, max_months=9, same_region_only=True, count=5)
     assert SelectionSettings.from_dict(s.to_dict()) == s
+
+
+def test_workfile_round_trip_of_comparables_and_weights(tmp_path, fit):
+    import dataclasses
+    import json
+
+    from appraise import pipeline
+    from appraise.engine.comparables import ComparablesChoice
+    from appraise.engine.settings import ImportSettings
+    from appraise.engine.workfile import load_workfile, make_state, save_workfile
+
+    choice = ComparablesChoice(
+        effective_date="2025-12-31",
+        filters=SelectionSettings(max_km=3.0, max_months=9.0, same_region_only=True, count=5),
+        pinned=("S29",),
+        chosen=("S29", "S00", "S02"),
+        weights=(0.2, 0.5, 0.3),
+        comments=(("S29", "older sale, kept for its floor plan"),),
+        net_limit=0.12,
+        gross_limit=0.3,
+    )
+    sales_file = tmp_path / "sales.csv"
+    frame = fit.frame.drop(columns=["_row"])
+    frame.to_csv(sales_file, index=False)
+    sales = pipeline.load(sales_file, roles=None)
+    sales = dataclasses.replace(sales, roles=fit.sales.roles)
+    state = make_state(
+        sales=sales,
+        spec=fit.spec,
+        subject={"area": 1800},
+        import_settings=ImportSettings(),
+        workfile_path=tmp_path / "w.appraise",
+        comparables=choice.to_dict(),
+    )
+    path = tmp_path / "w.appraise"
+    save_workfile(path, state)
+    back = load_workfile(path)
+    assert ComparablesChoice.from_dict(back.comparables) == choice
+    # the grid rebuilt from the reopened choice is the same grid
+    r1, _ = pipeline.grid(
+        fit,
+        {"area": 1800, "lat": 44.0, "lon": -71.0, "hood": "North"},
+        effective_date=choice.effective_date,
+        comps=choice.chosen,
+        weights=choice.weights,
+    )
+    c2 = ComparablesChoice.from_dict(json.loads(path.read_text())["comparables"])
+    r2, _ = pipeline.grid(
+        fit,
+        {"area": 1800, "lat": 44.0, "lon": -71.0, "hood": "North"},
+        effective_date=c2.effective_date,
+        comps=c2.chosen,
+        weights=c2.weights,
+    )
+    assert r1.to_dict() == r2.to_dict()
+    # an older workfile without the key still opens, with no choices
+    doc = json.loads(path.read_text())
+    del doc["comparables"]
+    path.write_text(json.dumps(doc))
+    assert load_workfile(path).comparables is None
+    assert ComparablesChoice.from_dict(None) == ComparablesChoice()
