@@ -28,6 +28,7 @@ from appraise import __version__
 from appraise.report.cautions import FULL_CAUTIONS, STATUS_CAUTION
 
 from .actions import Actions
+from .comparables_view import ComparablesView
 from .diagnostics_view import DiagnosticsView
 from .model_editor import ModelEditor
 from .plots import PlotsView
@@ -98,6 +99,8 @@ class MainWindow(QMainWindow):
         self.centre_tabs.addTab(model_split, "&Model")
         self.centre_tabs.addTab(self.plots_view, "&Plots")
         self.centre_tabs.addTab(self.diagnostics_view, "&Checks")
+        self.comparables_view = ComparablesView(self.session)
+        self.centre_tabs.addTab(self.comparables_view, "C&omparables")
         self.centre_tabs.addTab(self.worksheet_view, "&Worksheet")
         self.setCentralWidget(self.centre_tabs)
 

@@ -37,6 +37,7 @@ from appraise.engine.workfile import (
 )
 from appraise.resources import sample_dir
 
+from ..engine.comparables import ComparablesChoice
 from .workers import FitJob, LoadJob, LoadOutcome, Task, TaskSignals, run_fit_job, run_load_job
 
 log = logging.getLogger(__name__)
@@ -139,6 +140,7 @@ class Session(QObject):
     loadProgress = Signal(int, str)  # percent done, what is being done
     workfileChanged = Signal(object)
     notice = Signal(str)
+    comparablesChanged = Signal(object)  # ComparablesChoice: the sales-comparison choices
 
     def __init__(
         self,
@@ -165,6 +167,7 @@ class Session(QObject):
         self._workfile_path: Path | None = None
         self._workfile_state: WorkfileState | None = None
         self._check_against: WorkfileState | None = None
+        self._comparables = ComparablesChoice()
 
         self._pool = QThreadPool(self)
         self._pool.setMaxThreadCount(2)  # a stale fit may finish while the new one runs
@@ -193,6 +196,16 @@ class Session(QObject):
         self._refit_timer.timeout.connect(self.refit_now)
 
     # --- read-only state ----------------------------------------------------------
+    @property
+    def comparables(self) -> ComparablesChoice:
+        """The sales-comparison choices (effective date, filters, pins, weights), kept in the workfile."""
+        return self._comparables
+
+    def set_comparables(self, choice: ComparablesChoice) -> None:
+        if choice != self._comparables:
+            self._comparables = choice
+            self.comparablesChanged.emit(choice)
+
     @property
     def sales(self) -> SalesTable | None:
         return self._sales
@@ -440,6 +453,8 @@ class Session(QObject):
         self._spec = restored.spec
         self._subject = dict(restored.subject)
         self._user_exclusions = tuple(restored.user_exclusions)
+        self._comparables = ComparablesChoice.from_dict(state.comparables)
+        self.comparablesChanged.emit(self._comparables)
         checks = (state.settings or {}).get(CHECK_SETTINGS_KEY)
         if checks is not None:
             self._diagnostic_settings = DiagnosticSettings.from_dict(dict(checks))
@@ -487,6 +502,7 @@ class Session(QObject):
             workfile_path=p,
             embed=embed,
             previous=self._workfile_state,
+            comparables=self._comparables.to_dict(),
         )
         written = save_workfile(p, state)
         self._set_workfile(p, written)
