@@ -66,8 +66,9 @@ def distance_km(lat: np.ndarray, lon: np.ndarray, lat0: np.ndarray, lon0: np.nda
 
 
 def _days_between(date: np.ndarray, ref: np.ndarray) -> np.ndarray:
-    delta = np.asarray(date, dtype="datetime64[ns]") - np.asarray(ref, dtype="datetime64[ns]")
-    return delta / np.timedelta64(1, "D")
+    # in seconds, not nanoseconds: int64 nanoseconds wrap after ~292 years (1702 to 2024 did)
+    delta = np.asarray(date, dtype="datetime64[s]") - np.asarray(ref, dtype="datetime64[s]")
+    return delta / np.timedelta64(86400, "s")
 
 
 def months_between(date: np.ndarray, ref: np.ndarray) -> np.ndarray:
