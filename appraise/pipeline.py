@@ -131,7 +131,11 @@ def grid(
         subject = filled(subject)
     frame = subject_frame(subject, fit.sales, import_settings)
     eff = effective_date
-    if eff is None and "effective_date" in frame.columns and not pd.isna(frame["effective_date"].iloc[0]):
+    if (
+        eff is None
+        and "effective_date" in frame.columns
+        and not pd.isna(frame["effective_date"].iloc[0])
+    ):
         eff = frame["effective_date"].iloc[0]
     if eff is None:
         eff = fit.spec.effective_date

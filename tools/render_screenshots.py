@@ -26,7 +26,8 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 DEFAULT_OUT = ROOT / "resources" / "screenshots"
 SIZE_LIMIT = 300 * 1024
-WINDOW_SIZE = (1500, 920)
+WINDOW_SIZES = {"": (1366, 768), "_1920": (1920, 1080)}
+"""File-name suffix -> window size: a small laptop screen (the README's) and a desktop one."""
 SELECTED_ROW = 212  # a sale of the sample, ringed in the plots
 WAIT_MS = 60_000
 
@@ -92,11 +93,11 @@ def _palette_image(image):
     )
 
 
-def _shoot(app, out: Path) -> list[Path]:
+def _shoot(app, out: Path, size: tuple[int, int], suffix: str) -> list[Path]:
     from appraise.gui.main_window import MainWindow
 
     window = next(w for w in app.topLevelWidgets() if isinstance(w, MainWindow))
-    window.resize(*WINDOW_SIZE)
+    window.resize(*size)
     s = window.session
     if s.valuation is None or s.pending_tasks:
         _wait_for(app, [s.valuationChanged, s.diagnosticsChanged], "the sample's fit")
@@ -112,7 +113,7 @@ def _shoot(app, out: Path) -> list[Path]:
         tabs.setCurrentIndex(k)
         _settle(app, 2500)  # the worksheet renders its charts when first shown
         image = _palette_image(window.grab().toImage())
-        path = out / name
+        path = out / name.replace(".png", f"{suffix}.png")
         if not image.save(str(path), "PNG", 9):
             raise SystemExit(f"render_screenshots: could not write {path}")
         size = path.stat().st_size
@@ -148,7 +149,11 @@ def main(argv: list[str] | None = None) -> int:
 
         def drive() -> None:
             try:
-                outcome["files"] = _shoot(qapp, args.out)
+                outcome["files"] = [
+                    p
+                    for suffix, size in WINDOW_SIZES.items()
+                    for p in _shoot(qapp, args.out, size, suffix)
+                ]
             except BaseException as exc:  # noqa: BLE001 - reported after the loop ends
                 outcome["error"] = exc
             finally:

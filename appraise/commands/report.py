@@ -37,7 +37,9 @@ def register(sub) -> None:
     add_subject_arguments(p)
     p.add_argument("-o", "--output", required=True, metavar="WORKSHEET.pdf", help="PDF to write")
     p.add_argument("--html", metavar="WORKSHEET.html", help="also write the worksheet as HTML")
-    p.add_argument("--comps", metavar="ID,ID,...", help="comparables for the sales-comparison section")
+    p.add_argument(
+        "--comps", metavar="ID,ID,...", help="comparables for the sales-comparison section"
+    )
     p.add_argument(
         "--effective-date",
         metavar="YYYY-MM-DD",

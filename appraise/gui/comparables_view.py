@@ -1,8 +1,9 @@
 """The Comparables tab: ranked candidates, the adjustment grid, reconciliation, the
 market-conditions index and a map of the subject and its comparables.
 
-Everything is computed by :func:`appraise.pipeline.grid` on a pool thread
-(:class:`GridRunner`); the tab only draws what comes back. The choices (effective date,
+Everything is computed by :func:`appraise.pipeline.grid` on a pool thread (the session's
+:class:`~appraise.gui.grid_runner.GridRunner`, shared with the worksheet); the tab only
+draws what comes back. The choices (effective date,
 filters, pins, chosen comparables, weights) live in the session's
 :class:`~appraise.engine.comparables.ComparablesChoice`, which the workfile keeps.
 """
@@ -14,7 +15,7 @@ import math
 from typing import Any
 
 import numpy as np
-from PySide6.QtCore import QObject, Qt, QThreadPool, Signal
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (
     QCheckBox,
     QDoubleSpinBox,
@@ -32,12 +33,10 @@ from PySide6.QtWidgets import (
 
 from appraise import pipeline
 from appraise.engine.comparables import ComparablesChoice, SelectionSettings
-from appraise.engine.grid import GridLimits
 from appraise.report.cautions import ONE_LINE_CAUTION
 from appraise.report.numbers import MISSING, fixed, money, percent
 
 from .session import Session
-from .workers import Task, TaskSignals
 
 KM_PER_DEGREE = 2 * math.pi * 6371.0088 / 360
 RINGS_KM = (0.5, 1.0, 2.0, 5.0)
@@ -51,66 +50,6 @@ CANDIDATE_COLUMNS = (
     "Same region",
     "Price",
 )
-
-
-def run_grid_job(fit, subject: dict, choice: ComparablesChoice, import_settings) -> tuple:
-    """The pool-thread job: the grid and the ranked candidates for ``choice``."""
-    return pipeline.grid(
-        fit,
-        subject,
-        effective_date=choice.effective_date or None,
-        import_settings=import_settings,
-        selection=choice.filters,
-        pinned=choice.pinned,
-        comps=choice.chosen,
-        weights=choice.weights,
-        limits=GridLimits(choice.net_limit, choice.gross_limit),
-        comments=dict(choice.comments),
-        caution=ONE_LINE_CAUTION,
-    )
-
-
-class GridRunner(QObject):
-    """Runs grid jobs one after another on its own pool; a newer request overtakes."""
-
-    done = Signal(object)  # (Grid, candidates frame)
-    failed = Signal(str)
-
-    def __init__(self, parent: QObject | None = None) -> None:
-        super().__init__(parent)
-        self._pool = QThreadPool(self)
-        self._pool.setMaxThreadCount(1)
-        self._signals = TaskSignals(self)
-        self._signals.finished.connect(self._finished)
-        self._signals.failed.connect(self._failed)
-        self._generation = 0
-        self._tasks: dict[int, Task] = {}
-
-    @property
-    def busy(self) -> bool:
-        return bool(self._tasks)
-
-    def start(self, job) -> None:
-        self._generation += 1
-        for gen, task in list(self._tasks.items()):
-            if self._pool.tryTake(task):
-                del self._tasks[gen]
-        task = Task(self._generation, lambda report: job(), self._signals)
-        self._tasks[self._generation] = task
-        self._pool.start(task)
-
-    def _finished(self, gen: int, result: object) -> None:
-        self._tasks.pop(gen, None)
-        if gen == self._generation and result is not None:
-            self.done.emit(result)
-
-    def _failed(self, gen: int, message: str) -> None:
-        self._tasks.pop(gen, None)
-        if gen == self._generation:
-            self.failed.emit(message)
-
-    def wait(self, ms: int = 10_000) -> None:
-        self._pool.waitForDone(ms)
 
 
 def _num_item(value: float | None, text: str) -> QTableWidgetItem:
@@ -149,7 +88,6 @@ class ComparablesView(QWidget):
         import pyqtgraph as pg
 
         self.session = session
-        self.runner = GridRunner(self)
         self.grid = None
         self.table = None
         self._currency = "$"
@@ -164,7 +102,9 @@ class ComparablesView(QWidget):
         self.use_ranking = QPushButton("Use the ranking")
         self.pin_button = QPushButton("Pin / unpin selected")
         self.use_selected = QPushButton("Use selected as comparables")
-        bar = QHBoxLayout()
+        # two rows, the filters then the actions, so the tab fits beside the side panels
+        # on a 1366-pixel laptop screen
+        filters_row = QHBoxLayout()
         for label, w in (
             ("Effective date", self.effective),
             ("Max km", self.max_km),
@@ -173,12 +113,16 @@ class ComparablesView(QWidget):
             ("Comparables", self.count),
         ):
             if label:
-                bar.addWidget(QLabel(label))
-            bar.addWidget(w)
-        bar.addWidget(self.pin_button)
-        bar.addWidget(self.use_selected)
-        bar.addWidget(self.use_ranking)
-        bar.addStretch(1)
+                filters_row.addWidget(QLabel(label))
+            filters_row.addWidget(w)
+        filters_row.addStretch(1)
+        actions_row = QHBoxLayout()
+        for button in (self.pin_button, self.use_selected, self.use_ranking):
+            actions_row.addWidget(button)
+        actions_row.addStretch(1)
+        bar = QVBoxLayout()
+        bar.addLayout(filters_row)
+        bar.addLayout(actions_row)
 
         self.candidates = QTableWidget(0, len(CANDIDATE_COLUMNS))
         self.candidates.setHorizontalHeaderLabels(CANDIDATE_COLUMNS)
@@ -226,17 +170,20 @@ class ComparablesView(QWidget):
         self.use_ranking.clicked.connect(self._use_ranking)
         self.pin_button.clicked.connect(self._toggle_pins)
         self.use_selected.clicked.connect(self._use_selected)
-        self.runner.done.connect(self._show)
-        self.runner.failed.connect(self._failed)
-        session.valuationChanged.connect(lambda *_: self.refresh())
-        session.fitFinished.connect(lambda *_: self.refresh())
-        session.comparablesChanged.connect(self._choice_changed)
+        session.gridChanged.connect(self._grid_changed)
+        session.valuationChanged.connect(
+            lambda *_: self.status.setText("updating the adjustment grid...")
+        )
+        session.gridFailed.connect(self._failed)
+        session.comparablesChanged.connect(self._show_choice)
+        if session.grid is not None:
+            self._grid_changed(session.grid)
 
     # --- choices -------------------------------------------------------------------
     def set_currency(self, symbol: str) -> None:
         self._currency = symbol
         if self.grid is not None:
-            self._show((self.grid, self.table))
+            self._show(self.grid, self.table)
 
     def _show_choice(self, c: ComparablesChoice) -> None:
         self._filling = True
@@ -246,10 +193,6 @@ class ComparablesView(QWidget):
         self.same_region.setChecked(c.filters.same_region_only)
         self.count.setValue(c.filters.count)
         self._filling = False
-
-    def _choice_changed(self, choice: ComparablesChoice) -> None:
-        self._show_choice(choice)
-        self.refresh()
 
     def _choices_edited(self, *_: object) -> None:
         if self._filling:
@@ -309,24 +252,22 @@ class ComparablesView(QWidget):
         ids = tuple(col.sale_id for col in self.grid.comparables)
         self.session.set_comparables(dataclasses.replace(c, chosen=ids, weights=tuple(weights)))
 
-    # --- running -------------------------------------------------------------------
+    # --- results -------------------------------------------------------------------
     def refresh(self) -> None:
-        """Rebuild the grid in the background for the current fit, subject and choices."""
-        fit = self.session.fit
-        if fit is None or not self.session.fit_current and self.session.is_fitting:
-            return
-        subject = dict(self.session.subject)
-        choice = self.session.comparables
-        settings = self.session.import_settings
+        """Ask the session for a fresh grid (it arrives by ``gridChanged``)."""
         self.status.setText("updating the adjustment grid...")
-        self.runner.start(lambda: run_grid_job(fit, subject, choice, settings))
+        self.session.refresh_grid()
+
+    def _grid_changed(self, grid) -> None:
+        if grid is None:
+            return  # the reason, if any, comes by gridFailed; keep the last grid drawn
+        self._show(grid, self.session.grid_candidates)
 
     def _failed(self, message: str) -> None:
         self.status.setText(f"no adjustment grid: {message}")
 
     # --- drawing -------------------------------------------------------------------
-    def _show(self, result: tuple) -> None:
-        grid, table = result
+    def _show(self, grid, table) -> None:
         self.grid, self.table = grid, table
         self.status.setText(" | ".join(grid.warnings) if grid.warnings else "")
         self._fill_candidates(table, grid)
@@ -485,4 +426,4 @@ class ComparablesView(QWidget):
         )
 
 
-__all__ = ["ComparablesView", "GridRunner", "run_grid_job"]
+__all__ = ["ComparablesView"]

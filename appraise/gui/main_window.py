@@ -10,7 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from PySide6.QtCore import QFileInfo, Qt, QTimer
-from PySide6.QtGui import QCloseEvent, QDragEnterEvent, QDropEvent
+from PySide6.QtGui import QCloseEvent, QDragEnterEvent, QDropEvent, QGuiApplication
 from PySide6.QtWidgets import (
     QDockWidget,
     QFileDialog,
@@ -19,6 +19,7 @@ from PySide6.QtWidgets import (
     QMenu,
     QMessageBox,
     QProgressDialog,
+    QScrollArea,
     QSplitter,
     QTabWidget,
     QWidget,
@@ -54,6 +55,30 @@ OPEN_FILTER = (
     f"Sales files (*{' *'.join(SALES_SUFFIXES)});;Workfiles (*{WORKFILE_SUFFIX} *.json)"
 )
 LOAD_DIALOG_DELAY_MS = 400
+PREFERRED_SIZE = (1400, 860)
+DOCK_MIN_WIDTH = {"data": 300, "subject": 270}
+"""The window's size on a screen large enough for it."""
+
+
+class CentreTabs(QTabWidget):
+    """The centre's tabs; a wide view scrolls inside its tab instead of widening the
+    window or squeezing the side panels."""
+
+    def add_scrolling(self, view: QWidget, label: str) -> int:
+        area = QScrollArea()
+        area.setWidgetResizable(True)
+        area.setFrameShape(QScrollArea.Shape.NoFrame)
+        area.setWidget(view)
+        return self.addTab(area, label)
+
+    def setCurrentWidget(self, widget: QWidget) -> None:  # noqa: N802 (Qt's name)
+        """Show the tab of ``widget``, also when it sits in a scrolling tab."""
+        for i in range(self.count()):
+            page = self.widget(i)
+            if page is widget or (isinstance(page, QScrollArea) and page.widget() is widget):
+                self.setCurrentIndex(i)
+                return
+        super().setCurrentWidget(widget)
 
 
 class MainWindow(QMainWindow):
@@ -65,7 +90,7 @@ class MainWindow(QMainWindow):
         self.prefs = prefs
         self.setWindowTitle("appraise[*]")
         self.setAcceptDrops(True)
-        self.resize(1400, 860)
+        self._fit_to_screen()
         self.actions_ = Actions(self)
 
         # views
@@ -88,20 +113,29 @@ class MainWindow(QMainWindow):
         self.subject_dock = self._dock(
             "Subject", self.subject_view, Qt.DockWidgetArea.RightDockWidgetArea
         )
-        self.resizeDocks([self.data_dock, self.subject_dock], [460, 320], Qt.Orientation.Horizontal)
+        # side panels keep a readable width whatever the centre shows (the checks and the
+        # worksheet are wide: they scroll rather than squeeze the panels)
+        self.data_tabs.setMinimumWidth(DOCK_MIN_WIDTH["data"])
+        self.subject_view.setMinimumWidth(DOCK_MIN_WIDTH["subject"])
+        wide = self.width() >= 1300
+        self.resizeDocks(
+            [self.data_dock, self.subject_dock],
+            [460 if wide else 330, 320 if wide else 290],
+            Qt.Orientation.Horizontal,
+        )
 
         model_split = QSplitter(Qt.Orientation.Vertical)
         model_split.addWidget(self.model_editor)
         model_split.addWidget(self.results_view)
         model_split.setStretchFactor(0, 1)
         model_split.setStretchFactor(1, 1)
-        self.centre_tabs = QTabWidget()
+        self.centre_tabs = CentreTabs()
         self.centre_tabs.addTab(model_split, "&Model")
         self.centre_tabs.addTab(self.plots_view, "&Plots")
-        self.centre_tabs.addTab(self.diagnostics_view, "&Checks")
+        self.centre_tabs.add_scrolling(self.diagnostics_view, "&Checks")
         self.comparables_view = ComparablesView(self.session)
         self.centre_tabs.addTab(self.comparables_view, "C&omparables")
-        self.centre_tabs.addTab(self.worksheet_view, "&Worksheet")
+        self.centre_tabs.add_scrolling(self.worksheet_view, "&Worksheet")
         self.setCentralWidget(self.centre_tabs)
 
         # status bar
@@ -505,6 +539,21 @@ class MainWindow(QMainWindow):
         return p if QFileInfo(str(p)).isFile() and (is_sales_file(p) or is_workfile(p)) else None
 
     # --- closing ----------------------------------------------------------------------------
+    def _fit_to_screen(self) -> None:
+        """The user's last size and place, else the preferred size shrunk to the screen's
+        available area (a 1366 x 768 laptop sees the whole window, status bar included)."""
+        saved = self.prefs.window_geometry()
+        if saved is not None and self.restoreGeometry(saved):
+            return
+        screen = self.screen() or QGuiApplication.primaryScreen()
+        avail = screen.availableGeometry() if screen is not None else None
+        w, h = PREFERRED_SIZE
+        if avail is not None:
+            # leave room for the window frame the window manager adds
+            w, h = min(w, avail.width() - 16), min(h, avail.height() - 40)
+            self.move(avail.topLeft())
+        self.resize(w, h)
+
     def closeEvent(self, event: QCloseEvent) -> None:
         if self.isWindowModified() and self.session.sales is not None:
             answer = QMessageBox.question(
@@ -520,5 +569,6 @@ class MainWindow(QMainWindow):
             ):
                 event.ignore()
                 return
+        self.prefs.save_window_geometry(self.saveGeometry())
         self.session.shutdown()
         event.accept()

@@ -12,7 +12,7 @@ from dataclasses import replace
 from types import MappingProxyType
 from typing import Any
 
-from PySide6.QtCore import QObject, QSettings, Signal
+from PySide6.QtCore import QByteArray, QObject, QSettings, Signal
 
 from appraise.engine.settings import ImportSettings
 
@@ -33,6 +33,7 @@ CHOICES: Mapping[str, tuple[str, ...]] = MappingProxyType(
 AREA_LABELS: Mapping[str, str] = MappingProxyType({"ft2": "ft²", "m2": "m²"})
 
 MAX_RECENT = 8
+_GEOMETRY_KEY = "window/geometry"
 _RECENT_KEY = "recent_files"
 
 
@@ -97,6 +98,15 @@ class Preferences(QObject):
         if not isinstance(items, list):
             return []
         return [p for p in items if isinstance(p, str)][:MAX_RECENT]
+
+    def window_geometry(self) -> QByteArray | None:
+        """The main window's saved size and place (Qt's own encoding), or None."""
+        raw = self._store.value(_GEOMETRY_KEY, None)
+        return raw if isinstance(raw, QByteArray) and not raw.isEmpty() else None
+
+    def save_window_geometry(self, geometry: QByteArray) -> None:
+        self._store.setValue(_GEOMETRY_KEY, geometry)
+        self._store.sync()
 
     def add_recent(self, path: str) -> None:
         items = [path] + [p for p in self.recent_files() if p != path]

@@ -38,6 +38,7 @@ from appraise.engine.workfile import (
 from appraise.resources import sample_dir
 
 from ..engine.comparables import ComparablesChoice
+from .grid_runner import GridRunner, run_grid_job
 from .workers import FitJob, LoadJob, LoadOutcome, Task, TaskSignals, run_fit_job, run_load_job
 
 log = logging.getLogger(__name__)
@@ -141,6 +142,8 @@ class Session(QObject):
     workfileChanged = Signal(object)
     notice = Signal(str)
     comparablesChanged = Signal(object)  # ComparablesChoice: the sales-comparison choices
+    gridChanged = Signal(object)  # Grid of the current fit and choices, or None
+    gridFailed = Signal(str)  # why there is no grid (no effective date, too few sales...)
 
     def __init__(
         self,
@@ -168,6 +171,13 @@ class Session(QObject):
         self._workfile_state: WorkfileState | None = None
         self._check_against: WorkfileState | None = None
         self._comparables = ComparablesChoice()
+        self._grid: tuple | None = None  # (fit, Grid, candidates frame)
+        self._grid_error: str | None = None
+        self._grid_runner = GridRunner(self)
+        self._grid_runner.done.connect(self._on_grid)
+        self._grid_runner.failed.connect(self._on_grid_failed)
+        self.valuationChanged.connect(lambda *_: self.refresh_grid())
+        self.comparablesChanged.connect(lambda *_: self.refresh_grid())
 
         self._pool = QThreadPool(self)
         self._pool.setMaxThreadCount(2)  # a stale fit may finish while the new one runs
@@ -281,7 +291,7 @@ class Session(QObject):
     @property
     def pending_tasks(self) -> int:
         """Worker tasks started and not yet reported back (stale ones included)."""
-        return len(self._fit_tasks) + len(self._load_tasks)
+        return len(self._fit_tasks) + len(self._load_tasks) + self._grid_runner.pending
 
     @property
     def fit_current(self) -> bool:
@@ -292,6 +302,45 @@ class Session(QObject):
     def results_current(self) -> bool:
         """The fit (and valuation) were computed from the state as it is now."""
         return self.fit_current and not self.is_busy
+
+    @property
+    def grid(self):
+        """The sales-comparison grid of the current fit, or None (not yet, or it failed)."""
+        if self._grid is None or self._grid[0] is not self._fit:
+            return None
+        return self._grid[1]
+
+    @property
+    def grid_candidates(self):
+        """The ranked candidates beside :attr:`grid` (a frame), or None."""
+        return None if self.grid is None else self._grid[2]
+
+    @property
+    def grid_error(self) -> str | None:
+        return self._grid_error
+
+    def refresh_grid(self) -> None:
+        """Rebuild the grid off the UI thread for the current fit, subject and choices."""
+        fit = self._fit
+        if fit is None or self._valuation is None:
+            self._grid_runner.cancel()
+            if self._grid is not None:
+                self._grid = None
+                self.gridChanged.emit(None)
+            return
+        subject, choice, settings = dict(self._subject), self._comparables, self._import_settings
+        self._grid_runner.start(lambda: run_grid_job(fit, subject, choice, settings))
+
+    def _on_grid(self, result: tuple) -> None:
+        if result[0] is not self._fit:
+            return  # a grid of an older fit
+        self._grid, self._grid_error = result, None
+        self.gridChanged.emit(result[1])
+
+    def _on_grid_failed(self, message: str) -> None:
+        self._grid, self._grid_error = None, message
+        self.gridFailed.emit(message)
+        self.gridChanged.emit(None)
 
     def exclusion_for(self, row: int) -> Exclusion | None:
         """Why file row ``row`` is left out (import, model or user), or None if it is used."""
@@ -734,6 +783,8 @@ class Session(QObject):
         self._load_generation += 1
         self._pool.clear()
         self._pool.waitForDone(timeout_ms)
+        self._grid_runner.cancel()
+        self._grid_runner.wait(timeout_ms)
         self._fit_tasks.clear()
         self._load_tasks.clear()
 

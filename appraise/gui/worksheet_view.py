@@ -27,6 +27,7 @@ from PySide6.QtWidgets import (
 
 from appraise.engine.errors import AppraiseError
 from appraise.qtrender.figures import worksheet_figures
+from appraise.qtrender.grid_figures import index_figure
 from appraise.qtrender.pdf import build_document, page_size_of, paint_pages, write_pdf
 from appraise.report.cautions import ONE_LINE_CAUTION
 from appraise.report.content import PAGE_SIZES, Worksheet
@@ -103,6 +104,7 @@ class WorksheetView(QWidget):
             session.valuationChanged,
             session.diagnosticsChanged,
             session.exclusionsChanged,
+            session.gridChanged,
         ):
             signal.connect(self._results_changed)
         self._update_buttons()
@@ -148,6 +150,7 @@ class WorksheetView(QWidget):
             self.state.show()
             self._update_buttons()
             return None
+        grid = s.grid
         try:
             self._worksheet = build_worksheet(
                 fit,
@@ -158,6 +161,8 @@ class WorksheetView(QWidget):
                     currency=self._currency, page_size=self.page_size.currentText()
                 ),
                 workfile_id=s.workfile_path.name if s.workfile_path else None,
+                grid=grid,
+                grid_figures=() if grid is None else (index_figure(grid),),
             )
         except AppraiseError as exc:
             self._worksheet = None
@@ -169,7 +174,8 @@ class WorksheetView(QWidget):
             self._worksheet, text_width=max(480.0, self.preview.viewport().width() - 24.0)
         )
         self.preview.setDocument(self._document)
-        if (s.fit, s.valuation, s.diagnostics) != (fit, valuation, diagnostics):
+        now = (s.fit, s.valuation, s.diagnostics, s.grid)
+        if any(a is not b for a, b in zip(now, (fit, valuation, diagnostics, grid), strict=True)):
             self._results_changed()  # results moved on while this one was drawn
         if s.is_fitting or not s.results_current:
             self.state.setText("Refitting: the worksheet shows the previous results.")

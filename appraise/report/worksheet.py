@@ -87,7 +87,9 @@ def build_worksheet(
     model_sha = spec.sha256()
     wid = workfile_id or f"{data_sha[:8]}-{model_sha[:8]}"
     if grid is not None:
-        effective = str(grid.to_dict()["effective_date"] if hasattr(grid, "to_dict") else grid["effective_date"])
+        effective = str(
+            grid.to_dict()["effective_date"] if hasattr(grid, "to_dict") else grid["effective_date"]
+        )
     elif spec.effective_date:
         effective = str(spec.effective_date)
     else:

@@ -18,17 +18,16 @@ def view(qtbot, session, sample_copy):
     v = ComparablesView(session)
     qtbot.addWidget(v)
     v.show()
-    with qtbot.waitSignal(v.runner.done, timeout=WAIT_MS):
+    with qtbot.waitSignal(session.gridChanged, timeout=WAIT_MS):
         session.load_with_companions(sample_copy)
-    qtbot.waitUntil(lambda: session.pending_tasks == 0 and not v.runner.busy, timeout=WAIT_MS)
-    yield v
-    v.runner.wait()
+    qtbot.waitUntil(lambda: session.pending_tasks == 0 and v.grid is not None, timeout=WAIT_MS)
+    return v
 
 
 def _update(qtbot, v, action):
-    with qtbot.waitSignal(v.runner.done, timeout=WAIT_MS):
+    with qtbot.waitSignal(v.session.gridChanged, timeout=WAIT_MS):
         action()
-    qtbot.waitUntil(lambda: not v.runner.busy, timeout=WAIT_MS)
+    qtbot.waitUntil(lambda: v.session.pending_tasks == 0, timeout=WAIT_MS)
 
 
 def test_grid_appears_and_matches_the_pipeline(view, session):
@@ -80,14 +79,13 @@ def test_choices_kept_in_the_workfile(qtbot, view, session, tmp_path):
     try:
         v2 = ComparablesView(other)
         qtbot.addWidget(v2)
-        with qtbot.waitSignal(v2.runner.done, timeout=WAIT_MS):
+        with qtbot.waitSignal(other.gridChanged, timeout=WAIT_MS):
             other.open_workfile(path)
-        qtbot.waitUntil(lambda: other.pending_tasks == 0 and not v2.runner.busy, timeout=WAIT_MS)
+        qtbot.waitUntil(lambda: other.pending_tasks == 0 and v2.grid is not None, timeout=WAIT_MS)
         assert other.comparables == choice
         assert v2.effective.text() == "2026-03-31"
         assert [c.sale_id for c in v2.grid.comparables] == [
             c.sale_id for c in view.grid.comparables
         ]
-        v2.runner.wait()
     finally:
         other.shutdown()

@@ -41,6 +41,7 @@ def loaded_view(qtbot, session, sample_copy):
         lambda: (
             view.current_worksheet is not None
             and view.current_worksheet.section("diagnostics") is not None
+            and view.current_worksheet.section("sales-comparison") is not None
         ),
         timeout=WAIT_MS,
     )
