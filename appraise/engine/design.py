@@ -46,6 +46,7 @@ from .expressions import (
     Text,
     Unary,
     columns_read,
+    derived_order,
     feature_shape,
     is_atom,
     iso_date,
@@ -434,7 +435,10 @@ class _Evaluator:
             return self.column(node.header, feature).values
         if isinstance(node, DerivedRef):
             if node.name not in self.derived:
-                self.derived[node.name] = self.value(node.expr, feature)
+                # every variable it uses first, each once: no recursion across variables
+                for ref in derived_order(node):
+                    if ref.name not in self.derived:
+                        self.derived[ref.name] = self.value(ref.expr, feature)
             return self.derived[node.name]
         if isinstance(node, Unary):
             return -self.number(node.operand, feature)

@@ -44,6 +44,7 @@ from dataclasses import dataclass, field
 
 from .errors import ExpressionError, UnknownNameError
 from .functions import FUNCTIONS, FunctionInfo
+from .limits import MAX_DERIVED, MAX_DERIVED_CHAIN, MAX_FEATURE_NODES
 from .roles import RoleMap
 
 MAX_LENGTH = 1000
@@ -470,6 +471,10 @@ class NameScope:
     columns: tuple[str, ...]
     derived: Mapping[str, str] = field(default_factory=dict)
     roles: RoleMap | None = None
+    _resolved: dict[str, DerivedRef] = field(
+        default_factory=dict, init=False, repr=False, compare=False
+    )
+    """Each derived variable resolved once and shared by every tree that uses it."""
 
     @classmethod
     def of(
@@ -478,48 +483,60 @@ class NameScope:
         derived: Mapping[str, str] | None = None,
         roles: RoleMap | None = None,
     ) -> NameScope:
-        return cls(tuple(str(c) for c in columns), dict(derived or {}), roles)
+        derived = dict(derived or {})
+        if len(derived) > MAX_DERIVED:
+            raise ExpressionError(
+                f"{len(derived):,} derived variables; the limit is {MAX_DERIVED:,}"
+            )
+        return cls(tuple(str(c) for c in columns), derived, roles)
 
     def resolve(self, node: Node, expr: str) -> Node:
-        """Replace every :class:`Name` by a :class:`Column` or :class:`DerivedRef`."""
-        return self._resolve(node, expr, ())
+        """Replace every :class:`Name` by a :class:`Column` or :class:`DerivedRef`.
 
-    def _resolve(self, node: Node, expr: str, stack: tuple[str, ...]) -> Node:
-        if isinstance(node, Name):
-            return self._lookup(node.name, expr, stack)
-        if isinstance(node, Unary):
-            return Unary(node.op, self._resolve(node.operand, expr, stack))
-        if isinstance(node, Binary):
-            return Binary(
-                node.op,
-                self._resolve(node.left, expr, stack),
-                self._resolve(node.right, expr, stack),
+        Derived variables form a graph, not a tree: each is parsed and resolved once
+        (children before parents, without recursion across variables) and the same
+        :class:`DerivedRef` object is shared wherever it is used, so ``b2 = b1 + b1``,
+        ``b1 = b0 + b0`` costs one node per variable, not ``2**k``. A chain deeper than
+        :data:`~appraise.engine.limits.MAX_DERIVED_CHAIN` and a feature of more than
+        :data:`~appraise.engine.limits.MAX_FEATURE_NODES` distinct nodes are refused.
+        """
+        out = self._resolve(node, expr)
+        size = sum(1 for _ in walk(out))
+        if size > MAX_FEATURE_NODES:
+            raise ExpressionError(
+                f"'{expr}' expands to {size:,} nodes with its derived variables; "
+                f"the limit is {MAX_FEATURE_NODES:,}"
             )
+        return out
+
+    def _resolve(self, node: Node, expr: str) -> Node:
+        if isinstance(node, Name):
+            return self._lookup(node.name, expr)
+        if isinstance(node, Unary):
+            return Unary(node.op, self._resolve(node.operand, expr))
+        if isinstance(node, Binary):
+            return Binary(node.op, self._resolve(node.left, expr), self._resolve(node.right, expr))
         if isinstance(node, Call):
             return Call(
                 node.func,
-                tuple(self._resolve(a, expr, stack) for a in node.args),
-                tuple((k, self._resolve(v, expr, stack)) for k, v in node.keywords),
+                tuple(self._resolve(a, expr) for a in node.args),
+                tuple((k, self._resolve(v, expr)) for k, v in node.keywords),
             )
         return node
 
-    def _lookup(self, name: str, expr: str, stack: tuple[str, ...]) -> Node:
+    def _lookup(self, name: str, expr: str) -> Node:
         if name in self.columns:
             return Column(name, name)
         if name in self.derived:
-            if name in stack:
-                cycle = " -> ".join((*stack[stack.index(name) :], name))
-                raise ExpressionError(
-                    f"in '{expr}': derived variables refer to each other in a cycle: {cycle}"
-                )
-            text = self.derived[name]
+            done = self._resolved.get(name)
+            if done is not None:
+                return done
             try:
-                tree = parse_expression(text, allow_expanding=False)
-                return DerivedRef(name, self._resolve(tree, text, (*stack, name)))
+                return self._resolve_derived(name)
             except ExpressionError as exc:
-                if stack:  # already wrapped by the innermost derived variable
-                    raise
-                raise type(exc)(f"derived variable '{name}' = '{text}': {exc.message}") from None
+                raise type(exc)(
+                    f"derived variable '{name}' = '{self.derived[name]}': {exc.message}"
+                ) from None
         header = self.roles.column(name) if self.roles is not None else None
         if header is not None:
             if header in self.columns:
@@ -528,6 +545,63 @@ class NameScope:
                 f"in '{expr}': '{name}' is the role of column '{header}', which is not in the sales"
             )
         raise UnknownNameError(f"in '{expr}': unknown name '{name}'{self.suggest(name)}")
+
+    def _resolve_derived(self, top: str) -> DerivedRef:
+        """Resolve ``top`` and every derived variable it needs, dependencies first.
+
+        An explicit depth-first stack finds the order (and any cycle) without Python
+        recursion across variables; each variable is then resolved when all it uses
+        already is, so resolving it recurses only through its own expression.
+        """
+        parsed: dict[str, Node] = {}
+
+        def uses(name: str) -> list[str]:
+            tree = parsed.get(name)
+            if tree is None:
+                tree = parse_expression(self.derived[name], allow_expanding=False)
+                parsed[name] = tree
+            wanted = (n.name for n in walk(tree) if isinstance(n, Name))
+            return [
+                n
+                for n in dict.fromkeys(wanted)
+                if n not in self.columns and n in self.derived and n not in self._resolved
+            ]
+
+        stack: list[tuple[str, list[str]]] = [(top, uses(top))]
+        on_stack = {top}
+        while stack:
+            name, pending = stack[-1]
+            if pending:
+                nxt = pending.pop(0)
+                if nxt in self._resolved:
+                    continue
+                if nxt in on_stack:
+                    chain = [n for n, _ in stack]
+                    cycle = " -> ".join((*chain[chain.index(nxt) :], nxt))
+                    raise ExpressionError(
+                        f"in '{self.derived[top]}': derived variables refer to each other "
+                        f"in a cycle: {cycle}"
+                    )
+                if len(stack) >= MAX_DERIVED_CHAIN:
+                    chain = " -> ".join([*(n for n, _ in stack[:3]), "...", nxt])
+                    raise ExpressionError(
+                        f"derived variables refer to each other more than "
+                        f"{MAX_DERIVED_CHAIN} deep ({chain}); the limit is {MAX_DERIVED_CHAIN}"
+                    )
+                stack.append((nxt, uses(nxt)))
+                on_stack.add(nxt)
+                continue
+            stack.pop()
+            on_stack.discard(name)
+            text = self.derived[name]
+            try:
+                ref = DerivedRef(name, self._resolve(parsed[name], text))
+            except ExpressionError as exc:
+                if name == top:
+                    raise
+                raise type(exc)(f"derived variable '{name}' = '{text}': {exc.message}") from None
+            self._resolved[name] = ref
+        return self._resolved[top]
 
     def known_names(self) -> list[str]:
         """Every name an expression may use: headers, derived names, mapped role names."""
@@ -611,10 +685,19 @@ def is_atom(node: Node) -> bool:
 
 
 def walk(node: Node) -> Iterator[Node]:
-    """Every node of a tree, parents first, descending into derived variables."""
+    """Every node of a tree, parents first, descending into derived variables.
+
+    A derived variable used several times is descended into once (the resolved tree
+    shares it), so the walk is linear in the distinct nodes.
+    """
     stack = [node]
+    seen: set[int] = set()
     while stack:
         n = stack.pop()
+        if isinstance(n, DerivedRef):
+            if id(n) in seen:
+                continue
+            seen.add(id(n))
         yield n
         if isinstance(n, Unary):
             stack.append(n.operand)
@@ -628,6 +711,45 @@ def walk(node: Node) -> Iterator[Node]:
 
 def _names(node: Node) -> Iterator[Node]:
     return (n for n in walk(node) if isinstance(n, Name | Column | DerivedRef))
+
+
+def derived_order(node: Node) -> list[DerivedRef]:
+    """The derived variables a resolved tree uses, each once, every one after all it uses.
+
+    Evaluating them in this order (see :mod:`appraise.engine.design`) computes each
+    once and never recurses from one variable into another.
+    """
+    order: list[DerivedRef] = []
+    done: set[int] = set()
+    stack: list[tuple[DerivedRef, bool]] = [(n, False) for n in _direct_refs(node)]
+    while stack:
+        ref, expanded = stack.pop()
+        if id(ref) in done:
+            continue
+        if expanded:
+            done.add(id(ref))
+            order.append(ref)
+            continue
+        stack.append((ref, True))
+        stack.extend((n, False) for n in _direct_refs(ref.expr) if id(n) not in done)
+    return order
+
+
+def _direct_refs(node: Node) -> list[DerivedRef]:
+    """The derived variables a tree names itself, without looking inside them."""
+    out: list[DerivedRef] = []
+    stack = [node]
+    while stack:
+        n = stack.pop()
+        if isinstance(n, DerivedRef):
+            out.append(n)
+        elif isinstance(n, Unary):
+            stack.append(n.operand)
+        elif isinstance(n, Binary):
+            stack.extend((n.right, n.left))
+        elif isinstance(n, Call):
+            stack.extend([*n.args, *(v for _, v in n.keywords)])
+    return out
 
 
 def columns_read(node: Node) -> tuple[str, ...]:

@@ -1,0 +1,271 @@
+"""Documented limits on the work any input file can ask for.
+
+A sales file, a model file, a subject, a role map or a workfile may come from anyone.
+Each limit below bounds the time and memory one input can cost, and each is checked
+*before* the expensive step (parsing, expanding, reading a sheet), so a hostile file is
+refused in well under a second with a message naming the file and the limit.
+
+The numbers are far above anything a real valuation needs:
+
+===============================  ===========  =================================================
+limit                            value        why this size
+===============================  ===========  =================================================
+JSON / TOML nesting depth        64           a workfile nests 6 deep; a model file 3
+JSON integer digits              100          a sale price has at most 12
+derived variables per model      500          a rich model has 20
+derived-variable chain depth     64           ``a`` uses ``b`` uses ``c`` ... 64 deep
+nodes of one resolved feature    20,000       derived variables are shared, not copied
+XLSX uncompressed size           512 MiB      100,000 sales x 30 columns is about 120 MiB
+XLSX rows of one sheet           1,048,576    the most a spreadsheet program writes
+XLSX columns of one sheet        16,384       the same (column XFD)
+XLSX cells (rows x columns)      30,000,000   what fits in memory as a table of cells
+===============================  ===========  =================================================
+
+Expression text length and nesting live beside the parser
+(:data:`appraise.engine.expressions.MAX_LENGTH`, :data:`~appraise.engine.expressions.MAX_DEPTH`).
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import tomllib
+import zipfile
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .errors import AppraiseError, DataError
+
+MAX_NESTING = 64
+"""Deepest nesting of arrays/objects (JSON) or arrays/inline tables (TOML) accepted."""
+
+MAX_INT_DIGITS = 100
+"""Longest integer literal accepted in a JSON file."""
+
+MAX_DERIVED = 500
+"""Most derived variables one model may define."""
+
+MAX_DERIVED_CHAIN = 64
+"""Longest chain of derived variables referring to each other."""
+
+MAX_FEATURE_NODES = 20_000
+"""Most nodes in one feature once its derived variables are resolved (shared nodes once)."""
+
+MAX_XLSX_UNCOMPRESSED = 512 * 1024 * 1024
+"""Most bytes an .xlsx may hold once unzipped (all parts together)."""
+
+MAX_XLSX_ROWS = 1_048_576
+"""Most rows one sheet may have."""
+
+MAX_XLSX_COLUMNS = 16_384
+"""Most columns one sheet may have."""
+
+MAX_XLSX_CELLS = 30_000_000
+"""Most cells (rows x columns of the sheet's extent) one sheet may span."""
+
+
+# --- JSON and TOML ------------------------------------------------------------------------
+_JSON_STRING = re.compile(r'"(?:[^"\\]|\\.)*"', re.DOTALL)
+_TOML_SKIP = re.compile(
+    r'"""[\s\S]*?"""|\'\'\'[\s\S]*?\'\'\'|"(?:[^"\\\n]|\\.)*"|\'[^\'\n]*\'|#[^\n]*'
+)
+
+
+def nesting_depth(text: str, *, toml: bool = False) -> int:
+    """The deepest bracket nesting of a JSON (or TOML) text, strings and comments skipped.
+
+    Counted without parsing: strings (and TOML comments) are cut out, then the running
+    sum of ``[``/``{`` (+1) and ``]``/``}`` (-1) is taken with numpy, so a 50 MB text is
+    measured in a fraction of a second. A malformed text may be measured roughly; the
+    parser then refuses it.
+    """
+    bare = (_TOML_SKIP if toml else _JSON_STRING).sub("", text)
+    codes = np.frombuffer(bare.encode("utf-8", "replace"), dtype=np.uint8)
+    if codes.size == 0:
+        return 0
+    step = np.isin(codes, (0x5B, 0x7B)).astype(np.int64) - np.isin(codes, (0x5D, 0x7D))
+    return int(max(0, np.cumsum(step).max()))
+
+
+def _limited_int(text: str) -> int:
+    if len(text.lstrip("-")) > MAX_INT_DIGITS:
+        raise ValueError(f"a whole number of {len(text)} digits; the limit is {MAX_INT_DIGITS}")
+    return int(text)
+
+
+def load_json_text(
+    text: str,
+    *,
+    source: str,
+    error: type[AppraiseError],
+    what: str = "the file",
+) -> Any:
+    """``json.loads`` with the nesting and integer-size limits, every failure an ``error``.
+
+    Raises
+    ------
+    error
+        Nested deeper than :data:`MAX_NESTING`; an integer longer than
+        :data:`MAX_INT_DIGITS`; not valid JSON (with line and column).
+    """
+    depth = nesting_depth(text)
+    if depth > MAX_NESTING:
+        raise error(
+            f"{what} is nested {depth} levels deep; the limit is {MAX_NESTING}", file=source
+        )
+    try:
+        return json.loads(text, parse_int=_limited_int)
+    except json.JSONDecodeError as exc:
+        raise error(
+            f"{what} is not valid JSON: {exc.msg} (line {exc.lineno}, column {exc.colno})",
+            file=source,
+        ) from None
+    except ValueError as exc:  # an integer over the limit
+        raise error(f"{what} holds {exc}", file=source) from None
+    except RecursionError:  # unreachable after the depth check; kept as a last guard
+        raise error(f"{what} is nested too deeply", file=source) from None
+
+
+def load_toml_text(
+    text: str,
+    *,
+    source: str,
+    error: type[AppraiseError],
+    what: str = "the file",
+) -> dict:
+    """``tomllib.loads`` with the nesting limit, every failure an ``error``."""
+    depth = nesting_depth(text, toml=True)
+    if depth > MAX_NESTING:
+        raise error(
+            f"{what} is nested {depth} levels deep; the limit is {MAX_NESTING}", file=source
+        )
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise error(f"not valid TOML: {exc}", file=source) from None
+    except RecursionError:
+        raise error(f"{what} is nested too deeply", file=source) from None
+
+
+def decode_utf8(data: bytes, *, source: str, error: type[AppraiseError], what: str) -> str:
+    """UTF-8 text (a leading BOM dropped); a byte that is not UTF-8 is an ``error``."""
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise error(
+            f"{what} is not UTF-8 text (byte {exc.start} is 0x{data[exc.start]:02x})",
+            file=source,
+        ) from None
+
+
+# --- XLSX ---------------------------------------------------------------------------------
+_DIMENSION = re.compile(rb'<(?:\w+:)?dimension\s+ref="([A-Z]+)?(\d+)?(?::([A-Z]+)(\d+))?"')
+_CELL_REF = re.compile(rb'<(?:\w+:)?c\s[^>]*?\br="([A-Z]+)(\d+)"')
+_ROW_REF = re.compile(rb'<(?:\w+:)?row\s[^>]*?\br="(\d+)"')
+_ROW_TAG = re.compile(rb"<(?:\w+:)?row[\s>/]")
+_CHUNK = 1 << 20
+
+
+def column_number(letters: bytes | str) -> int:
+    """Spreadsheet column letters as a 1-based number: ``A`` = 1, ``Z`` = 26, ``XFD`` = 16384."""
+    n = 0
+    for ch in letters.decode("ascii") if isinstance(letters, bytes) else letters:
+        n = n * 26 + (ord(ch) - 64)
+    return n
+
+
+def check_xlsx(path: Path) -> None:
+    """Refuse an .xlsx whose unzipped size or sheet extent is over the limits, before parsing.
+
+    Every worksheet part is checked, not only the one to be read. The sizes the zip directory
+    declares bound what can be decompressed (the reader stops at the declared size), so
+    the total is checked from the directory alone. The sheet's extent is the larger of
+    its declared ``<dimension>`` and the cell and row references actually written,
+    found by streaming the XML in 1 MiB pieces and stopping as soon as a limit is passed.
+
+    Raises
+    ------
+    DataError
+        Naming the file and the limit passed.
+    """
+    file = str(path)
+    try:
+        zf = zipfile.ZipFile(path)
+    except (zipfile.BadZipFile, OSError, ValueError) as exc:
+        raise DataError(
+            f"cannot be read as an .xlsx workbook ({type(exc).__name__}: {exc})", file=file
+        ) from None
+    with zf:
+        infos = zf.infolist()
+        total = sum(i.file_size for i in infos)
+        if total > MAX_XLSX_UNCOMPRESSED:
+            raise DataError(
+                f"the workbook unzips to {total:,} bytes; the limit is "
+                f"{MAX_XLSX_UNCOMPRESSED:,} bytes (a damaged or hostile file?)",
+                file=file,
+            )
+        for name in [i.filename for i in infos if _is_sheet(i.filename)]:
+            _check_sheet_extent(zf, name, file)
+
+
+def _is_sheet(name: str) -> bool:
+    return name.startswith("xl/worksheets/") and name.endswith(".xml")
+
+
+def _check_sheet_extent(zf: zipfile.ZipFile, name: str, file: str) -> None:
+    rows = cols = tagged_rows = 0
+    tail = b""
+    first = True
+    try:
+        fh = zf.open(name)
+    except KeyError:
+        return  # openpyxl reports the missing part itself
+    with fh:
+        while True:
+            try:
+                block = fh.read(_CHUNK)
+            except (zipfile.BadZipFile, OSError, EOFError, ValueError) as exc:
+                raise DataError(
+                    f"the workbook is damaged ({type(exc).__name__}: {exc})", file=file
+                ) from None
+            if not block:
+                break
+            piece = tail + block
+            if first:
+                m = _DIMENSION.search(piece)
+                if m is not None and m.group(3):
+                    rows = max(rows, int(m.group(4)))
+                    cols = max(cols, column_number(m.group(3)))
+                first = False
+            cut = piece.rfind(b"<")  # keep a tag that straddles the piece boundary
+            body, tail = (piece[:cut], piece[cut:]) if cut > 0 else (piece, b"")
+            tagged_rows += len(_ROW_TAG.findall(body))
+            found = _CELL_REF.findall(body)
+            if found:
+                cols = max(cols, *(column_number(c) for c in {f[0] for f in found}))
+                rows = max(rows, int(max((f[1] for f in found), key=lambda d: (len(d), d))))
+            refs = _ROW_REF.findall(body)
+            if refs:
+                rows = max(rows, max(int(r) for r in refs))
+            _refuse_extent(max(rows, tagged_rows), cols, file)
+    _refuse_extent(max(rows, tagged_rows), cols, file)
+
+
+def _refuse_extent(rows: int, cols: int, file: str) -> None:
+    if rows > MAX_XLSX_ROWS:
+        raise DataError(
+            f"the sheet reaches row {rows:,}; the limit is {MAX_XLSX_ROWS:,} rows", file=file
+        )
+    if cols > MAX_XLSX_COLUMNS:
+        raise DataError(
+            f"the sheet reaches column {cols:,}; the limit is {MAX_XLSX_COLUMNS:,} columns",
+            file=file,
+        )
+    if rows * cols > MAX_XLSX_CELLS:
+        raise DataError(
+            f"the sheet spans {rows:,} rows x {cols:,} columns = {rows * cols:,} cells "
+            f"(a cell far from the others?); the limit is {MAX_XLSX_CELLS:,} cells",
+            file=file,
+        )
