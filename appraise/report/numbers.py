@@ -3,15 +3,22 @@ the tests all see the same strings.
 
 Money is printed rounded to whole currency units with thousands separators
 (``$412,500``); the currency symbol is a setting. Missing values print as an
-em dash.
+em dash. Nothing here ever prints scientific notation: a coefficient of
+-1.26986e-05 prints as ``-0.0000127`` (to the digits asked for), a p value
+below 0.0001 as ``< 0.0001``.
 """
 
 from __future__ import annotations
 
 import math
+from decimal import Decimal
 from numbers import Real
 
 MISSING = "\u2014"  # em dash
+
+TINY = 1e-15
+"""Below this magnitude a number prints as ``0`` (a float this small is rounding noise
+in anything the workbench computes, and printing it positionally would take a line)."""
 
 
 def _finite(x: object) -> float | None:
@@ -44,13 +51,31 @@ def money(x: object, symbol: str = "$") -> str:
 
 
 def number(x: object, digits: int = 6) -> str:
-    """A general number to ``digits`` significant digits with thousands separators."""
+    """A general number to ``digits`` significant digits with thousands separators,
+    never in scientific notation: ``-1.26986e-05 -> "-0.0000126986"``,
+    ``1.031e+04 -> "10,310"``, ``0.0020677123 -> "0.00206771"``."""
     v = _finite(x)
     if v is None:
         return MISSING
-    if v == 0:
+    if abs(v) < TINY:
         return "0"
-    return format(v, f",.{digits}g")
+    return positional(v, digits)
+
+
+def positional(v: float, digits: int) -> str:
+    """``v`` rounded to ``digits`` significant digits, written out in full.
+
+    Rounding goes through the ``e`` format (correctly rounded by Python); the
+    result is then re-read as a :class:`~decimal.Decimal`, stripped of trailing
+    zeros and printed positionally with thousands separators.
+    """
+    digits = max(1, int(digits))
+    magnitude = math.floor(math.log10(abs(v)))
+    if magnitude >= digits - 1:  # never round away whole units: 19,315.1 -> "19,315"
+        return format(v, ",.0f")
+    rounded = Decimal(format(v, f".{digits - 1}e")).normalize()
+    text = format(rounded, ",f")
+    return "-0" if text == "-0" else text
 
 
 def fixed(x: object, decimals: int = 3) -> str:
@@ -69,13 +94,52 @@ def integer(x: object) -> str:
 
 
 def pvalue(p: object) -> str:
-    """p-values below 0.0001 print as ``<0.0001``; others with four decimals."""
+    """p values below 0.0001 print as ``< 0.0001``; others with four decimals."""
     v = _finite(p)
     if v is None:
         return MISSING
     if v < 0.0001:
-        return "<0.0001"
+        return "< 0.0001"
     return f"{v:.4f}"
+
+
+def p_phrase(p: object) -> str:
+    """A p value in a sentence: ``"p < 0.0001"`` or ``"p = 0.7193"`` (never ``p = <``)."""
+    text = pvalue(p)
+    return f"p {text}" if text.startswith("<") else f"p = {text}"
+
+
+def signed_percent(points: object, digits: int = 2) -> str:
+    """A change already in percent, with its sign and at least ``digits`` significant
+    digits, so a small effect never rounds to ``"-0.00%"``: ``10.517 -> "+10.5%"``,
+    ``0.397 -> "+0.40%"``, ``-0.00127 -> "-0.0013%"``."""
+    v = _finite(points)
+    if v is None:
+        return MISSING
+    if abs(v) < TINY:
+        return "0%"
+    decimals = max(1, digits - 1 - math.floor(math.log10(abs(v))))
+    text = f"{v:+,.{decimals}f}"
+    if float(text) == 0.0:  # rounding carried it below the digits shown
+        text = f"{v:+,.{decimals + 1}f}"
+    return f"{text}%"
+
+
+def money_rate(x: object, symbol: str = "$") -> str:
+    """An amount per unit (``$ per sq ft``): cents below 100, whole units above,
+    at least two significant digits: ``123.456 -> "$123"``, ``12.345 -> "$12.35"``,
+    ``-0.0123 -> "-$0.012"``."""
+    v = _finite(x)
+    if v is None:
+        return MISSING
+    if abs(v) >= 100:
+        return money(v, symbol)
+    sign = "-" if v < 0 else ""
+    a = abs(v)
+    if a < TINY:
+        return f"{symbol}0"
+    decimals = max(2, 1 - math.floor(math.log10(a)))
+    return f"{sign}{symbol}{a:,.{decimals}f}"
 
 
 def percent(x: object, decimals: int = 0) -> str:
