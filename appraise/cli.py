@@ -32,6 +32,7 @@ COMMANDS: dict[str, str] = {
     "diagnose": "check a model: influential sales, redundant terms, accuracy, ratio study",
     "compare": "rank candidate model files by leave-one-out error on the same sales",
     "report": "write the valuation worksheet (PDF, optional HTML and tables)",
+    "batch": "value every subject of a CSV or Parquet file (a roll) into CSV or Parquet",
     "open": "open the desktop workbench (the default with no command)",
 }
 

@@ -1,0 +1,194 @@
+"""``appraise batch SALES --model M.toml --subjects S.(csv|parquet) -o OUT.(csv|parquet) [--level L]``.
+
+Values every row of a subjects file (a roll of properties) with the model fitted to the
+sales, in chunks, and writes one output row per subject in input order: file row, id,
+estimate, median (log response), the single-sale interval and the interval for the mean,
+the level, leverage, warnings and, for a subject that cannot be valued, the reason.
+A caution and what produced the file are written beside it (``OUT.about.txt``) and, for
+Parquet, into the file's metadata.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import time
+from pathlib import Path
+
+from ..engine.batch import DEFAULT_CHUNK_ROWS, count_rows, summarise, value_file
+from ..engine.errors import DataError
+from ..report.cautions import FULL_CAUTIONS, ONE_LINE_CAUTION
+from ..report.numbers import integer as fmt_int
+from .common import add_model_argument, add_sales_arguments, fit_from_args, import_settings
+
+OUT_FORMATS = {".csv": "csv", ".parquet": "parquet", ".pq": "parquet"}
+PROGRESS_FROM_ROWS = 200_000
+"""A progress bar is drawn (on a terminal) for files with at least this many subjects."""
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "batch",
+        help="value every subject of a CSV or Parquet file (a roll) into CSV or Parquet",
+        description=__doc__,
+    )
+    add_sales_arguments(p)
+    add_model_argument(p)
+    p.add_argument(
+        "--subjects",
+        required=True,
+        metavar="SUBJECTS",
+        help="the subjects: .csv or .parquet with the sales' columns (or role names)",
+    )
+    p.add_argument(
+        "-o", "--out", required=True, metavar="OUT", help="where to write: .csv or .parquet"
+    )
+    p.add_argument(
+        "--level",
+        type=float,
+        default=None,
+        help="prediction-interval level (default: the model file's, else 0.90)",
+    )
+    p.add_argument("--id-column", metavar="HEADER", help="the subjects' id column (default: found)")
+    p.add_argument(
+        "--chunk-rows",
+        type=int,
+        default=DEFAULT_CHUNK_ROWS,
+        help=f"subjects valued at a time (default {DEFAULT_CHUNK_ROWS:,})",
+    )
+    p.add_argument("--no-progress", action="store_true", help="never draw a progress bar")
+    p.set_defaults(func=run)
+
+
+class _Writer:
+    """Chunks appended to a temporary file, moved into place only when all are written."""
+
+    def __init__(self, out: Path, fmt: str, metadata: dict[str, str]) -> None:
+        self.out, self.fmt, self.metadata = out, fmt, metadata
+        self.tmp = out.with_name(out.name + ".partial")
+        self.parquet = None
+        self.started = False
+
+    def write(self, chunk) -> None:
+        if self.fmt == "csv":
+            chunk.to_csv(
+                self.tmp,
+                mode="a" if self.started else "w",
+                header=not self.started,
+                index=False,
+                float_format="%.6f",
+            )
+        else:
+            import pyarrow as pa
+            import pyarrow.parquet as pq
+
+            table = pa.Table.from_pandas(chunk, preserve_index=False)
+            if self.parquet is None:
+                schema = table.schema.with_metadata(
+                    {k.encode(): v.encode() for k, v in self.metadata.items()}
+                )
+                self.parquet = pq.ParquetWriter(self.tmp, schema)
+            self.parquet.write_table(table.cast(self.parquet.schema))
+        self.started = True
+
+    def close(self) -> None:
+        if self.parquet is not None:
+            self.parquet.close()
+        os.replace(self.tmp, self.out)
+
+    def abandon(self) -> None:
+        if self.parquet is not None:
+            self.parquet.close()
+        self.tmp.unlink(missing_ok=True)
+
+
+def _progress_bar(path: str, disabled: bool):
+    """A tqdm bar on stderr for long files (none when not a terminal), or None."""
+    if disabled:
+        return None, None
+    total = count_rows(path)
+    if total is None or total < PROGRESS_FROM_ROWS:
+        return None, None
+    from tqdm import tqdm
+
+    bar = tqdm(total=total, unit=" subjects", unit_scale=True, file=sys.stderr, disable=None)
+
+    def progress(done: int, _total: int | None) -> None:
+        bar.update(done - bar.n)
+
+    return bar, progress
+
+
+def about_text(args: argparse.Namespace, summary, level: float, fit) -> str:
+    lines = [
+        "appraise batch valuation",
+        "",
+        f"subjects: {args.subjects}",
+        f"sales: {args.sales} ({fmt_int(fit.n)} sales used)",
+        f"model: {args.model}",
+        f"interval level: {level:.0%} (single-sale prediction interval: low, high; "
+        "interval for the mean: mean_low, mean_high)",
+        f"rows: {fmt_int(summary.rows)}; valued: {fmt_int(summary.valued)}; "
+        f"not valued (see 'reason'): {fmt_int(summary.not_valued)}; "
+        f"valued with warnings: {fmt_int(summary.with_warnings)}",
+    ]
+    if summary.fit_warnings:
+        lines += ["", "Warnings on the model:"] + [f"- {w}" for w in summary.fit_warnings]
+    lines += ["", "Cautions:"]
+    lines += [f"- {title}. {text}" for title, text in FULL_CAUTIONS]
+    return "\n".join(lines) + "\n"
+
+
+def run(args: argparse.Namespace) -> int:
+    out = Path(args.out)
+    fmt = OUT_FORMATS.get(out.suffix.lower())
+    if fmt is None:
+        raise DataError("the output of a batch is a .csv or .parquet file", file=str(out))
+    if args.chunk_rows < 1:
+        raise DataError("--chunk-rows must be at least 1")
+    sales, spec, fit = fit_from_args(args)
+    level = spec.level if args.level is None else args.level
+    started = time.perf_counter()
+    bar, progress = _progress_bar(args.subjects, args.no_progress)
+    results = value_file(
+        fit,
+        sales,
+        args.subjects,
+        import_settings(args),
+        level=args.level,
+        id_header=args.id_column,
+        chunk_rows=args.chunk_rows,
+        progress=progress,
+    )
+    writer = _Writer(out, fmt, {"caution": ONE_LINE_CAUTION, "model": str(args.model)})
+    counts = []
+    try:
+        for chunk in results:
+            writer.write(chunk)
+            counts.append(chunk[["reason", "warnings"]])
+        if not writer.started:
+            raise DataError("the subjects file has a header but no rows", file=args.subjects)
+        writer.close()
+    except BaseException:
+        writer.abandon()
+        raise
+    finally:
+        if bar is not None:
+            bar.close()
+    summary = summarise(counts, fit)
+    about = out.with_name(out.name + ".about.txt")
+    about.write_text(about_text(args, summary, level, fit), encoding="utf-8")
+    seconds = time.perf_counter() - started
+    print(
+        f"{fmt_int(summary.rows)} subjects: {fmt_int(summary.valued)} valued, "
+        f"{fmt_int(summary.not_valued)} not valued (reason given), "
+        f"{fmt_int(summary.with_warnings)} with warnings; written to {out} in {seconds:.1f} s"
+    )
+    for w in summary.fit_warnings:
+        print(f"warning: {w}")
+    print(ONE_LINE_CAUTION)
+    return 0
+
+
+__all__ = ["register", "run"]

@@ -1,0 +1,586 @@
+"""Value a whole table of subjects (a roll of properties) with one fitted model.
+
+The subjects file (CSV or Parquet) is read in chunks; each chunk is cleaned column by
+column the way the sales columns of the same names were cleaned (vectorised, with the
+per-cell parser only for cells the fast path of :mod:`.cell_columns` cannot decide) and
+valued by the one prediction path, :meth:`FitResult.predict`. No Python loop runs per
+subject, and memory stays flat whatever the length of the file.
+
+Every subject row comes out, in input order, with its file row, its id, the estimate, the
+median (log response), the prediction interval for one sale and the interval for the
+mean, its leverage, the warnings that concern it and, for a subject that cannot be valued,
+the reason (a bad cell, a missing input, a category level the sales never had, no date
+for the time terms). A row is never dropped.
+
+As for one subject: :math:`\\hat y_0 = x_0'\\hat\\beta`, the single-sale interval
+:math:`\\hat y_0 \\pm t_{1-\\alpha/2,\\,n-p}\\sqrt{s^2 + x_0'Vx_0}`, for a log response the
+bounds exponentiated and the estimate Duan's smearing mean :math:`e^{\\hat y_0}\\bar{e^{\\hat e}}`.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from collections.abc import Callable, Iterator, Sequence
+from dataclasses import dataclass
+from functools import partial
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .cell_columns import fast_iso_dates, fast_numbers, missing_mask, parse_rest
+from .cells import clean_text, parse_date, parse_flag, parse_number
+from .design import level_label
+from .errors import DataError, SubjectError
+from .fitting import FitResult
+from .importing import FIRST_DATA_ROW, clean_headers, format_of, sniff_delimiter
+from .levels import MIN_LEVEL_SALES
+from .prediction import check_level
+from .sales import SalesTable
+from .settings import ImportSettings
+from .subject import EFFECTIVE_DATE, _target
+from .valuation import DATE_SLACK_DAYS
+
+DEFAULT_CHUNK_ROWS = 50_000
+"""Subjects valued at a time: the dense design of a chunk is chunk x p floats."""
+
+ID_HEADERS = ("id", "subject_id", "subject id", "parcel", "parcel_id", "parcel id")
+"""Headers taken as the subject's id when no column lands on the sales' id column."""
+
+OUTPUT_COLUMNS = (
+    "row",
+    "id",
+    "estimate",
+    "median",
+    "low",
+    "high",
+    "mean_low",
+    "mean_high",
+    "level",
+    "leverage",
+    "warnings",
+    "reason",
+)
+"""Columns of a batch result; ``median`` only for a log response."""
+
+Progress = Callable[[int, int | None], None]
+"""``progress(rows_done, rows_in_file_or_None)`` after each chunk."""
+
+
+@dataclass(frozen=True)
+class ColumnPlan:
+    """How the columns of a subjects file land in the sales' columns.
+
+    ``landing`` holds ``(file header, sales column, kind)`` for every header (``kind``
+    None: kept as written); ``id_header`` is the header giving each subject's id (None:
+    the file row is the id); ``dates_to_fill`` are the model's date inputs, filled from
+    ``effective_date`` (the row's, else the model file's) where a row has none.
+    """
+
+    landing: tuple[tuple[str, str, str | None], ...]
+    id_header: str | None
+    dates_to_fill: tuple[str, ...]
+    effective_date: pd.Timestamp | None
+
+
+@dataclass(frozen=True)
+class BatchSummary:
+    """What a batch run did: rows read, valued, not valued, valued with warnings."""
+
+    rows: int
+    valued: int
+    not_valued: int
+    with_warnings: int
+    fit_warnings: tuple[str, ...]
+
+    def to_dict(self) -> dict:
+        return {
+            "rows": self.rows,
+            "valued": self.valued,
+            "not_valued": self.not_valued,
+            "with_warnings": self.with_warnings,
+            "fit_warnings": list(self.fit_warnings),
+        }
+
+
+def plan_columns(
+    headers: Sequence[str], fit: FitResult, sales: SalesTable, id_header: str | None = None
+) -> ColumnPlan:
+    """Where each subjects-file header lands (as :func:`~.subject.read_subject` decides).
+
+    Raises
+    ------
+    SubjectError
+        ``id_header`` is not a header; two headers land in the same sales column; the
+        file lacks an input the model reads (a date input is excused when an effective
+        date is known).
+    """
+    landing = []
+    taken: dict[str, str] = {}
+    for h in headers:
+        column, kind = _target(h, sales)
+        if column in taken:
+            raise SubjectError(
+                f"headers '{taken[column]}' and '{h}' both give column '{column}'", column=h
+            )
+        taken[column] = h
+        landing.append((h, column, kind))
+    if id_header is not None and id_header not in headers:
+        raise SubjectError(f"there is no column '{id_header}' for the subject ids")
+    if id_header is None:
+        id_col = sales.roles.column("sale_id")
+        id_header = taken.get(id_col) if id_col else None
+    if id_header is None:
+        id_header = next((h for h in headers if h.strip().casefold() in ID_HEADERS), None)
+    date_inputs = tuple(
+        c for c in fit.design.inputs if pd.api.types.is_datetime64_any_dtype(fit.frame[c])
+    )
+    eff = pd.Timestamp(fit.spec.effective_date) if fit.spec.effective_date else None
+    can_fill = eff is not None or EFFECTIVE_DATE in taken
+    lacking = [
+        c for c in fit.design.inputs if c not in taken and not (c in date_inputs and can_fill)
+    ]
+    if lacking:
+        raise SubjectError(
+            "the subjects file lacks column(s) the model needs: " + ", ".join(lacking),
+            column=lacking[0],
+        )
+    return ColumnPlan(tuple(landing), id_header, date_inputs, eff)
+
+
+# --- cleaning a chunk -------------------------------------------------------------------
+@dataclass
+class _Reasons:
+    """The first reason each row cannot be valued (None: none yet)."""
+
+    text: np.ndarray
+
+    def add(self, mask: np.ndarray, texts: np.ndarray | str) -> None:
+        open_ = mask & pd.isna(self.text)
+        if open_.any():
+            self.text[open_] = texts if isinstance(texts, str) else texts[open_]
+
+
+def _as_objects(values: pd.Series) -> np.ndarray:
+    return values.to_numpy(dtype=object, na_value=None)
+
+
+def _per_unique(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    return codes, np.asarray(uniques, dtype=object)
+
+
+def _spread(per_unique: np.ndarray, codes: np.ndarray, fill: object) -> np.ndarray:
+    return np.append(per_unique, np.array([fill], dtype=per_unique.dtype))[codes]
+
+
+def _clean_column(
+    values: np.ndarray, kind: str, settings: ImportSettings, header: str
+) -> tuple[np.ndarray, np.ndarray]:
+    """One subjects column read as ``kind``: per-row values and per-row reason (or None)."""
+    codes, uniques = _per_unique(values)
+    k = len(uniques)
+    why = np.full(k, None, dtype=object)
+    missing = missing_mask(uniques) if k else np.zeros(0, dtype=bool)
+    if kind in ("number", "flag"):
+        if kind == "number":
+            out, decided = fast_numbers(uniques, settings.decimal)
+            parse = partial(
+                parse_number, decimal=settings.decimal, currency_symbol=settings.currency_symbol
+            )
+        else:
+            out, decided = np.full(k, np.nan), np.zeros(k, dtype=bool)
+            parse = _flag_value
+        got, bad = parse_rest(uniques, decided | missing, parse)
+        for j, v in got.items():
+            out[j] = float(v)
+        for j, r in bad.items():
+            why[j] = r
+        out[missing] = np.nan
+        return _spread(out, codes, np.nan), _spread(_prefix(why, header), codes, None)
+    if kind == "date":
+        out, decided = fast_iso_dates(uniques)
+        got, bad = parse_rest(uniques, decided | missing, partial(_date_value, settings=settings))
+        for j, v in got.items():
+            out[j] = v
+        for j, r in bad.items():
+            why[j] = r
+        return _spread(out, codes, np.datetime64("NaT")), _spread(_prefix(why, header), codes, None)
+    texts = np.full(k, None, dtype=object)
+    if k:
+        present = ~missing
+        texts[present] = [clean_text(u) for u in uniques[present]]
+    return _spread(texts, codes, None), np.full(len(values), None, dtype=object)
+
+
+def _prefix(why: np.ndarray, header: str) -> np.ndarray:
+    out = why.copy()
+    has = np.flatnonzero(pd.notna(why))
+    out[has] = [f"'{header}' {r}" for r in why[has]]
+    return out
+
+
+def _flag_value(value: object) -> float:
+    return 1.0 if parse_flag(value) else 0.0
+
+
+def _date_value(value: object, *, settings: ImportSettings) -> np.datetime64:
+    order = settings.date_order
+    reading = parse_date(value, order=order)
+    text = clean_text(value)
+    if reading.value is None:
+        raise ValueError(
+            f"'{text}' could be day/month or month/day; set the date order (--date-order)"
+        )
+    if (reading.form, order) in (("day_first", "MDY"), ("month_first", "DMY")):
+        raise ValueError(f"'{text}' contradicts the date order {order}")
+    return np.datetime64(reading.value, "ns")
+
+
+def clean_chunk(
+    raw: pd.DataFrame, plan: ColumnPlan, settings: ImportSettings
+) -> tuple[pd.DataFrame, np.ndarray]:
+    """A raw chunk as a frame of sales-like columns, and each row's first reason (or None).
+
+    Date inputs a row lacks are filled from its ``effective_date``, else the model's.
+    """
+    n = len(raw)
+    reasons = _Reasons(np.full(n, None, dtype=object))
+    data: dict[str, object] = {}
+    for header, column, kind in plan.landing:
+        values = _as_objects(raw[header])
+        if kind is None:
+            data[column] = values
+            continue
+        clean, why = _clean_column(values, kind, settings, header)
+        reasons.add(pd.notna(why), why)
+        data[column] = clean if kind != "text" else pd.Series(clean, dtype=object)
+    frame = pd.DataFrame(data, index=pd.RangeIndex(n))
+    if plan.dates_to_fill:
+        eff = frame[EFFECTIVE_DATE] if EFFECTIVE_DATE in frame.columns else None
+        for col in plan.dates_to_fill:
+            have = (
+                frame[col]
+                if col in frame.columns
+                else pd.Series(np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]"))
+            )
+            filled = have
+            if eff is not None:
+                filled = filled.fillna(eff)
+            if plan.effective_date is not None:
+                filled = filled.fillna(plan.effective_date)
+            gone = filled.isna().to_numpy()
+            reasons.add(
+                gone,
+                f"no '{col}' and no effective date: give an 'effective_date' column or set "
+                "effective_date in the model file",
+            )
+            frame[col] = filled.astype("datetime64[ns]")
+    return frame, reasons.text
+
+
+# --- valuing a chunk --------------------------------------------------------------------
+@dataclass(frozen=True)
+class _Ranges:
+    """What the per-row warnings compare against, computed once per batch."""
+
+    max_leverage: float
+    numeric: tuple[tuple[str, float, float], ...]
+    dates: tuple[tuple[str, np.datetime64, np.datetime64], ...]
+    thin: tuple[tuple[str, str, dict[str, int]], ...]  # (input column, term, {level: count})
+
+
+def _ranges(fit: FitResult) -> _Ranges:
+    numeric, dates = [], []
+    for col in fit.design.inputs:
+        s = fit.frame[col]
+        if pd.api.types.is_datetime64_any_dtype(s):
+            slack = np.timedelta64(DATE_SLACK_DAYS, "D")
+            lo = s.min().to_datetime64() - slack
+            hi = s.max().to_datetime64() + slack
+            dates.append((col, lo, hi))
+        elif pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s):
+            numeric.append((col, float(s.min()), float(s.max())))
+    thin = []
+    for g in fit.design.groups:
+        if g.kind != "onehot" or len(g.inputs) != 1:
+            continue
+        few = {
+            c.level: c.count
+            for c in fit.levels
+            if c.term == g.expression and c.count < MIN_LEVEL_SALES
+        }
+        if few:
+            thin.append((g.inputs[0], g.expression, few))
+    return _Ranges(float(fit.leverage().max()), tuple(numeric), tuple(dates), tuple(thin))
+
+
+def _labels(values: pd.Series) -> np.ndarray:
+    if pd.api.types.is_numeric_dtype(values) or pd.api.types.is_datetime64_any_dtype(values):
+        arr = values.to_numpy()
+        out = np.full(len(arr), None, dtype=object)
+        present = ~pd.isna(arr)
+        uniq, inverse = np.unique(arr[present], return_inverse=True)
+        out[present] = np.array([level_label(u) for u in uniq], dtype=object)[inverse]
+        return out
+    return values.to_numpy(dtype=object)
+
+
+def _warnings(
+    frame: pd.DataFrame,
+    ok: np.ndarray,
+    leverage: np.ndarray,
+    low: np.ndarray,
+    fit: FitResult,
+    ranges: _Ranges,
+) -> np.ndarray:
+    """Per-row warning text (``""`` for none), the parts joined by ``"; "``."""
+    n = len(frame)
+    out = np.full(n, "", dtype=object)
+
+    def add(mask: np.ndarray, text: str | np.ndarray) -> None:
+        mask = mask & ok
+        if not mask.any():
+            return
+        part = text if isinstance(text, str) else text[mask]
+        sep = np.where(out[mask] == "", "", "; ").astype(object)
+        out[mask] = out[mask] + sep + part
+
+    for col, lo, hi in ranges.numeric:
+        v = frame[col].to_numpy(dtype=float, na_value=np.nan)
+        with np.errstate(invalid="ignore"):
+            add((v < lo) | (v > hi), f"'{col}' outside the sales' range {lo:g} to {hi:g}")
+    for col, lo, hi in ranges.dates:
+        v = frame[col].to_numpy(dtype="datetime64[ns]")
+        outside = ~np.isnat(v) & ((v < lo) | (v > hi))
+        add(outside, f"'{col}' more than {DATE_SLACK_DAYS} days outside the sales' dates")
+    for col, term, few in ranges.thin:
+        labels = _labels(frame[col])
+        for level, count in few.items():
+            add(
+                labels == level,
+                f"level '{level}' of {term} has only {count} sale{'s' if count != 1 else ''}",
+            )
+    with np.errstate(invalid="ignore"):
+        add(
+            leverage > ranges.max_leverage,
+            "leverage above every sale's: the attributes are unlike any sale (extrapolation)",
+        )
+        if fit.spec.response == "linear":
+            add(low < 0, "negative lower bound: a linear response fits this subject poorly")
+    return out
+
+
+def value_chunk(
+    fit: FitResult,
+    raw: pd.DataFrame,
+    plan: ColumnPlan,
+    settings: ImportSettings,
+    level: float,
+    first_row: int,
+    ranges: _Ranges | None = None,
+) -> pd.DataFrame:
+    """Value every row of one raw chunk: one output row per input row, in order.
+
+    ``first_row`` is the file row of the chunk's first row (header = 1).
+    """
+    ranges = _ranges(fit) if ranges is None else ranges
+    n = len(raw)
+    frame, reasons = clean_chunk(raw, plan, settings)
+    usable = pd.isna(reasons)
+    pred = fit.predict(frame, level)
+    ok = pred.ok & usable
+    design_reasons = np.array(pred.reasons, dtype=object)
+    take = pd.isna(reasons) & pd.notna(design_reasons)
+    reasons[take] = design_reasons[take]
+    estimate = np.where(ok, pred.estimate, np.nan)
+    lo, hi = pred.interval(level)
+    mlo, mhi = pred.interval(level, kind="mean")
+    rows = np.arange(first_row, first_row + n, dtype=np.int64)
+    if plan.id_header is not None:
+        ids = _as_objects(raw[plan.id_header])
+        blank = missing_mask(ids) if n else np.zeros(0, dtype=bool)
+        ids = np.where(blank, None, ids)
+        ids = pd.Series(ids, dtype=object).map(clean_text, na_action="ignore")
+    else:
+        ids = pd.Series(rows.astype(str), dtype=object)
+    out = {"row": rows, "id": ids.to_numpy(dtype=object)}
+    out["estimate"] = estimate
+    if fit.spec.response == "log":
+        out["median"] = np.where(ok, pred.median, np.nan)
+    out |= {
+        "low": np.where(ok, lo, np.nan),
+        "high": np.where(ok, hi, np.nan),
+        "mean_low": np.where(ok, mlo, np.nan),
+        "mean_high": np.where(ok, mhi, np.nan),
+        "level": np.full(n, level),
+        "leverage": np.where(ok, pred.leverage, np.nan),
+        "warnings": _warnings(frame, ok, pred.leverage, lo, fit, ranges),
+        "reason": np.where(ok, "", reasons.astype(object)).astype(object),
+    }
+    return pd.DataFrame(out)
+
+
+# --- reading subjects in chunks ---------------------------------------------------------
+def count_rows(path: str | Path) -> int | None:
+    """Rows below the header (Parquet: from its metadata; CSV: a count of line breaks,
+    exact unless a quoted value holds a line break); None when it cannot be told."""
+    p = Path(path)
+    fmt = format_of(p)
+    if fmt == "parquet":
+        import pyarrow.parquet as pq
+
+        return int(pq.ParquetFile(p).metadata.num_rows)
+    if fmt != "csv":
+        return None
+    lines, last = 0, b"\n"
+    with p.open("rb") as fh:
+        while block := fh.read(1 << 22):
+            lines += block.count(b"\n")
+            last = block[-1:]
+    return max(lines + (last != b"\n") - 1, 0)
+
+
+def read_subject_chunks(
+    path: str | Path, chunk_rows: int = DEFAULT_CHUNK_ROWS
+) -> tuple[list[str], Iterator[pd.DataFrame]]:
+    """The cleaned headers of a subjects file and an iterator over its raw chunks.
+
+    CSV cells come as text exactly as written; Parquet columns keep their types.
+
+    Raises
+    ------
+    DataError
+        Missing or unreadable file, a format other than CSV or Parquet.
+    """
+    p = Path(path)
+    file = str(p)
+    if not p.is_file():
+        raise DataError("file not found", file=file)
+    fmt = format_of(p)
+    if fmt == "parquet":
+        import pyarrow.parquet as pq
+
+        pf = pq.ParquetFile(p)
+        headers, _ = clean_headers(pf.schema_arrow.names)
+
+        def parquet_chunks() -> Iterator[pd.DataFrame]:
+            for batch in pf.iter_batches(batch_size=chunk_rows):
+                frame = batch.to_pandas()
+                frame.columns = headers
+                yield frame
+
+        return headers, parquet_chunks()
+    if fmt != "csv":
+        raise DataError("subjects for a batch are read from .csv or .parquet files", file=file)
+    with p.open("rb") as fh:
+        head = fh.read(1 << 16)
+    try:
+        sample = head.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise DataError("the subjects file is not UTF-8 text", file=file) from None
+    delimiter = sniff_delimiter(sample)
+    first = next(csv.reader(io.StringIO(sample), delimiter=delimiter), None)
+    if not first:
+        raise DataError("the subjects file is empty", file=file)
+    headers, _ = clean_headers(first)
+
+    def csv_chunks() -> Iterator[pd.DataFrame]:
+        reader = pd.read_csv(
+            p,
+            sep=delimiter,
+            dtype=str,
+            keep_default_na=False,
+            na_filter=False,
+            skip_blank_lines=False,
+            encoding="utf-8-sig",
+            chunksize=chunk_rows,
+            header=0,
+            names=headers,
+        )
+        try:
+            yield from reader
+        except (pd.errors.ParserError, UnicodeDecodeError) as exc:
+            raise DataError(f"cannot read the subjects file: {exc}", file=file) from None
+
+    return headers, csv_chunks()
+
+
+def value_file(
+    fit: FitResult,
+    sales: SalesTable,
+    path: str | Path,
+    settings: ImportSettings = ImportSettings(),  # noqa: B008 - frozen, safe as a default
+    *,
+    level: float | None = None,
+    id_header: str | None = None,
+    chunk_rows: int = DEFAULT_CHUNK_ROWS,
+    progress: Progress | None = None,
+) -> Iterator[pd.DataFrame]:
+    """Value every subject in ``path``, yielding one result frame per chunk, in file order.
+
+    Columns: :data:`OUTPUT_COLUMNS` (``median`` only for a log response). ``row`` is the
+    file row (header = 1), ``reason`` is ``""`` for a valued row.
+    """
+    level = fit.spec.level if level is None else check_level(level)
+    headers, chunks = read_subject_chunks(path, chunk_rows)
+    plan = plan_columns(headers, fit, sales, id_header)
+    ranges = _ranges(fit)
+    total = count_rows(path) if progress is not None else None
+    done = 0
+    for raw in chunks:
+        yield value_chunk(fit, raw, plan, settings, level, done + FIRST_DATA_ROW, ranges)
+        done += len(raw)
+        if progress is not None:
+            progress(done, total)
+
+
+def value_frame(
+    fit: FitResult,
+    sales: SalesTable,
+    subjects: pd.DataFrame,
+    settings: ImportSettings = ImportSettings(),  # noqa: B008
+    *,
+    level: float | None = None,
+    id_header: str | None = None,
+    chunk_rows: int = DEFAULT_CHUNK_ROWS,
+) -> pd.DataFrame:
+    """Value the rows of a frame of raw subject cells (as a file would hold them)."""
+    level = fit.spec.level if level is None else check_level(level)
+    headers, _ = clean_headers(list(subjects.columns))
+    raw = subjects.set_axis(headers, axis=1).reset_index(drop=True)
+    plan = plan_columns(headers, fit, sales, id_header)
+    ranges = _ranges(fit)
+    parts = [
+        value_chunk(
+            fit, raw.iloc[s : s + chunk_rows], plan, settings, level, s + FIRST_DATA_ROW, ranges
+        )
+        for s in range(0, max(len(raw), 1), chunk_rows)
+    ]
+    return pd.concat(parts, ignore_index=True)
+
+
+def summarise(results: Sequence[pd.DataFrame] | pd.DataFrame, fit: FitResult) -> BatchSummary:
+    """Counts over result frames (see :class:`BatchSummary`)."""
+    frames = [results] if isinstance(results, pd.DataFrame) else list(results)
+    rows = sum(len(f) for f in frames)
+    valued = sum(int((f["reason"] == "").sum()) for f in frames)
+    warned = sum(int(((f["warnings"] != "") & (f["reason"] == "")).sum()) for f in frames)
+    return BatchSummary(rows, valued, rows - valued, warned, tuple(fit.warnings))
+
+
+__all__ = [
+    "DEFAULT_CHUNK_ROWS",
+    "OUTPUT_COLUMNS",
+    "BatchSummary",
+    "ColumnPlan",
+    "clean_chunk",
+    "count_rows",
+    "plan_columns",
+    "read_subject_chunks",
+    "summarise",
+    "value_chunk",
+    "value_file",
+    "value_frame",
+]
