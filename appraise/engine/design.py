@@ -14,6 +14,9 @@ Design columns, in feature order after ``Intercept``:
   (``living_area * dist_km``);
 * ``onehot(region)`` gives ``region[Heronmoor]``, one 0/1 column per level except
   the reference;
+* ``x * onehot(region)`` (kind "onehot_product") gives ``x * region[Heronmoor]``, x times
+  each level's indicator except the reference: with ``x`` and ``onehot(region)`` also in
+  the model, the slope of x in a level is the coefficient of ``x`` plus that column's;
 * ``poly(a, b, degree=m)`` gives every monomial of total degree 1..m:
   ``C(d + m, m) - 1`` columns for d inputs, ordered by degree and then
   lexicographically by input (``a``, ``b``, ``a^2``, ``a*b``, ``b^2``...).
@@ -64,16 +67,16 @@ INTERCEPT = "Intercept"
 MAX_POLY_COLUMNS = 500
 """Most columns a single ``poly(...)`` may expand to."""
 
-KINDS = ("plain", "onehot", "poly")
+KINDS = ("plain", "onehot", "poly", "onehot_product")
 
 
 @dataclass(frozen=True)
 class TermGroup:
     """The design columns one feature expands to.
 
-    ``expression`` is the feature's normalised text; ``kind`` is "plain", "onehot"
-    or "poly"; ``reference`` is the reference level of a ``onehot`` (the level
-    without a column), else None; ``inputs`` the frame headers the feature reads;
+    ``expression`` is the feature's normalised text; ``kind`` is "plain", "onehot",
+    "poly" or "onehot_product" (``x * onehot(c)``); ``reference`` is the reference
+    level of a ``onehot`` (the level without a column), else None; ``inputs`` the frame headers the feature reads;
     ``levels`` every learned level of a ``onehot`` (the reference included), in
     order.
     """
@@ -175,12 +178,16 @@ class DesignSpec:
         n = len(frame)
         blocks = [np.ones((n, 1))] if self.intercept else []
         for term, values in zip(self._terms, ev.values, strict=True):
-            if term.kind == "onehot":
+            if term.kind in ("onehot", "onehot_product"):
+                labels = values if term.kind == "onehot" else values[:, 0]
                 if unseen == "flag":
-                    ev.flag_unseen(term, values)
+                    ev.flag_unseen(term, labels)
                 else:
-                    _check_levels(term, values, ev.problem_of < 0, frame)
-                blocks.append(_indicators(term, values))
+                    _check_levels(term, labels, ev.problem_of < 0, frame)
+                block = _indicators(term, labels)
+                if term.kind == "onehot_product":
+                    block = block * values[:, 1].astype(float)[:, None]
+                blocks.append(block)
             else:
                 blocks.append(values)
         matrix = np.hstack(blocks) if blocks else np.empty((n, 0))
@@ -277,7 +284,11 @@ def learn_design(
     ev = _evaluate(terms, frame)
     usable = ev.problem_of < 0
     terms = [
-        _learn_levels(t, v, usable) if t.kind == "onehot" else t
+        _learn_levels(t, v, usable)
+        if t.kind == "onehot"
+        else _learn_levels(t, v[:, 0], usable)
+        if t.kind == "onehot_product"
+        else t
         for t, v in zip(terms, ev.values, strict=True)
     ]
     names = [INTERCEPT] if intercept else []
@@ -320,6 +331,10 @@ def _make_term(feature: str, scope: NameScope) -> _Term:
         return _Term(feature, text, "plain", shape.args, inputs, hint, columns=(text,))
     if shape.kind == "onehot":
         return _Term(feature, text, "onehot", shape.args, inputs, hint, requested_ref=shape.ref)
+    if shape.kind == "onehot_product":
+        return _Term(
+            feature, text, "onehot_product", shape.args, inputs, hint, requested_ref=shape.ref
+        )
     d, m = len(shape.args), int(shape.degree or 0)
     if comb(d + m, m) - 1 > MAX_POLY_COLUMNS:
         raise ExpressionError(
@@ -558,6 +573,14 @@ def _evaluate(terms: Sequence[_Term], frame: pd.DataFrame) -> _Evaluated:
             if t.kind == "onehot":
                 values.append(_labels(ev, t))
                 continue
+            if t.kind == "onehot_product":
+                factor = ev.number(t.args[1], t.feature)
+                why = f"{t.text} is not finite" + (f" ({t.hint})" if t.hint else "")
+                flag(~np.isfinite(factor), why, None)
+                pair = np.empty((n, 2), dtype=object)
+                pair[:, 0], pair[:, 1] = _labels(ev, t), factor
+                values.append(pair)
+                continue
             block = np.column_stack([ev.number(a, t.feature) for a in t.args])
             if t.kind == "poly":
                 block = _monomials(block, t.exponents)
@@ -582,7 +605,7 @@ def _monomials(x: np.ndarray, exponents: Sequence[Sequence[int]]) -> np.ndarray:
 # --- onehot ------------------------------------------------------------------------------
 def _labels(ev: _Evaluator, t: _Term) -> np.ndarray:
     """The level of each row as a string (None when missing)."""
-    (arg,) = t.args
+    arg = t.args[0]  # the category (a product's factor follows it)
     v = ev.value(arg, t.feature)
     if isinstance(v, str):
         raise ExpressionError(f"in '{t.feature}': onehot(...) needs a column, not quoted text")
@@ -650,6 +673,9 @@ def _learn_levels(t: _Term, labels: np.ndarray, usable: np.ndarray) -> _Term:
             column=col,
         )
     prefix = to_text(t.args[0])
+    if t.kind == "onehot_product":  # x * onehot(c): "x * c[level]", the slope shift of x
+        factor = t.args[1]
+        prefix = (to_text(factor) if is_atom(factor) else f"({to_text(factor)})") + " * " + prefix
     cols = tuple(f"{prefix}[{lv}]" for lv in levels if lv != reference)
     return replace(t, levels=tuple(levels), reference=reference, columns=cols)
 

@@ -291,7 +291,20 @@ class _Walker:
                 sym = {ast.FloorDiv: "//", ast.Mod: "%", ast.MatMult: "@"}.get(type(node.op))
                 name = f"operator {sym}" if sym else "a bitwise operator"
                 raise self.fail(node, f"{name} is not allowed (use + - * / **)")
-            return Binary(op, self.convert(node.left), self.convert(node.right))
+            # ``x * onehot(c)`` (either order) as a whole feature: x times each indicator
+            left_top = top and op == "*" and _is_onehot_call(node.left)
+            right_top = top and op == "*" and not left_top and _is_onehot_call(node.right)
+            out = Binary(
+                op, self.convert(node.left, top=left_top), self.convert(node.right, top=right_top)
+            )
+            factor = out.right if left_top else out.left if right_top else None
+            if factor is not None and next(_names(factor), None) is None:
+                raise self.fail(
+                    node,
+                    "onehot(...) expands to several columns; a product with it needs a factor "
+                    "that involves a column (x * onehot(c))",
+                )
+            return out
         if isinstance(node, ast.UnaryOp):
             if isinstance(node.op, ast.USub):
                 return Unary("-", self.convert(node.operand))
@@ -346,7 +359,8 @@ class _Walker:
             where = (
                 "a derived variable must be a single value"
                 if top
-                else "it must be a whole feature on its own, not part of arithmetic or a call"
+                else "it must be a whole feature on its own, not part of arithmetic or a call "
+                "(the one exception: a product x * onehot(c), the slope of x in each level)"
             )
             raise self.fail(node, f"{fname}(...) expands to several columns; {where}")
         for a in node.args:
@@ -393,6 +407,14 @@ class _Walker:
                 raise self.fail(node, "every poly(...) input must involve a column")
 
 
+def _is_onehot_call(node: ast.AST) -> bool:
+    return (
+        isinstance(node, ast.Call)
+        and isinstance(node.func, ast.Name)
+        and (node.func.id == "onehot")
+    )
+
+
 def _arity(info: FunctionInfo) -> str:
     if info.max_args is None:
         return f"takes at least {info.min_args} argument(s)"
@@ -433,11 +455,33 @@ class FeatureShape:
     degree: int | None = None
 
 
+def _onehot_product(node: Node) -> tuple[Call, Node] | None:
+    """``(onehot call, factor)`` of a feature ``factor * onehot(c)`` (either order), else None."""
+    if not (isinstance(node, Binary) and node.op == "*"):
+        return None
+    if isinstance(node.right, Call) and node.right.func == "onehot":
+        return node.right, node.left
+    if isinstance(node.left, Call) and node.left.func == "onehot":
+        return node.left, node.right
+    return None
+
+
 def feature_shape(node: Node) -> FeatureShape:
-    """Classify a parsed (or resolved) feature tree."""
+    """Classify a parsed (or resolved) feature tree.
+
+    Kinds: "plain", "onehot", "poly", and "onehot_product" for ``x * onehot(c)``, whose
+    ``args`` are ``(c, x)``: the category, then the factor multiplied by each indicator.
+    """
     if isinstance(node, Call) and node.func == "onehot":
         ref = node.keyword("ref")
         return FeatureShape("onehot", node.args, ref=None if ref is None else _literal(ref))
+    product = _onehot_product(node)
+    if product is not None:
+        call, factor = product
+        ref = call.keyword("ref")
+        return FeatureShape(
+            "onehot_product", (*call.args, factor), ref=None if ref is None else _literal(ref)
+        )
     if isinstance(node, Call) and node.func == "poly":
         deg = node.keyword("degree")
         assert isinstance(deg, Number)
