@@ -41,6 +41,8 @@ from .cells import (
     parse_number,
 )
 from .errors import DataError, RoleError
+from .limits import check_xlsx
+from .plausibility import DEFAULT_RULES, PlausibilityRules, RowChecks, decide_decimal_mark
 from .roles import AREA_ROLES, ROLE_KINDS, RoleMap, list_headers, resolve_roles
 from .sales import ROW_COLUMN, Exclusion, SalesTable, SourceInfo
 from .settings import SQFT_PER_M2, AreaUnit, ImportSettings
@@ -181,6 +183,10 @@ def _read_csv(path: Path, data: bytes) -> RawTable:
             f"cannot read the CSV: {exc}", file=str(path), row=reader.line_num
         ) from None
     _trim_trailing_blank_rows(rows, notes)
+    if not rows:
+        raise DataError(
+            "the file holds only delimiters and blank lines: no header, no sales", file=str(path)
+        )
     header, body = rows[0], rows[1:]
     width = len(header)
     long_rows = {}
@@ -197,6 +203,7 @@ def _read_xlsx(path: Path, sheet: str | int) -> RawTable:
     from openpyxl import load_workbook
     from openpyxl.utils.exceptions import InvalidFileException
 
+    check_xlsx(path)  # size and extent limits, before any sheet is parsed
     try:
         wb = load_workbook(path, read_only=True, data_only=True)
     except (zipfile.BadZipFile, InvalidFileException, KeyError, OSError, ValueError) as exc:
@@ -588,6 +595,7 @@ def load_sales(
     roles: RoleMap | None = None,
     *,
     progress: Progress | None = None,
+    rules: PlausibilityRules = DEFAULT_RULES,
 ) -> SalesTable:
     """Read a sales export and clean it.
 
@@ -602,6 +610,10 @@ def load_sales(
     progress:
         Called as ``progress(fraction, message)`` as the work advances (fraction in
         0..1). It may raise :class:`~appraise.engine.errors.Cancelled` to stop the read.
+    rules:
+        The plausibility rules (:mod:`appraise.engine.plausibility`): implausible
+        prices, areas, sale dates and years built exclude their rows with a reason;
+        the decimal mark is decided once for the whole file and reported.
 
     Returns
     -------
@@ -636,6 +648,15 @@ def load_sales(
         raise _no_price_error(headers, file)
     n = raw.n_rows
     notes = list(raw.notes) + header_notes
+    decision = decide_decimal_mark(
+        {c: raw.columns[headers.index(c)] for c in _money_and_area_columns(role_map, headers)},
+        settings.decimal,
+        currency_symbol=settings.currency_symbol,
+    )
+    if decision.mark != settings.decimal:
+        settings = replace(settings, decimal=decision.mark)
+    if decision.note:
+        notes.append(decision.note)
     for pos in raw.long_rows:  # misaligned values: read nothing from them
         for col in raw.columns:
             col[pos] = None
@@ -657,7 +678,9 @@ def load_sales(
         )
 
     step(0.9, "checking rows")
-    excluded = _exclusions(raw, headers, role_map, cleaned)
+    checks = _row_checks(raw, headers, role_map, cleaned, rules)
+    excluded = _exclusions(raw, headers, role_map, cleaned, checks)
+    notes += checks.notes
     used = np.ones(n, dtype=bool)
     for e in excluded:
         used[e.row - FIRST_DATA_ROW] = False
@@ -681,6 +704,23 @@ def load_sales(
     )
 
 
+def _money_and_area_columns(roles: RoleMap, headers: Sequence[str]) -> list[str]:
+    cols = [roles.column(r) for r in ("price", *AREA_ROLES)]
+    return [c for c in dict.fromkeys(cols) if c is not None and c in headers]
+
+
+def _row_checks(
+    raw: RawTable, headers: list[str], roles: RoleMap, cleaned: dict[str, _Clean], rules
+) -> RowChecks:
+    """The plausibility rules over the cleaned price, date, area and year-built columns."""
+    values = {}
+    for role in ("price", "sale_date", "living_area", "lot_area", "year_built"):
+        col = roles.column(role)
+        if col is not None and col in cleaned and cleaned[col].kind in ("number", "date"):
+            values[role] = (col, cleaned[col].values)
+    return RowChecks(values, dict(zip(headers, raw.columns, strict=True)), rules)
+
+
 def _no_progress(fraction: float, message: str) -> None:
     """The default progress callback: nobody is listening."""
 
@@ -693,13 +733,18 @@ def _series(col: _Clean, used: np.ndarray) -> pd.Series:
 
 
 def _exclusions(
-    raw: RawTable, headers: list[str], roles: RoleMap, cleaned: dict[str, _Clean]
+    raw: RawTable,
+    headers: list[str],
+    roles: RoleMap,
+    cleaned: dict[str, _Clean],
+    checks: RowChecks | None = None,
 ) -> list[Exclusion]:
     """One exclusion per unusable row: the first of these reasons that applies.
 
-    Long CSV row, empty row, price (unreadable, missing, not positive), sale
-    date (unreadable, missing), arm's-length flag (unreadable, "no"), then a
-    sale id already seen on a row that is used.
+    Long CSV row, empty row, price (unreadable, missing, not positive, then
+    implausible), sale date (unreadable, missing, implausible), arm's-length flag
+    (unreadable, "no"), implausible area or year built, then a sale id already seen
+    on a row that is used. The plausibility rules come from ``checks``.
     """
     n = raw.n_rows
     raw_of = dict(zip(headers, raw.columns, strict=True))
@@ -737,11 +782,15 @@ def _exclusions(
         lambda i: f"price '{_raw_text(raw_of[price_col][i])}' is not positive",
         price_col,
     )
+    for mask, why, column in checks.price(open_rows) if checks else ():
+        take(mask, why, column)
     date_col = roles.column("sale_date")
     if date_col is not None:
         dates = cleaned[date_col]
         take(dates.bad, lambda i: f"sale date {dates.reason(i)}", date_col)
         take(dates.missing, lambda i: "sale date is missing", date_col)
+    for mask, why, column in checks.sale_date(open_rows) if checks else ():
+        take(mask, why, column)
     flag_col = roles.column("arms_length")
     if flag_col is not None:
         flags = cleaned[flag_col]
@@ -751,6 +800,8 @@ def _exclusions(
             lambda i: f"not an arm's-length sale ('{_raw_text(raw_of[flag_col][i])}')",
             flag_col,
         )
+    for mask, why, column in checks.rest(open_rows) if checks else ():
+        take(mask, why, column)
     if id_col is not None:
         first_of_id: dict[str, int] = {}
         repeats = np.zeros(n, dtype=bool)

@@ -27,7 +27,6 @@ Example::
 from __future__ import annotations
 
 import hashlib
-import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -35,6 +34,7 @@ from types import MappingProxyType
 from typing import Literal
 
 from .errors import ModelFileError
+from .limits import decode_utf8, load_toml_text
 
 Response = Literal["linear", "log"]
 CovType = Literal["classical", "HC1", "HC3"]
@@ -155,20 +155,18 @@ def load_model(path: str | Path) -> ModelSpec:
     """Read and validate a model file."""
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8-sig")
+        data = p.read_bytes()
     except FileNotFoundError:
         raise ModelFileError("model file not found", file=str(path)) from None
     except OSError as exc:
         raise ModelFileError(f"cannot read model file: {exc.strerror}", file=str(path)) from None
+    text = decode_utf8(data, source=str(path), error=ModelFileError, what="the model file")
     return parse_model(text, source=str(path))
 
 
 def parse_model(text: str, *, source: str = "<model>") -> ModelSpec:
     """Parse model-file TOML text. Errors name ``source`` and the offending key."""
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise ModelFileError(f"not valid TOML: {exc}", file=source) from None
+    data = load_toml_text(text, source=source, error=ModelFileError, what="the model file")
     return model_from_dict(data, source=source)
 
 

@@ -21,6 +21,7 @@ from types import MappingProxyType
 from typing import Literal
 
 from .errors import RoleError
+from .limits import load_json_text
 
 # Role name -> one-line description. The order is the order shown to the user.
 ROLES: Mapping[str, str] = MappingProxyType(
@@ -424,11 +425,5 @@ def load_role_map(path: str | Path) -> RoleMap:
         raise RoleError("role map file not found", file=str(p)) from None
     except (OSError, UnicodeDecodeError) as exc:
         raise RoleError(f"cannot read the role map: {exc}", file=str(p)) from None
-    try:
-        doc = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise RoleError(
-            f"the role map is not valid JSON: {exc.msg} (line {exc.lineno}, column {exc.colno})",
-            file=str(p),
-        ) from None
+    doc = load_json_text(text, source=str(p), error=RoleError, what="the role map")
     return role_map_from_document(doc, file=str(p))

@@ -11,7 +11,6 @@ same date order. Keys that match no sales column are kept as they are;
 
 from __future__ import annotations
 
-import json
 from collections.abc import Mapping
 from pathlib import Path
 
@@ -27,6 +26,7 @@ from .importing import (
     read_file_bytes,
     read_raw_table,
 )
+from .limits import load_json_text
 from .roles import ROLE_KINDS, ROLES
 from .sales import ROW_COLUMN, SalesTable, column_kind
 from .settings import ImportSettings
@@ -52,12 +52,7 @@ def read_subject_attributes(
             raise SubjectError(exc.message, file=file) from None
         except UnicodeDecodeError:
             raise SubjectError("the subject file is not UTF-8 text", file=file) from None
-        try:
-            doc = json.loads(text)
-        except json.JSONDecodeError as exc:
-            raise SubjectError(
-                f"not valid JSON: {exc.msg} (line {exc.lineno}, column {exc.colno})", file=file
-            ) from None
+        doc = load_json_text(text, source=file, error=SubjectError, what="the subject file")
         if not isinstance(doc, dict):
             raise SubjectError(
                 "the subject file must hold one JSON object of column: value pairs", file=file

@@ -205,14 +205,16 @@ def test_semicolon_file_with_decimal_comma():
     assert not any("names" in n for n in t.notes)  # headers say m², the setting says m²
 
 
-def test_decimal_comma_file_under_decimal_point_excludes_rows_not_misreads():
+def test_decimal_comma_file_under_decimal_point_is_read_with_the_mark_the_file_needs():
     t = load_sales(SEMICOLON, ImportSettings(date_order="DMY"), GERMAN_ROLES)
     check_accounting(t)
-    # "412.500,00 €" and "1.234.567,89" cannot be read with decimal "." and are excluded;
-    # "€ 385.000" and "299.000" read as 385 and 299 under decimal "." -- the setting rules
-    reasons = {e.row: e.reason for e in t.excluded}
-    assert set(reasons) == {2, 4}
-    assert "it would read with decimal mark ','" in reasons[2]
+    # "412.500,00 €", "1.234.567,89", "123,5" and "980,5" read only with decimal ",";
+    # nothing reads only with "."; so the whole file is read with ",", and the ambiguous
+    # "€ 385.000" and "299.000" are 385,000 and 299,000 -- never 385 and 299 cell by cell
+    assert t.excluded == ()
+    assert t.frame["Preis"].tolist() == [412500.0, 385000.0, 1234567.89, 299000.0]
+    note = next(n for n in t.notes if n.startswith("decimal mark:"))
+    assert "read with decimal mark ','" in note and "(the setting was '.')" in note
 
 
 @pytest.mark.parametrize(

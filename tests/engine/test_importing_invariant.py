@@ -21,10 +21,13 @@ from appraise.engine.sales import ROW_COLUMN
 
 HEADER = ["Sale ID", "Sale Price", "Sale Date", "Beds", "Arms Length"]
 
-GOOD_PRICES = st.integers(1, 5_000_000).flatmap(
+GOOD_PRICES = st.integers(1_000, 5_000_000).flatmap(
     lambda v: st.sampled_from([(f"${v:,}", v), (str(v), v), (f"{v:,}.00", v), (f"USD {v}", v)])
 )
-BAD_PRICES = st.sampled_from(["call agent", "$4l2,000", "412.500,00", "1,5"])
+# unreadable with either decimal mark, so they never sway the file's decimal-mark decision
+BAD_PRICES = st.sampled_from(["call agent", "$4l2,000", "12..5", "4 12"])
+# readable, but outside the plausibility rules' default range (1,000 to 1e9; never below 0.01)
+IMPLAUSIBLE_PRICES = st.sampled_from(["$2,000,000,000", "1e15", "0.001"])
 NO_PRICES = st.sampled_from(["", "N/A", "-", "null"])
 NOT_POSITIVE = st.sampled_from(["0", "$0", "-5", "(1,200)"])
 
@@ -33,9 +36,12 @@ price_cell = st.one_of(
     BAD_PRICES.map(lambda s: ("bad", s, None)),
     NO_PRICES.map(lambda s: ("missing", s, None)),
     NOT_POSITIVE.map(lambda s: ("nonpositive", s, None)),
+    IMPLAUSIBLE_PRICES.map(lambda s: ("implausible", s, None)),
 )
 date_cell = st.one_of(
-    st.dates().filter(lambda d: 1700 <= d.year <= 2200).map(lambda d: ("ok", d.isoformat())),
+    st.dates().filter(lambda d: 1900 <= d.year <= 2025).map(lambda d: ("ok", d.isoformat())),
+    # readable, but before 1900 or after today plus a month (the plausibility rules)
+    st.sampled_from(["1850-06-01", "1702-03-05", "2199-01-01"]).map(lambda s: ("implausible", s)),
     st.sampled_from(["", "n/a"]).map(lambda s: ("missing", s)),
     st.sampled_from(["31/02/2024", "soon", "2024-13-01"]).map(lambda s: ("bad", s)),
 )
