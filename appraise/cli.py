@@ -29,6 +29,7 @@ COMMANDS: dict[str, str] = {
     "fit": "fit a model file to the sales and print the coefficients",
     "value": "value the subject property with a prediction interval",
     "grid": "sales comparison: comparables, adjustment grid and reconciliation",
+    "regions": "neighbourhood effects with intervals, tests, slopes and the ratio study by region",
     "diagnose": "check a model: influential sales, redundant terms, accuracy, ratio study",
     "compare": "rank candidate model files by leave-one-out error on the same sales",
     "report": "write the valuation worksheet (PDF, optional HTML and tables)",

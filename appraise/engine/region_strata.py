@@ -15,7 +15,8 @@ interpolation): tier 1 holds prices up to Q1, tier 2 above Q1 up to the median, 
 above the median up to Q3, tier 4 above Q3. Stratifying by sale price itself tilts the
 ratios (a sale that happened to sell low lands in a low tier with a high ratio), so the
 lowest tier tends to look over-valued and the highest under-valued even for a fair model;
-read a tier's level beside that effect, and the PRD/PRB of all sales for vertical equity.
+read a tier's level beside that effect, and the PRD/PRB of all sales for vertical equity
+(within a tier the price range is cut short, so a tier's PRD and PRB are not judged).
 
 A stratum with fewer than :data:`MIN_STRATUM_SALES` sales is marked thin: its COD and PRB
 rest on too few ratios to be read against the ranges (common practice; the standard warns
@@ -158,8 +159,9 @@ def stratified_study(
                 "its figures are too thin to read against the ranges"
             )
             continue
+        judged = ("median", "cod") if st.kind == "price tier" else ("median", "cod", "prd", "prb")
         for m in st.study.measures:
-            if m.verdict == "outside" and m.name in ("median", "cod", "prd", "prb"):
+            if m.verdict == "outside" and m.name in judged:
                 warnings.append(
                     f"ratio study, {st.kind} '{st.label}': {m.label} {m.value:.4f} is outside "
                     f"{m.range_text()}"
