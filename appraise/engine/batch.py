@@ -209,9 +209,48 @@ def _clean_column(
         return _spread(out, codes, np.datetime64("NaT")), _spread(_prefix(why, header), codes, None)
     texts = np.full(k, None, dtype=object)
     if k:
-        present = ~missing
-        texts[present] = [clean_text(u) for u in uniques[present]]
+        plain = np.array([type(u) is str for u in uniques], dtype=bool)
+        texts[plain] = pd.Series(uniques[plain], dtype=object).str.strip().to_numpy(dtype=object)
+        other = ~plain & ~missing
+        texts[other] = [clean_text(u) for u in uniques[other]]
+        texts[missing] = None
     return _spread(texts, codes, None), np.full(len(values), None, dtype=object)
+
+
+def _typed_column(
+    series: pd.Series, kind: str | None, header: str
+) -> tuple[np.ndarray, np.ndarray] | None:
+    """A Parquet column already of the kind asked, taken as it is (None: not such a column).
+
+    Numbers: NaN is missing, an infinity is not a finite number (as the per-cell rule);
+    dates: NaT is missing.
+    """
+    dtype = series.dtype
+    n = len(series)
+    if (
+        kind == "number"
+        and pd.api.types.is_numeric_dtype(dtype)
+        and not (pd.api.types.is_bool_dtype(dtype))
+    ):
+        v = series.to_numpy(dtype=np.float64, na_value=np.nan)
+        why = np.full(n, None, dtype=object)
+        inf = np.isinf(v)
+        if inf.any():
+            why[inf] = [f"'{header}' '{x}' is not a finite number" for x in v[inf]]
+            v = np.where(inf, np.nan, v)
+        return v, why
+    if kind == "date" and pd.api.types.is_datetime64_any_dtype(dtype):
+        if getattr(dtype, "tz", None) is not None:
+            series = series.dt.tz_localize(None)
+        return series.to_numpy(dtype="datetime64[ns]"), np.full(n, None, dtype=object)
+    return None
+
+
+def _clean_ids(values: np.ndarray) -> pd.Series:
+    """Ids as text, as the sales' id column is cleaned: stripped; missing markers None."""
+    codes, uniques = _per_unique(values)
+    texts, _ = _clean_column(uniques, "text", ImportSettings(), "id")
+    return pd.Series(_spread(texts, codes, None), dtype=object)
 
 
 def _prefix(why: np.ndarray, header: str) -> np.ndarray:
@@ -249,11 +288,14 @@ def clean_chunk(
     reasons = _Reasons(np.full(n, None, dtype=object))
     data: dict[str, object] = {}
     for header, column, kind in plan.landing:
-        values = _as_objects(raw[header])
-        if kind is None:
-            data[column] = values
+        typed = _typed_column(raw[header], kind, header)
+        if typed is not None:
+            clean, why = typed
+        elif kind is None:
+            data[column] = _as_objects(raw[header])
             continue
-        clean, why = _clean_column(values, kind, settings, header)
+        else:
+            clean, why = _clean_column(_as_objects(raw[header]), kind, settings, header)
         reasons.add(pd.notna(why), why)
         data[column] = clean if kind != "text" else pd.Series(clean, dtype=object)
     frame = pd.DataFrame(data, index=pd.RangeIndex(n))
@@ -399,10 +441,7 @@ def value_chunk(
     mlo, mhi = pred.interval(level, kind="mean")
     rows = np.arange(first_row, first_row + n, dtype=np.int64)
     if plan.id_header is not None:
-        ids = _as_objects(raw[plan.id_header])
-        blank = missing_mask(ids) if n else np.zeros(0, dtype=bool)
-        ids = np.where(blank, None, ids)
-        ids = pd.Series(ids, dtype=object).map(clean_text, na_action="ignore")
+        ids = _clean_ids(_as_objects(raw[plan.id_header]))
     else:
         ids = pd.Series(rows.astype(str), dtype=object)
     out = {"row": rows, "id": ids.to_numpy(dtype=object)}

@@ -181,3 +181,15 @@ def test_plan_finds_the_id_column_by_role(sample):
     assert plan.id_header == "Sale ID"
     with pytest.raises(SubjectError, match="no column 'Parcel'"):
         plan_columns(headers, fit, sales, id_header="Parcel")
+
+
+def test_typed_columns_are_taken_as_they_are(sample):
+    sales, fit, subject = sample
+    raw = pd.DataFrame([subject] * 3)
+    raw["living_area"] = [1840.0, float("inf"), float("nan")]  # typed, as Parquet holds them
+    raw["sale_date"] = pd.to_datetime(["2026-06-30"] * 3)
+    out = value_frame(fit, sales, raw)
+    text = value_frame(fit, sales, pd.DataFrame([subject]).astype(str))
+    assert_allclose(out.loc[0, "estimate"], text.loc[0, "estimate"], rtol=1e-12)
+    assert "'inf' is not a finite number" in out.loc[1, "reason"]
+    assert "missing value" in out.loc[2, "reason"]
