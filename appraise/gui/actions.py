@@ -89,6 +89,11 @@ class Actions(QObject):
             sp.SP_BrowserReload,
         )
         self.about = make("&About appraise", "Version and what the program is for")
+        self.help = make(
+            "&Help contents",
+            "How to write features, the role names, what the figures mean",
+            _keys(sk.HelpContents, "F1"),
+        )
         self.caution = make(
             "What the &estimate is (and is not)",
             "Read the caution that goes with every value",

@@ -21,6 +21,7 @@ from PySide6.QtWidgets import (
     QProgressDialog,
     QScrollArea,
     QSplitter,
+    QStackedWidget,
     QTabWidget,
     QWidget,
 )
@@ -31,6 +32,7 @@ from appraise.report.cautions import FULL_CAUTIONS, STATUS_CAUTION
 from .actions import Actions
 from .comparables_view import ComparablesView
 from .diagnostics_view import DiagnosticsView
+from .help_view import HelpView
 from .model_editor import ModelEditor
 from .plots import PlotsView
 from .preferences import Preferences
@@ -47,6 +49,7 @@ from .session import (
     sample_sales_path,
 )
 from .settings_dialog import SettingsDialog
+from .start_page import StartPage
 from .subject_view import SubjectView
 from .worksheet_view import WorksheetView
 
@@ -54,6 +57,8 @@ OPEN_FILTER = (
     f"Sales or workfiles (*{' *'.join(SALES_SUFFIXES)} *.json);;"
     f"Sales files (*{' *'.join(SALES_SUFFIXES)});;Workfiles (*{WORKFILE_SUFFIX} *.json)"
 )
+SALES_FILTER = f"Sales files (*{' *'.join(SALES_SUFFIXES)})"
+WORKFILE_FILTER = f"Workfiles (*{WORKFILE_SUFFIX} *.json)"
 LOAD_DIALOG_DELAY_MS = 400
 PREFERRED_SIZE = (1400, 860)
 DOCK_MIN_WIDTH = {"data": 300, "subject": 270}
@@ -136,7 +141,13 @@ class MainWindow(QMainWindow):
         self.comparables_view = ComparablesView(self.session)
         self.centre_tabs.addTab(self.comparables_view, "C&omparables")
         self.centre_tabs.add_scrolling(self.worksheet_view, "&Worksheet")
-        self.setCentralWidget(self.centre_tabs)
+        # the start page stands in for the tabs (and the side panels) until sales are loaded
+        self.start_page = StartPage(prefs)
+        self.centre_stack = QStackedWidget()
+        self.centre_stack.addWidget(self.start_page)
+        self.centre_stack.addWidget(self.centre_tabs)
+        self.setCentralWidget(self.centre_stack)
+        self.help_view: HelpView | None = None
 
         # status bar
         self.rows_label = QLabel()
@@ -158,6 +169,7 @@ class MainWindow(QMainWindow):
         self._progress_timer.timeout.connect(self._show_progress)
         self.update_status()
         self.update_actions()
+        self._show_start_or_work()
 
     def _dock(self, title: str, widget: QWidget, area: Qt.DockWidgetArea) -> QDockWidget:
         dock = QDockWidget(title, self)
@@ -211,6 +223,7 @@ class MainWindow(QMainWindow):
             view_menu.addAction(toggle)
 
         help_menu = bar.addMenu("&Help")
+        help_menu.addAction(a.help)
         help_menu.addAction(a.caution)
         help_menu.addAction(a.about)
         self._fill_recent()
@@ -246,6 +259,13 @@ class MainWindow(QMainWindow):
         a.refit.triggered.connect(s.refit_now)
         a.about.triggered.connect(self.about)
         a.caution.triggered.connect(self.show_caution)
+        a.help.triggered.connect(lambda: self.show_help())
+        sp = self.start_page
+        sp.openSalesRequested.connect(self.choose_sales)
+        sp.openWorkfileRequested.connect(self.choose_workfile)
+        sp.sampleRequested.connect(self.open_sample)
+        sp.recentRequested.connect(self.open_path)
+        s.salesChanged.connect(lambda *_: self._show_start_or_work())
         self.prefs.recentChanged.connect(self._fill_recent)
         self.sales_view.excludeRequested.connect(self.exclude_row)
 
@@ -309,6 +329,30 @@ class MainWindow(QMainWindow):
         path, _f = QFileDialog.getOpenFileName(self, "Open sales or workfile", start, OPEN_FILTER)
         if path:
             self.open_path(path)
+
+    def choose_sales(self) -> None:
+        """Ask for a sales file and open it."""
+        path, _f = QFileDialog.getOpenFileName(self, "Open a sales file", "", SALES_FILTER)
+        if path:
+            self.open_path(path)
+
+    def choose_workfile(self) -> None:
+        """Ask for a saved workfile and open it."""
+        path, _f = QFileDialog.getOpenFileName(self, "Open a workfile", "", WORKFILE_FILTER)
+        if path:
+            self.open_path(path)
+
+    def _show_start_or_work(self) -> None:
+        """The start page while nothing is loaded; the tabs and side panels once it is."""
+        starting = self.session.sales is None
+        was_starting = self.centre_stack.currentWidget() is self.start_page
+        self.centre_stack.setCurrentWidget(self.start_page if starting else self.centre_tabs)
+        if starting:
+            self.data_dock.hide()
+            self.subject_dock.hide()
+        elif was_starting:
+            self.data_dock.show()
+            self.subject_dock.show()
 
     def open_path(self, path: str | Path, *, companions: bool | None = None) -> None:
         """Open a sales file or a workfile.
@@ -499,6 +543,13 @@ class MainWindow(QMainWindow):
             f"<b>appraise {__version__}</b><br>Values a subject property from comparable "
             "sales with a hedonic regression (OLS).<br><br>" + FULL_CAUTIONS[0][1],
         )
+
+    def show_help(self, section: str = "syntax") -> HelpView:
+        """Open the help window (F1) at ``section``; one window, kept for the session."""
+        if self.help_view is None:
+            self.help_view = HelpView(self)
+        self.help_view.show_section(section)
+        return self.help_view
 
     def show_caution(self) -> None:
         text = "".join(f"<p><b>{title}</b><br>{body}</p>" for title, body in FULL_CAUTIONS)
