@@ -68,7 +68,7 @@ Location in space
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
@@ -611,10 +611,29 @@ def _is_name(text: str) -> bool:
 
 
 # --- the analysis ------------------------------------------------------------------------
+def has_region_term(fit: FitResult) -> bool:
+    """Whether the model has a ``onehot`` feature on the column with the ``region`` role."""
+    try:
+        find_region_term(fit)
+    except ModelFileError:
+        return False
+    return True
+
+
+def subject_record_frame(fit: FitResult, record: Mapping[str, object]) -> pd.DataFrame:
+    """A one-row frame from a subject record keyed by headers (``Valuation.subject``),
+    with date columns read as dates like the sales' own."""
+    frame = pd.DataFrame([dict(record)])
+    for col in frame.columns:
+        if col in fit.frame.columns and pd.api.types.is_datetime64_any_dtype(fit.frame[col]):
+            frame[col] = pd.to_datetime(frame[col], errors="coerce").astype("datetime64[ns]")
+    return frame
+
+
 def analyse_regions(
     fit: FitResult,
     *,
-    subject: pd.DataFrame | None = None,
+    subject: pd.DataFrame | Mapping[str, object] | None = None,
     level: float = DEFAULT_LEVEL,
     term: str | None = None,
     min_sales: int = MIN_LEVEL_SALES,
@@ -628,8 +647,8 @@ def analyse_regions(
     Parameters
     ----------
     subject:
-        The subject's one-row frame (optional): its region, its distance to each
-        centroid, and the base row of the location effect.
+        The subject's one-row frame, or its record keyed by headers (optional): its
+        region, its distance to each centroid, and the base row of the location effect.
     level:
         Level of every interval; the pairwise tests and groups use alpha = 1 - level.
     term:
@@ -643,6 +662,8 @@ def analyse_regions(
         Whether to compute the location effect along the distance to the centre.
     """
     region = find_region_term(fit, term)
+    if subject is not None and not isinstance(subject, pd.DataFrame):
+        subject = subject_record_frame(fit, subject)
     b = np.asarray(fit.params, dtype=float)
     V = np.asarray(fit.cov_params, dtype=float)
     df = int(fit.df_resid)
@@ -985,9 +1006,11 @@ __all__ = [
     "distance_centre",
     "find_region_term",
     "group_regions",
+    "has_region_term",
     "holm",
     "location_premium",
     "percent_of",
     "region_centroids",
+    "subject_record_frame",
     "wald_test",
 ]

@@ -8,7 +8,7 @@ region is marked in every table where it appears.
 
 from __future__ import annotations
 
-from ..engine.regions import Estimate, Percent, RegionAnalysis
+from ..engine.regions import Estimate, Percent, RegionAnalysis, analyse_regions, has_region_term
 from .content import Block, Facts, Notice, Paragraph, Table
 from .numbers import MISSING, fixed, integer, money, money_rate, number, pvalue, signed_percent
 
@@ -295,6 +295,15 @@ def region_blocks(ra: RegionAnalysis, currency: str = "$") -> tuple[Block, ...]:
     return tuple(blocks)
 
 
+def neighbourhood_blocks(fit, valuation=None, currency: str = "$") -> tuple[Block, ...]:
+    """The worksheet's neighbourhood section for ``fit`` (the subject of ``valuation``
+    marked), or () when the model has no region term."""
+    if not has_region_term(fit):
+        return ()
+    subject = getattr(valuation, "subject", None) or None
+    return region_blocks(analyse_regions(fit, subject=subject), currency)
+
+
 def _groups_text(ra: RegionAnalysis) -> str:
     return (
         "; ".join("{" + ", ".join(g) + "}" for g in ra.groups.groups) + f" (at {1 - ra.level:.2f})"
@@ -357,6 +366,7 @@ __all__ = [
     "centroid_table",
     "effects_table",
     "level_name",
+    "neighbourhood_blocks",
     "pairwise_table",
     "premium_table",
     "region_blocks",

@@ -18,6 +18,7 @@ from ..engine.errors import ReportError
 from ..engine.exclusions import EXCLUSION_FIELDS, exclusion_records
 from ..engine.sales import Exclusion
 from .content import Cell, Table, Worksheet
+from .safe_text import export_text
 
 FORMULA_TRIGGERS: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
 
@@ -28,8 +29,10 @@ DEFAULT_EXPORTS: tuple[str, ...] = ("coefficients", "exclusions")
 def neutralise(value: Cell) -> Cell:
     """Make one cell safe for a spreadsheet.
 
-    Text starting with a formula trigger gets a leading ``'``; numbers pass
-    through unchanged (non-finite numbers and ``None`` become empty).
+    Text goes through :func:`.safe_text.export_text` (control characters escaped, a
+    formula start neutralised with a leading ``'`` even behind invisible characters
+    or in full-width form, ``;=`` inside a cell broken); numbers pass through
+    unchanged (non-finite numbers and ``None`` become empty).
     """
     if value is None:
         return None
@@ -42,10 +45,7 @@ def neutralise(value: Cell) -> Cell:
         return value
     if hasattr(value, "item") and not isinstance(value, str):  # numpy scalar
         return neutralise(value.item())
-    text = str(value)
-    if text.startswith(FORMULA_TRIGGERS):
-        return "'" + text
-    return text
+    return export_text(str(value))
 
 
 def safe_rows(table: Table) -> list[list[Cell]]:
@@ -86,17 +86,20 @@ def write_xlsx(tables: Sequence[Table], path: str | Path) -> Path:
         raise ReportError("no tables to write", file=str(path))
     wb = Workbook()
     wb.remove(wb.active)
-    for table in tables:
-        ws = wb.create_sheet(title=_sheet_name(table.key))
-        for r, row in enumerate(safe_rows(table), start=1):
-            for c, value in enumerate(row, start=1):
-                cell = ws.cell(row=r, column=c)
-                cell.value = value
-                if isinstance(value, str):
-                    cell.data_type = "s"  # openpyxl would otherwise read "=..." as a formula
-        for cell in ws[1]:
-            cell.font = Font(bold=True)
     p = Path(path)
+    try:
+        for table in tables:
+            ws = wb.create_sheet(title=_sheet_name(table.key))
+            for r, row in enumerate(safe_rows(table), start=1):
+                for c, value in enumerate(row, start=1):
+                    cell = ws.cell(row=r, column=c)
+                    cell.value = value
+                    if isinstance(value, str):
+                        cell.data_type = "s"  # openpyxl would otherwise read "=..." as a formula
+            for cell in ws[1]:
+                cell.font = Font(bold=True)
+    except ValueError as exc:  # openpyxl's IllegalCharacterError is one; export_text prevents it
+        raise ReportError(f"cannot write XLSX: {exc}", file=str(p)) from None
     try:
         wb.save(p)
     except OSError as exc:
@@ -124,12 +127,22 @@ def export_tables(
     except OSError as exc:
         raise ReportError(f"cannot create folder: {exc.strerror}", file=str(d)) from None
     written: list[Path] = []
+    failed: list[str] = []
     for key in keys:
         table = worksheet.table(key)
         if table is None:
             continue
-        written.append(write_csv(table, d / f"{key}.csv"))
-        written.append(write_xlsx([table], d / f"{key}.xlsx"))
+        for name, write in (
+            (f"{key}.csv", lambda t, p: write_csv(t, p)),
+            (f"{key}.xlsx", lambda t, p: write_xlsx([t], p)),
+        ):
+            try:  # a table that cannot be written never stops the others
+                written.append(write(table, d / name))
+            except ReportError as exc:
+                failed.append(f"{name} ({exc.message})")
+    if failed:
+        done = ", ".join(p.name for p in written) or "nothing"
+        raise ReportError(f"could not write {'; '.join(failed)}; written: {done}", file=str(d))
     return tuple(written)
 
 

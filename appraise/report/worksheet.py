@@ -126,6 +126,11 @@ def build_worksheet(
         sections.append(
             Section("sales-comparison", "Sales comparison", grid_blocks(grid, cur, grid_figures))
         )
+    from .regions_section import neighbourhood_blocks  # only when the model has regions
+
+    hood_blocks = neighbourhood_blocks(fit, valuation, cur)
+    if hood_blocks:
+        sections.append(Section("neighbourhoods", "Neighbourhoods", hood_blocks))
     if figures:
         sections.append(Section("figures", "Figures", tuple(figures), new_page=True))
     sections.append(

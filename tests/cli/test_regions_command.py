@@ -171,3 +171,28 @@ def test_a_bad_level_is_refused(capsys):
     code, _, err = _run(capsys, "regions", SALES, "--model", MODEL, "--level", "95")
     assert code == 2
     assert "between 0 and 1" in err
+
+
+def test_worksheet_has_a_neighbourhood_section_with_the_subject_marked(tmp_path):
+    from appraise.report.content import Table
+    from appraise.report.worksheet import build_worksheet
+
+    sales = pipeline.load(SALES)
+    fit = pipeline.fit(sales, pipeline.read_model(MODEL))
+    ws = build_worksheet(fit, pipeline.value(fit, SUBJECT))
+    section = ws.section("neighbourhoods")
+    assert section is not None
+    tables = {b.key: b for b in section.blocks if isinstance(b, Table)}
+    assert {"region_effects", "region_pairs", "region_strata"} <= set(tables)
+    marked = [r[0] for r in tables["region_effects"].rows if "(subject)" in r[0]]
+    assert marked == ["Tanners Row (subject)"]
+    # the linear sample model prints its effects in money
+    simple = pipeline.fit(sales, pipeline.read_model(str(SAMPLE / "ashcombe_model_simple.toml")))
+    linear = build_worksheet(simple, pipeline.value(simple, SUBJECT)).section("neighbourhoods")
+    effects = next(b for b in linear.blocks if isinstance(b, Table) and b.key == "region_effects")
+    assert any(r[2].startswith(("$", "-$")) for r in effects.rows)
+    # a model without a region term gets no such section
+    model = tmp_path / "plain.toml"
+    model.write_text('target = "price"\nfeatures = ["living_area", "bathrooms"]\n')
+    plain = pipeline.fit(sales, pipeline.read_model(model))
+    assert build_worksheet(plain, pipeline.value(plain, SUBJECT)).section("neighbourhoods") is None
