@@ -8,11 +8,23 @@ with its acceptable ranges. The per-sale table is left to the CSV/JSON output.
 
 from __future__ import annotations
 
+import inspect
 from collections.abc import Mapping
 from typing import Any
 
+from ..engine.diagnostics.ratio_study import prb
 from .content import Block, Facts, Notice, Paragraph, Table
-from .numbers import MISSING, fixed, money, number, percent, plain, pvalue
+from .labels import (
+    BREUSCH_PAGAN_FORMS,
+    COLLINEARITY_COLUMNS,
+    RATIO_MEASURE_LABELS,
+    term_label,
+    without_source_tags,
+)
+from .numbers import MISSING, fixed, money, number, p_phrase, percent, plain
+
+PRB_CI_LEVEL: float = float(inspect.signature(prb).parameters["level"].default)
+"""The level the ratio study's PRB interval is computed at (the engine's default)."""
 
 
 def diagnostics_blocks(diagnostics: Any, currency: str = "$") -> tuple[Block, ...]:
@@ -39,13 +51,17 @@ def _flagged(d: Mapping) -> list[Block]:
         return [Facts((("Flagged sales", "none"),), "Sales to look at")]
     rows, values = [], []
     for f in flagged:
-        texts = "; ".join(str(x.get("text", "")) for x in f.get("findings", ()) or ())
+        texts = "; ".join(
+            without_source_tags(str(x.get("text", ""))) for x in f.get("findings", ()) or ()
+        )
         sid = "" if f.get("sale_id") is None else str(f.get("sale_id"))
         rows.append((plain(f.get("row")), sid, texts))
         values.append((f.get("row"), sid, texts))
     rules = d.get("thresholds") or {}
     note = "; ".join(
-        str(t.get("rule")) for t in rules.values() if isinstance(t, Mapping) and t.get("rule")
+        without_source_tags(str(t.get("rule")))
+        for t in rules.values()
+        if isinstance(t, Mapping) and t.get("rule")
     )
     return [
         Table(
@@ -69,7 +85,7 @@ def _collinearity(d: Mapping, condition: Mapping) -> list[Block]:
         for t in terms:
             rows.append(
                 (
-                    str(t.get("term", "")),
+                    term_label(str(t.get("term", ""))),
                     plain(t.get("df")),
                     number(t.get("gvif"), 4),
                     number(t.get("gvif_root"), 4),
@@ -85,16 +101,23 @@ def _collinearity(d: Mapping, condition: Mapping) -> list[Block]:
                     bool(t.get("flagged")),
                 )
             )
-        rules = sorted({str(t.get("rule")) for t in terms if t.get("rule")})
+        rules = sorted({_reader_rule(str(t.get("rule"))) for t in terms if t.get("rule")})
         out.append(
             Table(
                 key="collinearity",
-                title="Collinearity (generalized variance inflation)",
-                columns=("Term", "Columns", "GVIF", "GVIF^(1/(2 df))", "Flagged"),
+                title="Collinearity: how far each term is explained by the others",
+                columns=tuple(
+                    COLLINEARITY_COLUMNS[k] for k in ("term", "df", "gvif", "gvif_root", "flagged")
+                ),
                 rows=tuple(rows),
                 values=tuple(values),
                 align=("l", "r", "r", "r", "l"),
-                note=("Flag rules: " + "; ".join(rules) + ".") if rules else "",
+                note=(
+                    "Variance inflation is the VIF of a one-column term and the generalized "
+                    "VIF of a group; the standard-error inflation is how many times wider "
+                    "the term's interval is for it (formulas in the help)."
+                    + (" Flagged when " + "; ".join(rules) + "." if rules else "")
+                ),
             )
         )
     if condition:
@@ -120,11 +143,12 @@ def _residual_tests(rt: Mapping) -> list[Block]:
     rows = []
     bp = rt.get("breusch_pagan") or {}
     if bp:
+        form = str(bp.get("form", ""))
         rows.append(
             (
-                f"Breusch-Pagan ({bp.get('form', '')}) LM",
-                f"{number(bp.get('statistic'), 5)} on {plain(bp.get('df'))} df, "
-                f"p = {pvalue(bp.get('p_value'))}",
+                f"Breusch-Pagan, {BREUSCH_PAGAN_FORMS.get(form, form)}",
+                f"LM {number(bp.get('statistic'), 5)} on {plain(bp.get('df'))} df, "
+                f"{p_phrase(bp.get('p_value'))}",
             )
         )
     jb = rt.get("jarque_bera") or {}
@@ -132,7 +156,7 @@ def _residual_tests(rt: Mapping) -> list[Block]:
         rows.append(
             (
                 "Jarque-Bera",
-                f"{number(jb.get('statistic'), 5)}, p = {pvalue(jb.get('p_value'))} "
+                f"{number(jb.get('statistic'), 5)}, {p_phrase(jb.get('p_value'))} "
                 f"(skewness {fixed(jb.get('skewness'), 2)}, kurtosis {fixed(jb.get('kurtosis'), 2)})",
             )
         )
@@ -173,22 +197,47 @@ def _pct_points(x: Any) -> str:
     return text if text == MISSING else f"{text}%"
 
 
+PERCENT_MEASURES: tuple[str, ...] = ("ppe10",)
+"""Ratio-study measures that are shares in percent (printed with their %)."""
+
+MEASURE_DECIMALS: Mapping[str, int] = {"cod": 2, "ppe10": 1}
+"""Decimals printed per measure; ratios (median, PRD, PRB...) get four."""
+
+
+def _reader_rule(rule: str) -> str:
+    """A flag rule in the table's own words (``GVIF^(1/(2 df)) > 3.16`` names the
+    standard-error inflation column)."""
+    return without_source_tags(rule).replace("GVIF^(1/(2 df))", "std. error inflation")
+
+
 def _ratio_study(rs: Mapping) -> list[Block]:
     measures = rs.get("measures") or []
     if not measures:
         return []
     rows, values = [], []
     for m in measures:
+        name = str(m.get("name", ""))
         lo, hi = m.get("range_low"), m.get("range_high")
         rng = f"{plain(lo)} to {plain(hi)}" if lo is not None and hi is not None else ""
         ci = ""
         if m.get("ci_low") is not None and m.get("ci_high") is not None:
-            ci = f" [{number(m.get('ci_low'), 4)}, {number(m.get('ci_high'), 4)}]"
-        source = "; ".join(s for s in (str(m.get("source") or ""), str(m.get("note") or "")) if s)
+            ci = (
+                f"\n{percent(PRB_CI_LEVEL)} interval {number(m.get('ci_low'), 3)} to "
+                f"{number(m.get('ci_high'), 3)}"
+            )
+        shown = fixed(m.get("value"), MEASURE_DECIMALS.get(name, 4))
+        if name in PERCENT_MEASURES and shown != MISSING:
+            shown += "%"
+        source = "; ".join(
+            without_source_tags(s)
+            for s in (str(m.get("source") or ""), str(m.get("note") or ""))
+            if s
+        )
+        source = source.replace("; interval is 95 %", "")
         rows.append(
             (
-                str(m.get("label", m.get("name", ""))),
-                number(m.get("value"), 4) + ci,
+                RATIO_MEASURE_LABELS.get(name, str(m.get("label", name))),
+                shown + ci,
                 rng,
                 str(m.get("verdict", "")),
                 source,

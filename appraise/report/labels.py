@@ -106,6 +106,19 @@ COLLINEARITY_COLUMNS: Mapping[str, str] = MappingProxyType(
 )
 """Headings of the collinearity table (keys as in the diagnostics JSON)."""
 
+RATIO_MEASURE_LABELS: Mapping[str, str] = MappingProxyType(
+    {
+        "median": "Median ratio",
+        "mean": "Mean ratio",
+        "weighted_mean": "Weighted mean ratio",
+        "cod": "COD (coefficient of dispersion)",
+        "prd": "PRD (price-related differential)",
+        "prb": "PRB (price-related bias)",
+        "ppe10": "PPE10 (valued within 10% of price)",
+    }
+)
+"""Ratio-study measures by their JSON name."""
+
 BREUSCH_PAGAN_FORMS: Mapping[str, str] = MappingProxyType(
     {
         "koenker": "Koenker's studentized form",

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from ..engine.regions import Estimate, Percent, RegionAnalysis, analyse_regions, has_region_term
 from .content import Block, Facts, Notice, Paragraph, Table
+from .labels import without_source_tags
 from .numbers import MISSING, fixed, integer, money, money_rate, number, pvalue, signed_percent
 
 TIER_JUDGED = ("median", "cod")
@@ -256,7 +257,7 @@ def strata_table(ra: RegionAnalysis) -> Table | None:
         tuple(rows),
         tuple(values),
         ("l", "r", "r", "r", "r", "r", "l"),
-        note=f"Ranges ({m['cod'].source}): {ranges}. Tiers: {st.tier_method}. "
+        note=f"Ranges ({without_source_tags(m['cod'].source)}): {ranges}. Tiers: {st.tier_method}. "
         f"A stratum with fewer than {st.min_sales} sales is thin. Tiers cut by sale price lean "
         "high in the lowest tier and low in the highest even for a fair model; within a tier "
         "the price range is cut short, so its PRD and PRB are shown but not judged.",

@@ -3,16 +3,34 @@
 from __future__ import annotations
 
 from ..engine.diagnostics import Diagnostics
-from ..engine.fitting import FitResult
+from ..engine.fitting import COEF_CI_LEVEL, FitResult
 from ..engine.valuation import Valuation
-from .numbers import money
+from .diagnostics_section import PRB_CI_LEVEL
+from .effects import coefficient_effects
+from .labels import BREUSCH_PAGAN_FORMS, RATIO_MEASURE_LABELS, term_label, without_source_tags
+from .numbers import MISSING, fixed, money, number, p_phrase, percent, pvalue
+
+
+def coefficient_count(fit: FitResult) -> str:
+    """``"19 coefficients (18 terms and the intercept)"``: one wording wherever the
+    size of the model is stated, so the counts agree."""
+    terms = fit.p - int(bool(fit.spec.intercept))
+    text = f"{fit.p} coefficient{'s' if fit.p != 1 else ''}"
+    if fit.spec.intercept:
+        return f"{text} ({terms} term{'s' if terms != 1 else ''} and the intercept)"
+    return f"{text} (no intercept)"
 
 
 def format_fit(fit: FitResult) -> str:
+    """The fit as terminal text: the model, its size, and the coefficient table with
+    each coefficient's plain effect (numbers never in scientific notation)."""
     lines = [
         f"Model: {fit.spec.response} response of '{fit.target}', {fit.cov_type} standard errors",
-        f"Sales used {fit.n}, excluded {len(fit.excluded)}; terms {fit.p}, residual df {fit.df_resid}",
-        f"R-squared {fit.r2:.4f}, adjusted {fit.adj_r2:.4f}, residual standard error {fit.sigma:.5g}",
+        f"Sales used {fit.n:,}, excluded {len(fit.excluded):,}; {coefficient_count(fit)}, "
+        f"residual df {fit.df_resid:,}",
+        f"R-squared {fixed(fit.r2, 4)}, adjusted {fixed(fit.adj_r2, 4)}, residual standard "
+        f"error {number(fit.sigma, 5)}" + (" (log scale)" if fit.spec.response == "log" else ""),
+        f"Fitted by: {fit.path_text}",
     ]
     refs = fit.references()
     for expr, ref in refs.items():
@@ -23,18 +41,22 @@ def format_fit(fit: FitResult) -> str:
             lines.append(
                 f"Sales per level of {expr}: " + ", ".join(f"{c.level} {c.count}" for c in counts)
             )
-    w = max(12, *(len(t.name) for t in fit.terms))
+    ci = percent(COEF_CI_LEVEL)
+    effects = coefficient_effects(fit)
+    names = [term_label(t.name) for t in fit.terms]
+    w = max(12, *(len(n) for n in names))
     lines.append("")
     lines.append(
-        f"{'term':<{w}} {'coef':>13} {'std err':>12} {'t':>8} {'p':>8} {'95% low':>13} {'95% high':>13}"
+        f"{'term':<{w}} {'coef':>13} {'std err':>12} {'t':>8} {'p':>9} {ci + ' low':>13} "
+        f"{ci + ' high':>13}  effect on price"
     )
-    for t in fit.terms:
+    for t, name, e in zip(fit.terms, names, effects, strict=True):
         if t.note is not None:
-            lines.append(f"{t.name:<{w}} {t.coef:>13.6g}  {t.note}")
+            lines.append(f"{name:<{w}} {number(t.coef, 6):>13}  {t.note}")
             continue
         lines.append(
-            f"{t.name:<{w}} {t.coef:>13.6g} {t.se:>12.5g} {t.t:>8.3f} {t.p:>8.4f} "
-            f"{t.ci_low:>13.6g} {t.ci_high:>13.6g}"
+            f"{name:<{w}} {number(t.coef, 6):>13} {number(t.se, 5):>12} {fixed(t.t, 3):>8} "
+            f"{pvalue(t.p):>9} {number(t.ci_low, 6):>13} {number(t.ci_high, 6):>13}  {e.text}"
         )
     if fit.excluded:
         lines.append("")
@@ -63,7 +85,8 @@ def format_valuation(v: Valuation, symbol: str = "$") -> str:
         f"{money(v.mean_low, symbol)} to {money(v.mean_high, symbol)}"
     )
     lines.append(
-        f"Subject leverage {v.leverage:.4f} (largest among the sales {v.max_sample_leverage:.4f})"
+        f"Subject leverage {fixed(v.leverage, 4)} (largest among the sales "
+        f"{fixed(v.max_sample_leverage, 4)})"
     )
     for w in v.warnings:
         lines.append(f"warning: {w}")
@@ -76,19 +99,21 @@ MAX_BLOCKS = 10
 """Exclusion blocks printed in the text output (all of them are in the JSON)."""
 
 
-def _num(v: float | None, fmt: str = ".4g") -> str:
-    return "n/a" if v is None or v != v else format(v, fmt)
+def _num(v: float | None, digits: int = 4) -> str:
+    """A number to ``digits`` significant digits, positional; "n/a" when missing."""
+    text = number(v, digits)
+    return "n/a" if text == MISSING else text
 
 
 def _flag_lines(d: Diagnostics) -> list[str]:
     t = d.thresholds
     rules = [
-        f"{t.leverage_rule} = {t.leverage:.3g}",
+        f"{t.leverage_rule} = {_num(t.leverage, 3)}",
         t.student_rule,
-        f"{t.cooks_rule} = {t.cooks:.3g}",
+        f"{t.cooks_rule} = {_num(t.cooks, 3)}",
     ]
     if d.settings.dffits_multiple is not None:
-        rules.append(f"{t.dffits_rule} = {t.dffits:.3g}")
+        rules.append(f"{t.dffits_rule} = {_num(t.dffits, 3)}")
     out = [f"Sales to look at: {len(d.flags)} of {d.n} ({'; '.join(rules)})"]
     if not d.flags:
         out.append("  none")
@@ -113,24 +138,31 @@ def _flag_lines(d: Diagnostics) -> list[str]:
 
 def _collinearity_lines(d: Diagnostics) -> list[str]:
     c = d.collinearity
-    out = ["Redundant terms (VIF for one column, GVIF for a group; Fox and Monette 1992)"]
+    out = [
+        "Redundant terms: how far each term is explained by the others "
+        "(variance inflation: VIF for one column, generalized VIF for a group, Fox and "
+        "Monette 1992; std. error inflation = GVIF^(1/(2 df)))"
+    ]
     if c.terms:
-        w = max(4, *(len(t.expression) for t in c.terms))
-        out.append(f"  {'term':<{w}} {'df':>3} {'(G)VIF':>10} {'GVIF^(1/2df)':>13}  flag")
-        for t in c.terms:
+        names = [term_label(t.expression) for t in c.terms]
+        w = max(4, *(len(n) for n in names))
+        out.append(
+            f"  {'term':<{w}} {'columns':>7} {'variance infl.':>14} {'std. error infl.':>16}  flag"
+        )
+        for t, name in zip(c.terms, names, strict=True):
             flag = f"  {t.rule}" if t.flagged else ""
             out.append(
-                f"  {t.expression:<{w}} {t.df:>3} {_num(t.gvif, '.4g'):>10} "
-                f"{_num(t.gvif_root, '.3f'):>13}{flag}"
+                f"  {name:<{w}} {t.df:>7} {_num(t.gvif, 4):>14} "
+                f"{fixed(t.gvif_root, 3) if t.gvif_root == t.gvif_root else 'n/a':>16}{flag}"
             )
     cond = c.condition
     verdict = "above" if cond.exceeds else "below"
     out.append(
-        f"  condition number {cond.number:.1f}, {verdict} the threshold {cond.threshold:g}; "
-        f"scaling: {cond.scaling}"
+        f"  condition number {fixed(cond.number, 1)}, {verdict} the threshold "
+        f"{number(cond.threshold)}; scaling: {cond.scaling}"
     )
     for dep in cond.dependences:
-        out.append(f"    near-dependence (index {dep.index:.1f}): {', '.join(dep.columns)}")
+        out.append(f"    near-dependence (index {fixed(dep.index, 1)}): {', '.join(dep.columns)}")
     return out
 
 
@@ -138,13 +170,14 @@ def _tests_lines(d: Diagnostics) -> list[str]:
     r = d.residual_tests
     k, o, j = r.koenker, r.original, r.jarque_bera
     out = [
-        f"Residual tests (alpha {r.alpha:g})",
-        f"  Breusch-Pagan, studentized n R^2 form: LM {k.statistic:.4g} on {k.df} df, "
-        f"p = {k.p_value:.4g}" + ("  uneven spread" if r.heteroskedastic else ""),
-        f"  Breusch-Pagan, original ESS/2 form (assumes normal errors): LM {o.statistic:.4g}, "
-        f"p = {o.p_value:.4g}",
-        f"  Jarque-Bera: {j.statistic:.4g}, p = {j.p_value:.4g} (skewness {j.skewness:.2f}, "
-        f"kurtosis {j.kurtosis:.2f})" + ("  not normal" if r.non_normal else ""),
+        f"Residual tests (alpha {number(r.alpha)})",
+        f"  Breusch-Pagan, {BREUSCH_PAGAN_FORMS['koenker']} (n R^2): LM {_num(k.statistic)} on "
+        f"{k.df} df, {p_phrase(k.p_value)}" + ("  uneven spread" if r.heteroskedastic else ""),
+        f"  Breusch-Pagan, {BREUSCH_PAGAN_FORMS['original']} (ESS/2): LM {_num(o.statistic)}, "
+        f"{p_phrase(o.p_value)}",
+        f"  Jarque-Bera: {_num(j.statistic)}, {p_phrase(j.p_value)} (skewness "
+        f"{fixed(j.skewness, 2)}, kurtosis {fixed(j.kurtosis, 2)})"
+        + ("  not normal" if r.non_normal else ""),
     ]
     out.extend(f"  - {s}" for s in r.suggestions)
     return out
@@ -156,33 +189,48 @@ def _accuracy_lines(d: Diagnostics) -> list[str]:
     out = [
         "Accuracy on sales left out of the fit",
         f"  leave-one-out: RMSE {money(loo.rmse_price)}, median absolute error "
-        f"{_num(loo.mdape, '.1f')}%, PRESS {loo.press:.5g} ({scale})",
+        f"{_pct(loo.mdape)}, PRESS {_num(loo.press, 5)} ({scale})",
         f"  {kf.folds}-fold (seed {kf.seed}): RMSE {money(kf.rmse_price)}, median absolute "
-        f"error {_num(kf.mdape, '.1f')}%",
-        f"  {100 * loo.coverage:.1f}% of {loo.n_used} sales lie inside their own leave-one-out "
-        f"{100 * loo.level:g}% prediction interval (nominal {100 * loo.level:g}%)",
+        f"error {_pct(kf.mdape)}",
+        f"  {percent(loo.coverage, 1)} of {loo.n_used:,} sales lie inside their own "
+        f"leave-one-out {percent(loo.level, 1)} prediction interval (nominal "
+        f"{percent(loo.level, 1)})",
     ]
     if kf.n_unpredictable:
         out.append(f"  {kf.n_unpredictable} sale(s) could not be predicted from the other folds")
     return out
 
 
+def _pct(points: float | None) -> str:
+    """A value already in percent: ``5.83 -> "5.8%"``."""
+    text = fixed(points, 1)
+    return "n/a" if text == MISSING else f"{text}%"
+
+
 def _ratio_lines(d: Diagnostics) -> list[str]:
     rs = d.ratio_study
     trim = (
-        f"; trim fences {rs.fences[0]:.3f} to {rs.fences[1]:.3f}: {len(rs.trimmed)} trimmed"
+        f"; trim fences {fixed(rs.fences[0], 3)} to {fixed(rs.fences[1], 3)}: "
+        f"{len(rs.trimmed)} trimmed"
         if rs.fences is not None
         else "; no trim"
     )
-    out = [f"Ratio study: leave-one-out value / sale price, {rs.n} sales{trim}"]
+    out = [f"Ratio study: leave-one-out value / sale price, {rs.n:,} sales{trim}"]
     for t in rs.trimmed:
         sid = f" ({t.sale_id})" if t.sale_id else ""
-        out.append(f"  trimmed row {t.row}{sid}: ratio {t.ratio:.3f}")
-    w = max(len(m.label) for m in rs.measures)
-    for m in rs.measures:
-        ci = f" [{m.ci_low:.4f}, {m.ci_high:.4f}]" if m.ci_low == m.ci_low else ""
+        out.append(f"  trimmed row {t.row}{sid}: ratio {fixed(t.ratio, 3)}")
+    labels = [RATIO_MEASURE_LABELS.get(m.name, m.label) for m in rs.measures]
+    w = max(len(x) for x in labels)
+    for m, label in zip(rs.measures, labels, strict=True):
+        value = fixed(m.value, {"cod": 2, "ppe10": 1}.get(m.name, 4))
+        value = "n/a" if value == MISSING else value + ("%" if m.name == "ppe10" else "")
+        ci = (
+            f" ({percent(PRB_CI_LEVEL)} interval {fixed(m.ci_low, 4)} to {fixed(m.ci_high, 4)})"
+            if m.ci_low == m.ci_low
+            else ""
+        )
         rng = f"range {m.range_text()}: {m.verdict}" if m.range_text() else ""
-        out.append(f"  {m.label:<{w}} {_num(m.value, '.4f'):>9}{ci}  {rng}".rstrip())
+        out.append(f"  {label:<{w}} {value:>9}{ci}  {without_source_tags(rng)}".rstrip())
     out.append("  ranges: IAAO Standard on Ratio Studies (2013), single-family residential")
     return out
 

@@ -9,7 +9,6 @@ PNG bytes already rendered (``appraise.qtrender.figures`` makes them).
 from __future__ import annotations
 
 import platform
-import re
 from collections import Counter
 from collections.abc import Mapping, Sequence
 from datetime import datetime
@@ -26,6 +25,8 @@ from .cautions import (
 )
 from .content import Facts, Figure, Notice, Paragraph, Section, SignatureBlock, Table, Worksheet
 from .diagnostics_section import diagnostics_blocks, diagnostics_warnings
+from .effects import coefficient_effects
+from .labels import field_label, term_label
 from .numbers import MISSING, fixed, money, number, plain, pvalue
 from .settings import ReportSettings
 
@@ -107,7 +108,7 @@ def build_worksheet(
         Section("subject", "Subject property", (_subject_facts(fit, valuation),)),
         Section("data", "Sales data", _data_blocks(fit)),
         Section("model", "Model", _model_blocks(fit, model_sha)),
-        Section("coefficients", "Estimated coefficients", (_coefficient_table(fit),)),
+        Section("coefficients", "Estimated coefficients", (_coefficient_table(fit, cur),)),
         Section("fit", "Fit", (_fit_facts(fit),)),
         Section("estimate", "Estimate for the subject", (estimate_table,)),
         Section(
@@ -198,21 +199,31 @@ def _subject_id(fit: Any, valuation: Any) -> str:
     return ""
 
 
-_UNIT_IN_HEADER = re.compile(r"ft|m²|m2|sq\.?\s*m|sqm|square", re.IGNORECASE)
-"""A header that already names its unit (``Living Area (sq ft)``) gets none added."""
+def subject_field_names(fit: Any, subject: Mapping[str, Any]) -> list[tuple[str, Any]]:
+    """The subject's attributes as ``(field name, value)``, named as the window names
+    them: a column with a role by its role (``Beds -> bedrooms``), the sale-date column
+    as ``effective_date`` (the subject has not sold), anything else by its own key.
+    The price and private keys are left out; a name met twice is shown once."""
+    roles = fit.sales.roles
+    by_header = {h: r for r, h in roles.columns.items()}
+    date_col = roles.column("sale_date")
+    hidden = {"_row", fit.spec.target, roles.column("price")}
+    out: dict[str, Any] = {}
+    for key, value in dict(subject or {}).items():
+        if key in hidden or str(key).startswith("_"):
+            continue
+        name = "effective_date" if key == date_col else by_header.get(key, str(key))
+        if name == "effective_date" and key == date_col and "effective_date" in subject:
+            continue  # the subject's own effective date is the one shown
+        out.setdefault(name, value)
+    first = [n for n in ("address",) if n in out]
+    return [(n, out[n]) for n in first + [n for n in out if n not in first]]
 
 
 def _subject_facts(fit: Any, valuation: Any) -> Facts:
-    hidden = {"_row", fit.spec.target, fit.sales.roles.column("price")}
-    area = fit.sales.roles.column("living_area")
     rows = []
-    for key, value in dict(valuation.subject or {}).items():
-        if key in hidden or str(key).startswith("_"):
-            continue
-        label = str(key)
-        if key == area and not _UNIT_IN_HEADER.search(label):
-            label = f"{key} ({fit.sales.area_unit})"
-        rows.append((label, plain(value)))
+    for name, value in subject_field_names(fit, dict(valuation.subject or {})):
+        rows.append((field_label(name, fit.sales.area_unit), plain(value)))
     if not rows:
         rows.append(("Attributes", "none given"))
     return Facts(tuple(rows))
@@ -277,20 +288,24 @@ def _model_blocks(fit: Any, model_sha: str) -> tuple:
     return tuple(blocks)
 
 
-def _coefficient_table(fit: Any) -> Table:
+def _coefficient_table(fit: Any, currency: str = "$") -> Table:
+    """Coefficients with their plain effect; printed to four significant digits, exported
+    in full (the ``values`` keep the raw term names and numbers)."""
     lvl = level_text(COEF_CI_LEVEL)  # the level the coefficient intervals were computed at
     rows = []
     values = []
-    for t in fit.terms:
+    for t, effect in zip(fit.terms, coefficient_effects(fit, currency), strict=True):
+        estimable = t.note is None
         rows.append(
             (
-                t.name,
-                number(t.coef),
-                number(t.se),
-                fixed(t.t, 2),
-                pvalue(t.p),
-                number(t.ci_low),
-                number(t.ci_high),
+                term_label(t.name),
+                number(t.coef, 4),
+                number(t.se, 3) if estimable else MISSING,
+                fixed(t.t, 2) if estimable else MISSING,
+                pvalue(t.p) if estimable else MISSING,
+                number(t.ci_low, 4) if estimable else MISSING,
+                number(t.ci_high, 4) if estimable else MISSING,
+                effect.text if estimable else str(t.note),
             )
         )
         values.append(
@@ -302,21 +317,38 @@ def _coefficient_table(fit: Any) -> Table:
                 float(t.p),
                 float(t.ci_low),
                 float(t.ci_high),
+                effect.value,
             )
         )
     note = f"Standard errors: {COV_TYPE_TEXT.get(fit.cov_type, str(fit.cov_type))}."
     if fit.spec.response == "log":
         note += (
-            " The response is the log of price: a coefficient b on an indicator means a "
-            "price difference of about 100 x (e^b - 1) percent."
+            " The response is the log of price: a coefficient b changes the price by "
+            "100 x (e^b - 1) percent per unit; the effect column states it per step of "
+            "the input, and per 1% more of a logged input (an elasticity)."
         )
+    else:
+        note += " The effect column states each coefficient per step of its input."
+    note += (
+        " A main term that also enters a product (a x b) holds where the other input is "
+        "zero; a polynomial's effect is the slope of all its powers at the sales' median."
+    )
     return Table(
         key="coefficients",
         title="",
-        columns=("Term", "Coefficient", "Std. error", "t", "p", f"{lvl} low", f"{lvl} high"),
+        columns=(
+            "Term",
+            "Coefficient",
+            "Std. error",
+            "t",
+            "p",
+            f"{lvl} low",
+            f"{lvl} high",
+            "Effect on price",
+        ),
         rows=tuple(rows),
         values=tuple(values),
-        align=("l", "r", "r", "r", "r", "r", "r"),
+        align=("l", "r", "r", "r", "r", "r", "r", "l"),
         note=note,
     )
 

@@ -90,7 +90,7 @@ def test_coefficients_table_holds_the_statsmodels_estimates(csv_path):
         [-21770.0, 2.0677, 122.78, 13853.0],
         rtol=5e-4,
     )
-    assert table.columns[-2:] == ("95% low", "95% high")
+    assert table.columns[5:7] == ("95% low", "95% high")
     assert "classical" in table.note
 
 
@@ -102,7 +102,7 @@ def test_coefficient_interval_headers_say_the_level_they_were_computed_at(csv_pa
     fit, val = fit_and_value(csv_path, replace(LINEAR, level=0.90))
     assert fit.spec.level == 0.90
     table = build_worksheet(fit, val, generated=WHEN).table("coefficients")
-    assert table.columns[-2:] == ("95% low", "95% high")
+    assert table.columns[5:7] == ("95% low", "95% high")
 
 
 def test_sections_order_cautions_first_and_last(csv_path):
