@@ -12,12 +12,13 @@ from __future__ import annotations
 import csv
 import math
 from collections.abc import Iterable, Sequence
+from decimal import Decimal
 from pathlib import Path
 
 from ..engine.errors import ReportError
 from ..engine.exclusions import EXCLUSION_FIELDS, exclusion_records
 from ..engine.sales import Exclusion
-from .content import Cell, Table, Worksheet
+from .content import Cell, Facts, Table, Worksheet
 from .safe_text import export_text
 
 FORMULA_TRIGGERS: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
@@ -70,8 +71,18 @@ def write_csv(table: Table, path: str | Path) -> Path:
 
 def _csv_text(c: Cell) -> str:
     if isinstance(c, float):
-        return repr(c)  # shortest text that reads back to the same float
+        return float_text(c)
     return str(c)
+
+
+def float_text(x: float) -> str:
+    """The shortest text that reads back to the same float, written positionally
+    (``1.26986e-05 -> "0.0000126986"``): a person opening the file never meets
+    scientific notation, and nothing is lost."""
+    text = repr(float(x))
+    if "e" not in text and "E" not in text:
+        return text
+    return format(Decimal(text), "f")
 
 
 def write_xlsx(tables: Sequence[Table], path: str | Path) -> Path:
@@ -121,11 +132,7 @@ def export_tables(
     Returns the paths written. Tables not in the worksheet (for example no
     exclusions) are skipped.
     """
-    d = Path(directory)
-    try:
-        d.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise ReportError(f"cannot create folder: {exc.strerror}", file=str(d)) from None
+    d = _folder(directory)
     written: list[Path] = []
     failed: list[str] = []
     for key in keys:
@@ -144,6 +151,72 @@ def export_tables(
         done = ", ".join(p.name for p in written) or "nothing"
         raise ReportError(f"could not write {'; '.join(failed)}; written: {done}", file=str(d))
     return tuple(written)
+
+
+def _folder(directory: str | Path) -> Path:
+    d = Path(directory)
+    try:
+        d.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise ReportError(f"cannot create folder: {exc.strerror}", file=str(d)) from None
+    return d
+
+
+def all_tables(worksheet: Worksheet, extra: Sequence[Table] = ()) -> tuple[Table, ...]:
+    """Every table of the worksheet (coefficients, fit, estimate, checks, ratio study,
+    exclusions, the sales-comparison grid, regions... whatever it holds), in the order
+    printed, then ``extra`` (for example the sales with their results); facts lists
+    become two-column tables keyed by their section. Keys are unique (``grid_2``)."""
+    tables: list[Table] = []
+    seen: dict[str, int] = {}
+    for section in worksheet.sections:
+        for block in section.blocks:
+            if isinstance(block, Table):
+                table = block
+            elif isinstance(block, Facts) and section.key not in _FACTS_LEFT_OUT:
+                key = section.key if not block.title else f"{section.key}-{_slug(block.title)}"
+                table = Table(
+                    key=key, title=block.title, columns=("Item", "Value"), rows=block.rows
+                )
+            else:
+                continue
+            tables.append(_unique(table, seen))
+    tables.extend(_unique(t, seen) for t in extra)
+    return tuple(tables)
+
+
+_FACTS_LEFT_OUT = ("stamp",)
+"""Facts that are not results (the versions stamp) stay in the worksheet only."""
+
+
+def _slug(title: str) -> str:
+    return "-".join("".join(ch if ch.isalnum() else " " for ch in title.lower()).split())[:24]
+
+
+def _unique(table: Table, seen: dict[str, int]) -> Table:
+    from dataclasses import replace
+
+    n = seen.get(table.key, 0) + 1
+    seen[table.key] = n
+    return table if n == 1 else replace(table, key=f"{table.key}_{n}")
+
+
+def export_all_tables(
+    worksheet: Worksheet, target: str | Path, extra: Sequence[Table] = ()
+) -> tuple[Path, ...]:
+    """Write every table of the worksheet (see :func:`all_tables`): to one workbook with
+    a sheet each when ``target`` ends in ``.xlsx``, else as one CSV per table into the
+    folder ``target``. Returns the paths written."""
+    tables = all_tables(worksheet, extra)
+    if not tables:
+        raise ReportError("the worksheet holds no tables", file=str(target))
+    p = Path(target)
+    if p.suffix.lower() == ".xlsx":
+        if not p.parent.is_dir():
+            raise ReportError("the folder does not exist", file=str(p))
+        return (write_xlsx(tables, p),)
+    d = _folder(p)
+    return tuple(write_csv(t, d / f"{t.key}.csv") for t in tables)
 
 
 def write_exclusion_log(excluded: Iterable[Exclusion], path: str | Path) -> Path:
