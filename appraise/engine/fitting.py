@@ -21,7 +21,6 @@ import pandas as pd
 from .design import DesignSpec, learn_design
 from .errors import CollinearityError, FitError, ModelFileError
 from .levels import (
-    MIN_LEVEL_SALES,
     LevelCount,
     level_counts,
     single_sale_columns,
@@ -30,6 +29,7 @@ from .levels import (
 from .modelspec import ModelSpec
 from .prediction import Prediction, predict
 from .sales import ROW_COLUMN, Exclusion, SalesTable
+from .spread import SpreadModel, fit_spread
 
 COEF_CI_LEVEL = 0.95
 """Level of the coefficient confidence intervals (the prediction level is the model's ``level``)."""
@@ -108,6 +108,8 @@ class FitResult:
     warnings: tuple[str, ...] = field(default=())
     levels: tuple[LevelCount, ...] = field(default=())
     """Sales per level of every ``onehot`` term (:mod:`.levels`)."""
+    spread: SpreadModel | None = None
+    """The fitted model of the error spread (``spread = "modelled"``), else None."""
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -155,6 +157,7 @@ class FitResult:
             "excluded": [e.to_dict() for e in self.excluded],
             "warnings": list(self.warnings),
             "levels": [c.to_dict() for c in self.levels],
+            "spread": {"method": "constant"} if self.spread is None else self.spread.to_dict(),
         }
 
 
@@ -338,11 +341,24 @@ def fit_model(
         for j in range(p)
     )
     resid = np.asarray(res.resid, dtype=float)
-    warnings = [*thin_level_warnings(counts, MIN_LEVEL_SALES), *notes]
+    warnings = [*thin_level_warnings(counts, spec.min_level_sales), *notes]
     if n < MIN_SALES_PER_TERM * p:
         warnings.append(
             f"thin data: {n} sales for {p} terms ({n / p:.1f} per term; "
             f"common practice asks for at least {MIN_SALES_PER_TERM})"
+        )
+    fitted = np.asarray(res.fittedvalues, dtype=float)
+    spread = None
+    if spec.spread == "modelled":
+        spread = fit_spread(
+            fitted,
+            resid,
+            np.einsum("ij,jk,ik->i", X, np.asarray(res.normalized_cov_params), X),
+            frame,
+            df_resid=int(res.df_resid),
+            terms=spec.spread_terms,
+            derived=spec.derived,
+            roles=sales.roles,
         )
     return FitResult(
         spec=spec,
@@ -371,7 +387,7 @@ def fit_model(
         bic=float(res.bic),
         llf=float(res.llf),
         cov_type=spec.cov_type,
-        fitted=np.asarray(res.fittedvalues, dtype=float),
+        fitted=fitted,
         resid=resid,
         smearing=float(np.mean(np.exp(resid))) if spec.response == "log" else 1.0,
         xtx_inv=np.asarray(res.normalized_cov_params, dtype=float),
@@ -379,6 +395,7 @@ def fit_model(
         target=target,
         warnings=tuple(warnings),
         levels=counts,
+        spread=spread,
     )
 
 

@@ -18,7 +18,9 @@ import pandas as pd
 if TYPE_CHECKING:  # pragma: no cover
     from .design import DesignSpec
 
-MIN_LEVEL_SALES = 5
+from .modelspec import DEFAULT_MIN_LEVEL_SALES
+
+MIN_LEVEL_SALES = DEFAULT_MIN_LEVEL_SALES
 """Fewer sales than this in a level is thin (common practice; a setting of the model file,
 ``min_level_sales``)."""
 

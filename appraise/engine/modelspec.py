@@ -52,7 +52,16 @@ _KNOWN_KEYS = {
     "intercept",
     "title",
     "effective_date",
+    "spread",
+    "spread_terms",
+    "min_level_sales",
 }
+SPREAD_METHODS: tuple[str, ...] = ("constant", "modelled")  # see engine/spread.py
+DEFAULT_SPREAD = "modelled"
+"""Measured on two public house-sales tables (DEVELOPERS.md, "Interval spread"): the
+modelled spread's leave-one-out intervals cover the nominal level overall and more evenly
+by fifth of predicted price than the even spread's."""
+DEFAULT_MIN_LEVEL_SALES = 5  # common practice; engine/levels.py explains the warning
 
 
 @dataclass(frozen=True)
@@ -77,6 +86,12 @@ class ModelSpec:
     intercept: bool = True
     title: str = ""
     effective_date: str | None = None  # ISO date the value is as of; default: today
+    spread: str = DEFAULT_SPREAD
+    """How wide a single sale's interval is: ``constant`` or ``modelled`` (engine/spread.py)."""
+    spread_terms: tuple[str, ...] = ()
+    """Extra covariates of the modelled spread (feature expressions)."""
+    min_level_sales: int = DEFAULT_MIN_LEVEL_SALES
+    """A ``onehot`` level with fewer sales than this is warned (engine/levels.py)."""
 
     def to_dict(self) -> dict:
         d: dict = {
@@ -93,6 +108,11 @@ class ModelSpec:
             d["title"] = self.title
         if self.effective_date:
             d["effective_date"] = self.effective_date
+        d["spread"] = self.spread
+        if self.spread_terms:
+            d["spread_terms"] = list(self.spread_terms)
+        if self.min_level_sales != DEFAULT_MIN_LEVEL_SALES:
+            d["min_level_sales"] = self.min_level_sales
         return d
 
     def to_toml(self) -> str:
@@ -108,6 +128,12 @@ class ModelSpec:
             lines.append("intercept = false")
         if self.effective_date:
             lines.append(f"effective_date = {toml_string(self.effective_date)}")
+        lines.append(f"spread = {toml_string(self.spread)}")
+        if self.spread_terms:
+            terms = ", ".join(toml_string(t) for t in self.spread_terms)
+            lines.append(f"spread_terms = [{terms}]")
+        if self.min_level_sales != DEFAULT_MIN_LEVEL_SALES:
+            lines.append(f"min_level_sales = {self.min_level_sales}")
         lines.append("features = [")
         lines.extend(f"    {toml_string(f)}," for f in self.features)
         lines.append("]")
@@ -224,6 +250,19 @@ def model_from_dict(data: Mapping, *, source: str = "<model>") -> ModelSpec:
     eff = data.get("effective_date")
     if eff is not None:
         eff = str(eff)  # TOML dates arrive as datetime.date
+    spread = data.get("spread", DEFAULT_SPREAD)
+    if spread not in SPREAD_METHODS:
+        raise err(f"must be one of {', '.join(SPREAD_METHODS)}, not {spread!r}", "spread")
+    spread_terms = data.get("spread_terms", [])
+    if not isinstance(spread_terms, list) or not all(
+        isinstance(t, str) and t.strip() for t in spread_terms
+    ):
+        raise err('must be a list of expression strings, e.g. ["age"]', "spread_terms")
+    if spread_terms and spread != "modelled":
+        raise err('spread terms need spread = "modelled"', "spread_terms")
+    min_level = data.get("min_level_sales", DEFAULT_MIN_LEVEL_SALES)
+    if isinstance(min_level, bool) or not isinstance(min_level, int) or min_level < 1:
+        raise err(f"must be a whole number of sales, at least 1, not {min_level!r}", "min_level_sales")
     return ModelSpec(
         target=target.strip(),
         features=tuple(f.strip() for f in feats),
@@ -235,4 +274,7 @@ def model_from_dict(data: Mapping, *, source: str = "<model>") -> ModelSpec:
         intercept=intercept,
         title=title,
         effective_date=eff,
+        spread=spread,
+        spread_terms=tuple(t.strip() for t in spread_terms),
+        min_level_sales=min_level,
     )

@@ -8,7 +8,8 @@ and :math:`s_0^2` the error variance of one sale at that row (the constant :math
 unless the fit models the spread):
 
 * standard error of the mean (a typical similar property): :math:`\\sqrt{x_0' V x_0}`;
-* standard error of a single sale (this property): :math:`\\sqrt{s_0^2 + x_0' V x_0}`;
+* standard error of a single sale (this property): :math:`\\sqrt{s_0^2 + x_0' V x_0}`
+  (:math:`s_0^2` from :mod:`.spread` when the model file says ``spread = "modelled"``);
 * intervals :math:`\\hat y_0 \\pm t_{1-\\alpha/2,\\,n-p}\\,se`. statsmodels'
   ``get_prediction(...).summary_frame()`` computes the same (``mean_ci_*``, ``obs_ci_*``).
 
@@ -32,6 +33,7 @@ from .errors import SubjectError
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
     from .fitting import FitResult
+    from .spread import SpreadModel
 
 
 @dataclass(frozen=True, eq=False)
@@ -70,15 +72,21 @@ class Prediction:
     reasons: tuple[str | None, ...]
     columns: tuple[str | None, ...]
     smearing: float
+    spread: SpreadModel | None = None
+    """The fit's spread model: its empirical multiplier replaces the t quantile."""
 
     def __len__(self) -> int:
         return len(self.fitted)
 
     # --- response scale ----------------------------------------------------------------
     def t_quantile(self, level: float | None = None) -> float:
+        """The interval's multiplier: :math:`t_{1-\\alpha/2,\\,df}`, or with a modelled
+        spread the empirical quantile of :meth:`.spread.SpreadModel.multiplier`."""
         from scipy import stats
 
         level = self.level if level is None else check_level(level)
+        if self.spread is not None:
+            return self.spread.multiplier(level)
         return float(stats.t.ppf(1 - (1 - level) / 2, self.df))
 
     def response_interval(
@@ -177,7 +185,12 @@ def predict(
         fitted[ok] = Xo @ fit.params
         var_mean[ok] = np.einsum("ij,jk,ik->i", Xo, fit.cov_params, Xo)
         lev[ok] = np.einsum("ij,jk,ik->i", Xo, fit.xtx_inv, Xo)
-    var_obs = var_mean + error_variance(fit, frame, ok)
+    err_var, spread_problems = error_variance(fit, frame, ok, fitted)
+    for pos, reason, column in spread_problems:
+        if ok[pos]:
+            ok[pos] = False
+            reasons[pos], columns[pos] = reason, column
+    var_obs = np.where(ok, var_mean + err_var, np.nan)
     return Prediction(
         response=fit.spec.response,
         level=level,
@@ -190,17 +203,26 @@ def predict(
         reasons=tuple(reasons),
         columns=tuple(columns),
         smearing=fit.smearing,
+        spread=fit.spread,
     )
 
 
-def error_variance(fit: FitResult, frame: pd.DataFrame, ok: np.ndarray) -> np.ndarray:
-    """Variance of one sale's error at each row: the fit's :math:`s^2` for every row.
+def error_variance(
+    fit: FitResult, frame: pd.DataFrame, ok: np.ndarray, fitted: np.ndarray
+) -> tuple[np.ndarray, list[tuple[int, str, str | None]]]:
+    """Variance of one sale's error at each row, and the rows where it cannot be had.
 
-    This is the single place where a model of the error spread plugs in.
+    The fit's :math:`s^2` for every row, or, when the fit models the spread
+    (``spread = "modelled"``), :math:`\\sigma^2(x_0)` of :mod:`.spread`. This is the single
+    place where the spread enters a prediction.
     """
     out = np.full(len(frame), np.nan)
-    out[ok] = fit.sigma**2
-    return out
+    if fit.spread is None:
+        out[ok] = fit.sigma**2
+        return out, []
+    var, problems = fit.spread.variance(fitted, frame)
+    out[ok] = var[ok]
+    return out, problems
 
 
 __all__ = ["Prediction", "check_level", "predict"]

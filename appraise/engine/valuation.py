@@ -25,7 +25,7 @@ import pandas as pd
 from .errors import SubjectError
 from .fitting import FitResult
 from .jsonable import to_jsonable
-from .levels import MIN_LEVEL_SALES, subject_level_warnings
+from .levels import subject_level_warnings
 from .prediction import check_level, predict
 from .sales import ROW_COLUMN
 
@@ -134,7 +134,7 @@ def value_subject(fit: FitResult, subject: pd.DataFrame, level: float | None = N
     median = None if pred.median is None else float(pred.median[0])
     h0 = float(pred.leverage[0])
     h_max = float(fit.leverage().max())
-    warnings = subject_level_warnings(fit.design, fit.levels, subject, MIN_LEVEL_SALES)
+    warnings = subject_level_warnings(fit.design, fit.levels, subject, fit.spec.min_level_sales)
     warnings += extrapolation_warnings(fit, subject)
     if h0 > h_max:
         warnings.append(

@@ -43,7 +43,7 @@ def test_predict_matches_statsmodels_get_prediction(hprice1, cov, response):
     fit = fit_model(
         sales_from_frame(hprice1),
         parse_model(
-            f'target = "price"\nresponse = "{response}"\ncov_type = "{cov}"\nfeatures = {feats}'
+            f'spread = "constant"\ntarget = "price"\nresponse = "{response}"\ncov_type = "{cov}"\nfeatures = {feats}'
         ),
     )
     rows = _rows()
@@ -88,7 +88,7 @@ def test_predict_matches_statsmodels_get_prediction(hprice1, cov, response):
 def test_value_subject_is_the_one_row_prediction(hprice1):
     fit = fit_model(
         sales_from_frame(hprice1),
-        parse_model('target = "price"\nfeatures = ["lotsize", "sqrft", "bdrms"]'),
+        parse_model('spread = "constant"\ntarget = "price"\nfeatures = ["lotsize", "sqrft", "bdrms"]'),
     )
     rows = _rows().iloc[[0]].reset_index(drop=True)
     v = value_subject(fit, rows, level=0.95)
@@ -113,7 +113,7 @@ def test_unseen_level_is_a_row_problem_not_an_error():
     )
     fit = fit_model(
         sales_from_frame(frame),
-        parse_model('target = "price"\nfeatures = ["area", "onehot(region)"]'),
+        parse_model('spread = "constant"\ntarget = "price"\nfeatures = ["area", "onehot(region)"]'),
     )
     rows = pd.DataFrame({"area": [1500.0, 1400.0], "region": ["North", "Harbour"]})
     pred = fit.predict(rows)

@@ -94,6 +94,7 @@ LINEAR = ModelSpec(
     level=0.95,
     title="hprice1 linear",
     effective_date="2026-06-30",
+    spread="constant",  # the statsmodels interval is the reference of these tests
 )
 LOG = ModelSpec(
     target="price",
@@ -102,4 +103,5 @@ LOG = ModelSpec(
     level=0.95,
     title="hprice1 log",
     effective_date="2026-06-30",
+    spread="constant",
 )

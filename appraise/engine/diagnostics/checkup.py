@@ -149,6 +149,7 @@ def diagnose_arrays(
     rows: Sequence[int] | np.ndarray | None = None,
     sale_ids: Sequence[str | None] | None = None,
     settings: DiagnosticSettings = DEFAULT_SETTINGS,
+    spread=None,
 ) -> Diagnostics:
     """Run the check-up on a design ``X``, response ``y`` and sale prices ``price``.
 
@@ -187,7 +188,14 @@ def diagnose_arrays(
     tests = residual_tests(
         infl.resid, X, alpha=settings.alpha, response=response, cov_type=cov_type, qr=qr
     )
-    loo = leave_one_out(infl, price, response=response, smearing=smearing, level=level)
+    loo = leave_one_out(
+        infl,
+        price,
+        response=response,
+        smearing=smearing,
+        level=level,
+        spread=spread,
+    )
     folds = kfold(X, y, price, response=response, folds=settings.folds, seed=settings.seed, qr=qr)
     study = ratio_study(
         loo.price_prediction, price, trim=settings.trim, rows=rows, sale_ids=sale_ids
@@ -269,4 +277,5 @@ def diagnose(fit: FitResult, settings: DiagnosticSettings = DEFAULT_SETTINGS) ->
         rows=fit.rows,
         sale_ids=fit.sale_ids,
         settings=settings,
+        spread=fit.spread,
     )

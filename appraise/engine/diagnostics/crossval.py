@@ -116,19 +116,36 @@ def leave_one_out(
     response: str,
     smearing: float,
     level: float,
+    spread=None,
 ) -> LeaveOneOut:
-    """Leave-one-out accuracy and interval coverage from the influence measures."""
+    """Leave-one-out accuracy and interval coverage from the influence measures.
+
+    ``spread`` is the fit's :class:`~appraise.engine.spread.SpreadModel` (None: the
+    even-spread interval). With it, sale i's half-width is
+    :math:`q_{(i)}\\sqrt{\\sigma^2_{(i)}(x_i) + s_{(i)}^2 h_i/(1-h_i)}` in place of
+    :math:`t\\,s_{(i)}/\\sqrt{1-h_i}`: the spread and the multiplier both computed without
+    sale i's own error (:meth:`~appraise.engine.spread.SpreadModel.loo_multipliers`).
+    """
     price = np.asarray(price, dtype=float)
     ok = infl.has_loo
     t_crit = float(stats.t.ppf(0.5 + level / 2, infl.n - infl.p - 1))
-    half = t_crit * infl.loo_sigma / np.sqrt(1.0 - infl.leverage)
+    if spread is None:
+        half = t_crit * infl.loo_sigma / np.sqrt(1.0 - infl.leverage)
+    else:
+        ok = ok & np.isfinite(spread.loo_variance)
+        h = infl.leverage
+        mean_var = infl.loo_sigma**2 * h / np.where(ok, 1.0 - h, 1.0)
+        half = spread.loo_multipliers(level) * np.sqrt(spread.loo_variance + mean_var)
     half = np.where(ok, half, np.nan)
     lo = infl.loo_prediction - half
     hi = infl.loo_prediction + half
     if response == "log":
         lo, hi = np.exp(lo), np.exp(hi)
     pred = to_price(infl.loo_prediction, response, smearing)
-    inside = ok & (np.abs(infl.student_external) <= t_crit)
+    if spread is None:
+        inside = ok & (np.abs(infl.student_external) <= t_crit)
+    else:
+        inside = ok & (np.abs(np.where(ok, infl.loo_error, np.inf)) <= half)
     n_used = int(ok.sum())
     press = infl.press()
     return LeaveOneOut(
