@@ -19,6 +19,7 @@ from collections.abc import Sequence
 
 from . import __version__
 from .engine.errors import AppraiseError
+from .report.safe_text import TerminalStream
 
 # name -> one-line summary; the order is the order shown in --help. Only the module of
 # the command being run is imported (the engine pulls in pandas, scipy and statsmodels,
@@ -75,10 +76,26 @@ def main(argv: Sequence[str] | None = None) -> int:
     if func is None:
         parser.print_help()
         return 2
+    out, err = sys.stdout, sys.stderr
+    # every string from a user's file reaches the terminal with its control characters escaped
+    sys.stdout, sys.stderr = TerminalStream(out), TerminalStream(err)
+    try:
+        return _run(func, args)
+    finally:
+        sys.stdout, sys.stderr = out, err
+
+
+def _run(func, args: argparse.Namespace) -> int:
     try:
         return int(func(args) or 0)
     except AppraiseError as exc:
         print(f"appraise: error: {exc}", file=sys.stderr)
+        return 2
+    except (RecursionError, MemoryError) as exc:  # a last guard: the readers check limits first
+        print(
+            f"appraise: error: an input is too large or nested too deeply ({type(exc).__name__})",
+            file=sys.stderr,
+        )
         return 2
     except KeyboardInterrupt:
         print("appraise: interrupted", file=sys.stderr)
