@@ -127,6 +127,10 @@ class Design:
     matrix: np.ndarray
     row_ok: np.ndarray
     problems: tuple[tuple[int, str, str | None], ...]
+    codes: np.ndarray | None = None
+    """With ``build(..., codes_for=term)``: (n,) index of each row's level of that
+    ``onehot`` term in its ``levels`` (-1 where missing or unknown); the term's indicator
+    columns are then left out of ``matrix`` (the structured fit, :mod:`.absorb`)."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -159,12 +163,16 @@ class DesignSpec:
         """Number of design columns."""
         return len(self.names)
 
-    def build(self, frame: pd.DataFrame, *, unseen: str = "raise") -> Design:
+    def build(
+        self, frame: pd.DataFrame, *, unseen: str = "raise", codes_for: str | None = None
+    ) -> Design:
         """Encode ``frame`` (the sales, or a one-row subject) with the learned design.
 
         ``unseen="flag"`` reports a row holding a ``onehot`` level not learned from the
         sales as a row problem (not ok, with the reason) instead of raising; batch
-        prediction uses it so one odd row does not stop the others.
+        prediction uses it so one odd row does not stop the others. ``codes_for`` names
+        a ``onehot`` term (its expression) handed over as level codes in
+        :attr:`Design.codes` instead of indicator columns.
 
         Raises
         ------
@@ -177,7 +185,15 @@ class DesignSpec:
         ev = _evaluate(self._terms, frame)
         n = len(frame)
         blocks = [np.ones((n, 1))] if self.intercept else []
+        codes = None
         for term, values in zip(self._terms, ev.values, strict=True):
+            if term.kind == "onehot" and term.text == codes_for:
+                if unseen == "flag":
+                    ev.flag_unseen(term, values)
+                else:
+                    _check_levels(term, values, ev.problem_of < 0, frame)
+                codes = _level_codes(term, values)
+                continue
             if term.kind in ("onehot", "onehot_product"):
                 labels = values if term.kind == "onehot" else values[:, 0]
                 if unseen == "flag":
@@ -195,7 +211,7 @@ class DesignSpec:
         row_ok = ev.problem_of < 0
         matrix.setflags(write=False)
         row_ok.setflags(write=False)
-        return Design(self, matrix, row_ok, ev.problem_list())
+        return Design(self, matrix, row_ok, ev.problem_list(), codes)
 
     def describe(self) -> list[tuple[str, tuple[str, ...]]]:
         """Each feature as given, with the design columns it expands to (for the worksheet)."""
@@ -700,14 +716,18 @@ def _check_levels(t: _Term, labels: np.ndarray, ok: np.ndarray, frame: pd.DataFr
 def _indicators(t: _Term, labels: np.ndarray) -> np.ndarray:
     """0/1 columns for every level but the reference; NaN where the level is missing
     (or unknown, which only happens in rows that are not ok)."""
-    index = {lv: float(j) for j, lv in enumerate(t.levels)}
-    codes = pd.Series(labels, dtype=object).map(index).to_numpy(dtype=float, na_value=np.nan)
+    codes = _level_codes(t, labels)
     cols = [
-        np.where(np.isnan(codes), np.nan, (codes == j).astype(float))
+        np.where(codes < 0, np.nan, (codes == j).astype(float))
         for j, lv in enumerate(t.levels)
         if lv != t.reference
     ]
     return np.column_stack(cols) if cols else np.empty((len(labels), 0))
+
+
+def _level_codes(t: _Term, labels: np.ndarray) -> np.ndarray:
+    """Index of each row's level in ``t.levels``; -1 where missing or not learned."""
+    return pd.Index(list(t.levels), dtype=object).get_indexer(labels).astype(np.intp)
 
 
 __all__ = [

@@ -14,12 +14,21 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
 
-from .design import DesignSpec, learn_design
-from .errors import CollinearityError, FitError, ModelFileError
+from .absorb import (
+    ABSORB_MIN_COLUMNS,
+    AbsorbedFit,
+    AbsorbedResults,
+    absorb_fit,
+    absorbed_level_counts,
+    collinear_error,
+)
+from .design import DesignSpec, TermGroup, learn_design
+from .errors import FitError, ModelFileError
 from .levels import (
     LevelCount,
     level_counts,
@@ -74,14 +83,17 @@ class FitResult:
     sales used, in the order of ``X``'s rows. ``xtx_inv`` is the classical
     :math:`(X'X)^{-1}`; ``cov_params`` the coefficient covariance of ``cov_type``.
     ``smearing`` is Duan's factor :math:`\\frac1n\\sum e^{\\hat e_i}` for a log
-    response and 1.0 for a linear one.
+    response and 1.0 for a linear one. ``path`` says how it was fitted: ``"dense"``
+    (statsmodels on the whole design) or ``"structured"`` (a large ``onehot`` term
+    absorbed, :mod:`.absorb`, held in ``structure``; ``X`` is then built only when asked).
     """
 
     spec: ModelSpec
     design: DesignSpec
     sales: SalesTable
     frame: pd.DataFrame
-    X: np.ndarray
+    dense: np.ndarray | None
+    """The design of the sales used (None on the structured path: see ``X``)."""
     y: np.ndarray
     price: np.ndarray
     rows: np.ndarray
@@ -110,6 +122,27 @@ class FitResult:
     """Sales per level of every ``onehot`` term (:mod:`.levels`)."""
     spread: SpreadModel | None = None
     """The fitted model of the error spread (``spread = "modelled"``), else None."""
+    path: str = "dense"
+    structure: AbsorbedFit | None = None
+
+    @cached_property
+    def X(self) -> np.ndarray:
+        """The (n, p) design of the sales used; on the structured path built on first use."""
+        if self.dense is not None:
+            return self.dense
+        assert self.structure is not None
+        return self.structure.dense_design()
+
+    @property
+    def path_text(self) -> str:
+        """One line saying how the model was fitted."""
+        a = self.structure
+        if a is None:
+            return "dense design, statsmodels OLS"
+        return (
+            f"structured: {a.term} absorbed ({len(a.counts)} levels), "
+            f"{len(a.z_pos)} other columns solved by {a.method}"
+        )
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -131,6 +164,8 @@ class FitResult:
 
     def leverage(self) -> np.ndarray:
         """Hat diagonal :math:`h_i = x_i'(X'X)^{-1}x_i` of the sales used."""
+        if self.structure is not None:
+            return self.structure.leverage()
         return np.einsum("ij,jk,ik->i", self.X, self.xtx_inv, self.X)
 
     def references(self) -> dict[str, str]:
@@ -147,6 +182,7 @@ class FitResult:
             "sigma": self.sigma,
             "response": self.spec.response,
             "cov_type": self.cov_type,
+            "path": self.path,
             "target": self.target,
             "ci_level": COEF_CI_LEVEL,
             "aic": self.aic,
@@ -241,8 +277,14 @@ def fit_model(
     spec: ModelSpec,
     *,
     user_exclusions: Iterable[Exclusion] = (),
+    path: str = "auto",
 ) -> FitResult:
     """Fit ``spec`` to ``sales`` by OLS and return a frozen :class:`FitResult`.
+
+    ``path`` (:data:`FIT_PATHS`): ``"auto"`` absorbs the largest ``onehot`` term when it
+    has :data:`.absorb.ABSORB_MIN_COLUMNS` columns or more (the structured fit of
+    :mod:`.absorb`, equal to statsmodels on the dense design), else fits the dense design
+    with statsmodels; ``"dense"`` and ``"structured"`` force one of them.
 
     Raises
     ------
@@ -287,7 +329,8 @@ def fit_model(
     design = learn_design(
         spec.features, frame, derived=spec.derived, roles=sales.roles, intercept=spec.intercept
     )
-    built = design.build(frame)
+    group = _absorbed_group(design, path)
+    built = design.build(frame, codes_for=None if group is None else group.expression)
     for pos, reason, column in built.problems:
         excluded.append(
             Exclusion(int(frame[ROW_COLUMN].iloc[pos]), sale_id(pos), reason, column, "model")
@@ -296,33 +339,47 @@ def fit_model(
     frame = frame.loc[ok].reset_index(drop=True)
     X = np.ascontiguousarray(np.asarray(built.matrix, dtype=float)[ok])
     names = design.names
-    n, p = X.shape
+    n, p = len(X), design.p
     if n <= p:
         raise FitError(
             f"{n} usable sales for {p} terms: a fit needs more sales than terms "
             "(drop terms or add sales)",
             file=sales.source.path,
         )
-    involved = _rank_problem(X, names)
-    if involved is not None:
-        raise CollinearityError(
-            "the terms are perfectly collinear (one is an exact combination of others): "
-            + ", ".join(involved)
-            + ". Remove one of them, or give onehot() a reference level when an intercept is used.",
-            terms=involved,
-            file=sales.source.path,
-        )
-
     price = pd.to_numeric(frame[target]).to_numpy(dtype=float)
     y = np.log(price) if spec.response == "log" else price
-    # statsmodels is imported here, not at module level: it takes seconds to import and
-    # commands that never fit (appraise --help, appraise data) should not pay for it.
-    from statsmodels.regression.linear_model import OLS
-
-    counts = level_counts(design, X)
+    structure = None
+    if group is None:
+        res = _dense_ols(X, y, names, sales.source.path)
+        # the hat diagonal from statsmodels' own pseudo-inverse: no second factorisation
+        leverage = np.einsum("ij,ji->i", X, res.model.pinv_wexog)
+        counts = level_counts(design, X)
+    else:
+        d_set = set(group.columns)
+        structure = absorb_fit(
+            X,
+            y,
+            np.asarray(built.codes)[ok],
+            len(group.levels),
+            group.levels.index(group.reference),
+            names=names,
+            z_pos=[j for j, c in enumerate(names) if c not in d_set],
+            d_pos=[names.index(c) for c in group.columns],
+            term=group.expression,
+            file=sales.source.path,
+        )
+        res = AbsorbedResults.of(structure)
+        leverage = structure.leverage()
+        counts = absorbed_level_counts(design, structure)
     if spec.cov_type == "HC3":
-        _refuse_hc3_at_leverage_one(X, frame, counts, sale_id, sales.source.path)
-    res = OLS(y, X).fit(cov_type=STATSMODELS_COV[spec.cov_type], use_t=True)
+        _refuse_hc3_at_leverage_one(leverage, frame, counts, sale_id, sales.source.path)
+    cov_type = STATSMODELS_COV[spec.cov_type]
+    if cov_type != "nonrobust":
+        res = (
+            res.get_robustcov_results(cov_type=cov_type, use_t=True)
+            if structure is None
+            else AbsorbedResults.of(structure, cov_type)
+        )
     ci = np.asarray(res.conf_int(alpha=1 - COEF_CI_LEVEL))
     lone = single_sale_columns(counts)
     nan = float("nan")
@@ -353,7 +410,7 @@ def fit_model(
         spread = fit_spread(
             fitted,
             resid,
-            np.einsum("ij,jk,ik->i", X, np.asarray(res.normalized_cov_params), X),
+            leverage,
             frame,
             df_resid=int(res.df_resid),
             terms=spec.spread_terms,
@@ -365,7 +422,7 @@ def fit_model(
         design=design,
         sales=sales,
         frame=frame,
-        X=X,
+        dense=X if structure is None else None,
         y=y,
         price=price,
         rows=frame[ROW_COLUMN].to_numpy(dtype=int),
@@ -396,7 +453,49 @@ def fit_model(
         warnings=tuple(warnings),
         levels=counts,
         spread=spread,
+        path="dense" if structure is None else "structured",
+        structure=structure,
     )
+
+
+FIT_PATHS = ("auto", "dense", "structured")
+"""``fit_model(path=...)``: choose by size, statsmodels on the dense design, or absorbed."""
+
+
+def _absorbed_group(design: DesignSpec, path: str) -> TermGroup | None:
+    """The ``onehot`` term to absorb: the one with the most columns, when it has at least
+    :data:`.absorb.ABSORB_MIN_COLUMNS` (``path="auto"``) or always (``"structured"``)."""
+    if path not in FIT_PATHS:
+        raise ValueError(f"path must be one of {', '.join(FIT_PATHS)}, not {path!r}")
+    onehots = [g for g in design.groups if g.kind == "onehot" and g.columns]
+    if path == "dense" or not onehots:
+        if path == "structured":
+            raise FitError("the structured fit needs a onehot(...) term to absorb")
+        return None
+    big = max(onehots, key=lambda g: len(g.columns))
+    if path == "auto" and len(big.columns) < ABSORB_MIN_COLUMNS:
+        return None
+    return big
+
+
+def _dense_ols(X: np.ndarray, y: np.ndarray, names: tuple[str, ...], file: str | None):
+    """statsmodels OLS (classical covariance) on the dense design; its pseudo-inverse's
+    SVD decides the rank, and only a deficient design is searched for the columns to name."""
+    # statsmodels is imported here, not at module level: it takes seconds to import and
+    # commands that never fit (appraise --help, appraise data) should not pay for it.
+    import warnings
+
+    from statsmodels.regression.linear_model import OLS
+    from statsmodels.tools.sm_exceptions import SingularMatrixWarning
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", SingularMatrixWarning)
+        res = OLS(y, X).fit(use_t=True)
+    if res.model.rank < X.shape[1]:
+        involved = _rank_problem(X, names)
+        if involved is not None:
+            raise collinear_error(involved, file)
+    return res
 
 
 LONE_NOTE = (
@@ -404,11 +503,9 @@ LONE_NOTE = (
 )
 
 
-def _refuse_hc3_at_leverage_one(X, frame, counts, sale_id, file) -> None:
+def _refuse_hc3_at_leverage_one(h, frame, counts, sale_id, file) -> None:
     """HC3 divides each squared residual by (1 - h)^2: at leverage 1 (a level held by one
     sale) that is 0/0 and the standard errors explode. Refuse, naming the sale."""
-    q, _ = np.linalg.qr(X)
-    h = np.einsum("ij,ij->i", q, q)
     at = np.flatnonzero(h >= 1 - 1e-8)
     if at.size == 0:
         return

@@ -168,7 +168,9 @@ def predict(
         ``unseen="raise"`` makes an unseen level an error, as for the subject).
     """
     level = fit.spec.level if level is None else check_level(level)
-    built = fit.design.build(frame, unseen=unseen)
+    structure = getattr(fit, "structure", None)
+    absorbed = None if structure is None else structure.term
+    built = fit.design.build(frame, unseen=unseen, codes_for=absorbed)
     n = len(frame)
     ok = np.asarray(built.row_ok, dtype=bool).copy()
     reasons: list[str | None] = [None] * n
@@ -180,7 +182,12 @@ def predict(
     fitted = np.full(n, np.nan)
     var_mean = np.full(n, np.nan)
     lev = np.full(n, np.nan)
-    if ok.any():
+    if ok.any() and structure is not None:
+        # structured fit: the absorbed term comes as level codes, never as dense rows
+        fitted[ok], var_mean[ok], lev[ok] = structure.predict_rows(
+            X[ok], np.asarray(built.codes)[ok], fit.cov_params
+        )
+    elif ok.any():
         Xo = X[ok]
         fitted[ok] = Xo @ fit.params
         var_mean[ok] = np.einsum("ij,jk,ik->i", Xo, fit.cov_params, Xo)
