@@ -89,7 +89,8 @@ def nesting_depth(text: str, *, toml: bool = False) -> int:
     return int(max(0, np.cumsum(step).max()))
 
 
-def _limited_int(text: str) -> int:
+def limited_int(text: str) -> int:
+    """``int(text)`` for ``json.loads(parse_int=...)``; ValueError past :data:`MAX_INT_DIGITS`."""
     if len(text.lstrip("-")) > MAX_INT_DIGITS:
         raise ValueError(f"a whole number of {len(text)} digits; the limit is {MAX_INT_DIGITS}")
     return int(text)
@@ -116,7 +117,7 @@ def load_json_text(
             f"{what} is nested {depth} levels deep; the limit is {MAX_NESTING}", file=source
         )
     try:
-        return json.loads(text, parse_int=_limited_int)
+        return json.loads(text, parse_int=limited_int)
     except json.JSONDecodeError as exc:
         raise error(
             f"{what} is not valid JSON: {exc.msg} (line {exc.lineno}, column {exc.colno})",

@@ -51,7 +51,7 @@ import hashlib
 import json
 import os
 import tempfile
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, NamedTuple
@@ -60,10 +60,12 @@ from .. import __version__
 from .errors import AppraiseError, WorkfileError
 from .importing import load_sales
 from .jsonable import to_jsonable
+from .limits import MAX_NESTING, limited_int, nesting_depth
 from .modelspec import ModelSpec, model_from_dict
 from .roles import RoleMap
 from .sales import ROW_COLUMN, Exclusion, SalesTable
 from .settings import ImportSettings
+from .workfile_schema import plain_sales_file, safe_base_name, validate_workfile_document
 
 FORMAT_NAME = "appraise-workfile"
 SCHEMA_VERSION = 1
@@ -116,6 +118,8 @@ class WorkfileState:
     format: str = FORMAT_NAME
     schema_version: int = SCHEMA_VERSION
     location: str | None = field(default=None, compare=False)
+    recovered: tuple[str, ...] = field(default=(), compare=False)
+    """What opening did with temporary files an interrupted save left (never written)."""
 
     def to_json_dict(self) -> dict:
         """The JSON document this state is saved as."""
@@ -325,7 +329,9 @@ def save_workfile(path: str | Path, state: WorkfileState) -> WorkfileState:
     payload = text.encode("utf-8")
     folder = target.parent if str(target.parent) else Path(".")
     try:
-        fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+        fd, tmp_name = tempfile.mkstemp(
+            prefix=f"{_temp_prefix(target)}{os.getpid()}.", suffix=TEMP_SUFFIX, dir=folder
+        )
     except OSError as exc:
         raise WorkfileError(
             f"cannot write in this folder: {exc.strerror}", file=str(target)
@@ -347,6 +353,98 @@ def save_workfile(path: str | Path, state: WorkfileState) -> WorkfileState:
         raise
     _fsync_folder(folder)
     return written
+
+
+TEMP_SUFFIX = ".tmp"
+STALE_SECONDS = 600
+"""A temporary file of this process (or of unknown origin) older than this is an orphan."""
+
+
+def _temp_prefix(target: Path) -> str:
+    return f".{target.name}."
+
+
+def clean_interrupted_saves(
+    path: str | Path, *, stale_seconds: float = STALE_SECONDS
+) -> tuple[str, ...]:
+    """Deal with the temporary files an interrupted save of ``path`` left beside it.
+
+    A save writes ``.<name>.<pid>.<random>.tmp`` and renames it over ``<name>``; a save
+    killed before the rename leaves that file behind. A temporary file is an orphan when
+    the process that wrote it is gone (or, where that cannot be told, when it is older
+    than ``stale_seconds``); a live save is never touched. An orphan that does not hold
+    a complete workfile is removed; a complete one (killed between writing and renaming)
+    is kept for recovery as ``<stem>.recovered-<k>.json`` beside the workfile.
+
+    Returns
+    -------
+    tuple of str
+        One sentence per file removed or kept, for the user.
+    """
+    target = Path(path).expanduser()
+    folder = target.parent if str(target.parent) else Path(".")
+    prefix = _temp_prefix(target)
+    try:
+        leftovers = sorted(
+            p
+            for p in folder.iterdir()
+            if p.name.startswith(prefix) and p.name.endswith(TEMP_SUFFIX)
+        )
+    except OSError:
+        return ()
+    said: list[str] = []
+    for tmp in leftovers:
+        if not _orphaned(tmp, prefix, stale_seconds):
+            continue
+        if _complete_workfile(tmp):
+            k = 1
+            while (keep := folder / f"{target.stem}.recovered-{k}.json").exists():
+                k += 1
+            try:
+                os.replace(tmp, keep)
+            except OSError:
+                continue
+            said.append(
+                f"an interrupted save left a complete workfile; kept as {keep.name} "
+                "(open it to recover that state)"
+            )
+        else:
+            try:
+                size = tmp.stat().st_size
+                tmp.unlink()
+            except OSError:
+                continue
+            said.append(
+                f"removed {tmp.name} ({size:,} bytes), left incomplete by an interrupted save"
+            )
+    return tuple(said)
+
+
+def _orphaned(tmp: Path, prefix: str, stale_seconds: float) -> bool:
+    import time
+
+    pid_text = tmp.name[len(prefix) :].split(".", 1)[0]
+    try:
+        age = time.time() - tmp.stat().st_mtime
+    except OSError:
+        return False
+    if pid_text.isdigit() and int(pid_text) != os.getpid() and os.name == "posix":
+        try:
+            os.kill(int(pid_text), 0)
+        except ProcessLookupError:
+            return True  # the writer is gone
+        except OSError:
+            pass  # alive under another user, or cannot tell
+        return age > stale_seconds * 6  # alive (or pid reused): only when very old
+    return age > stale_seconds
+
+
+def _complete_workfile(tmp: Path) -> bool:
+    try:
+        load_workfile_text(tmp.read_bytes(), str(tmp))
+    except (AppraiseError, OSError):
+        return False
+    return True
 
 
 def _remove_quietly(name: str) -> None:
@@ -390,20 +488,37 @@ def load_workfile(path: str | Path) -> WorkfileState:
         raise WorkfileError("workfile not found", file=src) from None
     except OSError as exc:
         raise WorkfileError(f"cannot read the workfile: {exc.strerror}", file=src) from None
+    except ValueError as exc:  # a NUL in the path
+        raise WorkfileError(f"cannot read the workfile: {exc}", file=src) from None
+    state = load_workfile_text(raw, src)
+    recovered = clean_interrupted_saves(p)
+    return replace(state, recovered=recovered) if recovered else state
+
+
+def load_workfile_text(raw: bytes, src: str) -> WorkfileState:
+    """Parse and validate the bytes of a workfile (see :func:`load_workfile`); ``src`` names
+    it in errors and becomes the state's ``location``."""
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         raise WorkfileError(
             f"not a workfile: byte {exc.start} is not UTF-8 text", file=src
         ) from None
+    depth = nesting_depth(text)
+    if depth > MAX_NESTING:
+        raise WorkfileError(
+            f"not a workfile: nested {depth} levels deep; the limit is {MAX_NESTING}", file=src
+        )
     try:
-        doc = json.loads(text)
+        doc = json.loads(text, parse_int=limited_int)
     except json.JSONDecodeError as exc:
         raise WorkfileError(
             f"not valid JSON at line {exc.lineno}, column {exc.colno}: {exc.msg}; "
             "the file was damaged or edited by hand",
             file=src,
         ) from None
+    except ValueError as exc:  # a whole number longer than the limit
+        raise WorkfileError(f"not a workfile: it holds {exc}", file=src) from None
     if not isinstance(doc, dict) or doc.get("format") != FORMAT_NAME:
         raise WorkfileError(f'not an appraise workfile (no "format": "{FORMAT_NAME}")', file=src)
     version = doc.get("schema_version")
@@ -418,7 +533,9 @@ def load_workfile(path: str | Path) -> WorkfileState:
             f"{SCHEMA_VERSION} at most. Update appraise to open it.",
             file=src,
         )
-    return _state_from_doc(doc, src)
+    state = _state_from_doc(doc, src)
+    validate_workfile_document(doc, src)  # types, enumerations, lengths, nested settings
+    return state
 
 
 def _state_from_doc(doc: dict, src: str) -> WorkfileState:
@@ -449,8 +566,10 @@ def _state_from_doc(doc: dict, src: str) -> WorkfileState:
         if emb_doc.get("encoding") != "base64":
             raise WorkfileError("'sales.embedded.encoding' must be \"base64\"", file=src)
         data = need(emb_doc, "data", str, "sales.embedded")
+        hint = next((Path(x).suffix for x in (rel, absolute) if isinstance(x, str)), None)
+        name = safe_base_name(name, fallback_suffix=hint)  # never a path, '..' or NUL
         try:
-            embedded = EmbeddedSales(Path(name).name, base64.b64decode(data, validate=True))
+            embedded = EmbeddedSales(name, base64.b64decode(data, validate=True))
         except (binascii.Error, ValueError):
             raise WorkfileError("'sales.embedded.data' is not valid base64", file=src) from None
         if embedded.sha256 != sha:
@@ -521,13 +640,18 @@ def candidate_sales_paths(state: WorkfileState) -> list[Path]:
     return seen
 
 
-def restore(state: WorkfileState) -> Restored:
+def restore(state: WorkfileState, *, confirm: Callable[[Path], bool] | None = None) -> Restored:
     """Read the sales again and rebuild the model, subject and user exclusions.
 
     The sales file is looked for relative to the workfile, then at its absolute
-    path. A file found there must hash to ``state.sales_sha256``. When it is
-    missing or different and the workfile embeds the original bytes, those are
-    read instead and a note in ``sales.notes`` says so. Otherwise:
+    path. The recorded paths are hints from a file anyone may have edited: one is
+    read without asking only when it is a plain sales file (an existing regular file
+    whose name and real target end in a sales-file suffix,
+    :func:`.workfile_schema.plain_sales_file`); any other path that exists is read
+    only if ``confirm(path)`` returns true (no ``confirm``: never). A file read must
+    hash to ``state.sales_sha256``. When it is missing, refused or different and the
+    workfile embeds the original bytes, those are read instead and a note in
+    ``sales.notes`` says so. Otherwise:
 
     Raises
     ------
@@ -547,18 +671,31 @@ def restore(state: WorkfileState) -> Restored:
     tried = candidate_sales_paths(state)
     found: Path | None = None
     found_sha: str | None = None
+    refused: list[Path] = []
     for p in tried:
-        if p.is_file():
-            found = p
-            found_sha = file_sha256(p)
-            break
+        if plain_sales_file(p) or (_exists(p) and confirm is not None and confirm(p)):
+            if p.is_file():
+                found = p
+                found_sha = file_sha256(p)
+                break
+        elif _exists(p):
+            refused.append(p)
     embedded = state.embedded_sales
+    if found is None and refused and embedded is None:
+        raise WorkfileError(
+            f"the workfile names {refused[0]} as its sales file, which is not a plain sales "
+            "file (.csv, .xlsx or .parquet); it was not read. Open the sales file yourself, "
+            "or confirm that this path is meant",
+            file=src,
+        )
     if found is not None and found_sha == state.sales_sha256:
         sales = load_sales(found, settings, roles)
     elif embedded is not None:
         why = (
             f"{found} has SHA-256 {found_sha}, not the recorded {state.sales_sha256}"
             if found is not None
+            else f"the recorded path {refused[0]} is not a plain sales file and was not read"
+            if refused
             else f"the sales file was not found ({', '.join(str(p) for p in tried) or 'no path'})"
         )
         sales = _load_embedded(embedded, settings, roles)
@@ -590,6 +727,13 @@ def restore(state: WorkfileState) -> Restored:
         )
     exclusions = _restore_exclusions(state, sales)
     return Restored(sales, spec, dict(state.subject), exclusions)
+
+
+def _exists(p: Path) -> bool:
+    try:
+        return p.exists()
+    except (OSError, ValueError):
+        return False
 
 
 def _load_embedded(embedded: EmbeddedSales, settings: ImportSettings, roles: RoleMap) -> SalesTable:
