@@ -36,6 +36,7 @@ from .help_view import HelpView
 from .model_editor import ModelEditor
 from .plots import PlotsView
 from .preferences import Preferences
+from .regions_view import RegionsView
 from .results_view import ResultsView
 from .roles_view import RolesView
 from .sales_view import ExclusionLogView, SalesView, exclude_with_reason
@@ -140,6 +141,8 @@ class MainWindow(QMainWindow):
         self.centre_tabs.add_scrolling(self.diagnostics_view, "&Checks")
         self.comparables_view = ComparablesView(self.session)
         self.centre_tabs.addTab(self.comparables_view, "C&omparables")
+        self.regions_view = RegionsView(self.session)
+        self.centre_tabs.addTab(self.regions_view, "&Neighbourhoods")
         self.centre_tabs.add_scrolling(self.worksheet_view, "&Worksheet")
         # the start page stands in for the tabs (and the side panels) until sales are loaded
         self.start_page = StartPage(prefs)
