@@ -77,10 +77,20 @@ def add_diagnostic_arguments(parser: argparse.ArgumentParser) -> None:
         action="store_true",
         help="ratio study: leave out ratios beyond 3 interquartile ranges of the quartiles",
     )
+    g.add_argument(
+        "--coverage-by",
+        metavar="TERM",
+        help="also split the interval coverage by this column or role (fifths when numeric)",
+    )
 
 
 def diagnostic_settings(args: argparse.Namespace) -> DiagnosticSettings:
-    return DiagnosticSettings(folds=args.folds, seed=args.seed, trim=args.trim)
+    return DiagnosticSettings(
+        folds=args.folds,
+        seed=args.seed,
+        trim=args.trim,
+        coverage_term=getattr(args, "coverage_by", None),
+    )
 
 
 def register(sub) -> None:

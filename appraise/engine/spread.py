@@ -59,9 +59,9 @@ SPREAD_METHODS: tuple[str, ...] = ("constant", "modelled")
 variance follows :math:`c\\exp(z'\\gamma)` (this module)."""
 
 SPREAD_METHOD_TEXT = {
-    "constant": "even spread (one error variance for every sale)",
-    "modelled": "modelled spread (error variance fitted on the predicted value"
-    " and the spread terms; Harvey 1976)",
+    "constant": "even spread: one error variance for every sale",
+    "modelled": "modelled spread: error variance fitted on the predicted value and any "
+    "spread terms",
 }
 
 LEVERAGE_ONE = 1 - 1e-8

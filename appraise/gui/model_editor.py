@@ -38,6 +38,7 @@ from appraise.engine.expressions import check_expression, quote_name
 from appraise.engine.modelspec import COV_TYPES, RESPONSES, ModelSpec
 from appraise.engine.roles import ROLES
 from appraise.engine.sales import ROW_COLUMN
+from appraise.engine.spread import SPREAD_METHOD_TEXT
 
 from .session import Session
 
@@ -229,12 +230,21 @@ class ModelEditor(QWidget):
         self.cov_type = QComboBox()
         for c in COV_TYPES:
             self.cov_type.addItem(COV_LABELS[c], c)
+        self.spread = QComboBox()
+        for method, text in SPREAD_METHOD_TEXT.items():
+            self.spread.addItem(text.split(":")[0].capitalize(), method)
+            self.spread.setItemData(self.spread.count() - 1, text, Qt.ItemDataRole.ToolTipRole)
+        self.spread.setToolTip(
+            "How wide a single sale's interval is: one error variance for every sale, or a "
+            "variance that follows the predicted price (see Checks: coverage by segment)"
+        )
 
         head = QFormLayout()
         head.addRow("&Price column", self.target)
         head.addRow("&Response", self.response)
         head.addRow("&Interval level", self.level)
         head.addRow("Standard &errors", self.cov_type)
+        head.addRow("Interval &spread", self.spread)
 
         self.features = _RowList(named=False)
         self.new_feature = QLineEdit()
@@ -294,6 +304,7 @@ class ModelEditor(QWidget):
         self.response.currentIndexChanged.connect(lambda _i: self._edited())
         self.level.valueChanged.connect(lambda _v: self._edited())
         self.cov_type.currentIndexChanged.connect(lambda _i: self._edited())
+        self.spread.currentIndexChanged.connect(lambda _i: self._edited())
 
         session.modelChanged.connect(self._model_changed)
         session.salesChanged.connect(lambda _s: self._sales_changed())
@@ -337,6 +348,7 @@ class ModelEditor(QWidget):
         self.response.setCurrentIndex(max(0, self.response.findData(spec.response)))
         self.level.setValue(round(spec.level * 100.0, 1))
         self.cov_type.setCurrentIndex(max(0, self.cov_type.findData(spec.cov_type)))
+        self.spread.setCurrentIndex(max(0, self.spread.findData(spec.spread)))
         self.features.set_items([("", f) for f in spec.features])
         self.derived.set_items(list(spec.derived.items()))
         self._filling = False
@@ -408,6 +420,8 @@ class ModelEditor(QWidget):
             response=self.response.currentData(),
             level=round(self.level.value() / 100.0, 4),
             cov_type=self.cov_type.currentData(),
+            spread=self.spread.currentData(),
+            spread_terms=base.spread_terms if self.spread.currentData() == "modelled" else (),
             derived=MappingProxyType(dict(derived)),
         )
 

@@ -13,6 +13,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from ..engine.diagnostics.ratio_study import prb
+from ..engine.spread import SPREAD_METHOD_TEXT
 from .content import Block, Facts, Notice, Paragraph, Table
 from .labels import (
     BREUSCH_PAGAN_FORMS,
@@ -182,13 +183,48 @@ def _accuracy(acc: Mapping, currency: str) -> list[Block]:
                     f"{plain(cov.get('n'))} sales)",
                 )
             )
+    seg = acc.get("coverage_by_segment") or {}
+    worst = seg.get("worst")
+    if seg:
+        rows.append(("Interval spread", SPREAD_METHOD_TEXT.get(seg.get("spread"), "")))
+    if worst:
+        rows.append(
+            (
+                "Worst segment's coverage",
+                f"{percent(worst.get('coverage'), 1)} ({worst.get('by')} {worst.get('segment')})",
+            )
+        )
     kf = acc.get("kfold") or {}
     if kf:
         rows.append((f"{plain(kf.get('folds'))}-fold RMSE", money(kf.get("rmse_price"), currency)))
         rows.append(
             (f"{plain(kf.get('folds'))}-fold median absolute % error", _pct_points(kf.get("mdape")))
         )
-    return [Facts(tuple(rows), "Accuracy on sales left out of the fit")] if rows else []
+    out: list[Block] = [Facts(tuple(rows), "Accuracy on sales left out of the fit")] if rows else []
+    segs = seg.get("segments") or ()
+    if segs:
+        nominal = seg.get("nominal")
+        out.append(
+            Table(
+                key="coverage-by-segment",
+                title="Coverage of the leave-one-out intervals by segment",
+                columns=("Split by", "Segment", "Sales", "Coverage", "Against nominal"),
+                rows=tuple(
+                    (
+                        str(s.get("by")),
+                        str(s.get("segment")),
+                        plain(s.get("n")),
+                        percent(s.get("coverage"), 1),
+                        "thin" if s.get("thin") else ("outside" if s.get("outside") else "within"),
+                    )
+                    for s in segs
+                ),
+                note=f"Nominal {percent(nominal, 1)}; a segment more than "
+                f"{plain(seg.get('outside_points'))} points away is marked outside; under "
+                f"{plain(seg.get('thin_below'))} sales it is marked thin and not judged.",
+            )
+        )
+    return out
 
 
 def _pct_points(x: Any) -> str:

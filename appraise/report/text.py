@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 from ..engine.diagnostics import Diagnostics
+from ..engine.diagnostics.coverage import OUTSIDE_POINTS
 from ..engine.fitting import COEF_CI_LEVEL, FitResult
+from ..engine.spread import SPREAD_METHOD_TEXT
 from ..engine.valuation import Valuation
 from .diagnostics_section import PRB_CI_LEVEL
 from .effects import coefficient_effects
@@ -198,6 +200,33 @@ def _accuracy_lines(d: Diagnostics) -> list[str]:
     ]
     if kf.n_unpredictable:
         out.append(f"  {kf.n_unpredictable} sale(s) could not be predicted from the other folds")
+    out.extend(coverage_lines(d))
+    return out
+
+
+def coverage_lines(d: Diagnostics) -> list[str]:
+    """Coverage of the leave-one-out intervals by segment, marked where it strays."""
+    c = d.coverage
+    if c is None or not c.segments:
+        return []
+    spread = SPREAD_METHOD_TEXT.get(c.spread, c.spread)
+    out = [
+        f"Coverage by segment, nominal {percent(c.level, 1)}, marked beyond "
+        f"{OUTSIDE_POINTS:g} points ({spread})"
+    ]
+    w = max(len(s.label) for s in c.segments)
+    last = None
+    for s in c.segments:
+        if s.by != last:
+            out.append(f"  by {s.by}")
+            last = s.by
+        mark = "  thin" if s.thin else ("  OUTSIDE" if s.outside(c.level) else "")
+        out.append(f"    {s.label:<{w}} {s.n:>6,} sales  {percent(s.coverage, 1):>6}{mark}")
+    worst = c.worst()
+    if worst is not None:
+        out.append(
+            f"  worst: {worst.by} {worst.label}, {percent(worst.coverage, 1)} of its sales"
+        )
     return out
 
 

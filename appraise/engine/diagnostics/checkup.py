@@ -7,13 +7,17 @@ the model n times (k-fold cross-validation refits it k times).
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
+import pandas as pd
 
+from ..errors import AppraiseError
 from .collinearity import Collinearity, TermGroupRef, collinearity
+from .coverage import SegmentCoverage, coverage_by_segment, fifths
 from .crossval import KFold, LeaveOneOut, kfold, leave_one_out
 from .decomposition import decompose
 from .influence import Influence, SaleFlag, Thresholds, flag_sales, influence, thresholds
@@ -55,6 +59,8 @@ class Diagnostics:
     kfold: KFold
     ratio_study: RatioStudy
     warnings: tuple[str, ...]
+    coverage: SegmentCoverage | None = None
+    """Coverage of the leave-one-out intervals by segment (:mod:`.coverage`)."""
 
     def flag_for_row(self, row: int) -> SaleFlag | None:
         """The flag of the sale at file row ``row``, if it has one."""
@@ -122,6 +128,9 @@ class Diagnostics:
                     "accuracy": {
                         "leave_one_out": self.loo.to_dict(),
                         "kfold": self.kfold.to_dict(),
+                        "coverage_by_segment": None
+                        if self.coverage is None
+                        else self.coverage.to_dict(),
                     },
                     "ratio_study": self.ratio_study.to_dict(),
                 },
@@ -263,9 +272,10 @@ def term_groups(names: Sequence[str], groups: Sequence) -> tuple[TermGroupRef, .
 
 
 def diagnose(fit: FitResult, settings: DiagnosticSettings = DEFAULT_SETTINGS) -> Diagnostics:
-    """Check a fitted model: influence, collinearity, residual tests, accuracy, ratio study."""
+    """Check a fitted model: influence, collinearity, residual tests, accuracy, ratio study,
+    and the coverage of the leave-one-out intervals by segment."""
     names = tuple(fit.design.names)
-    return diagnose_arrays(
+    d = diagnose_arrays(
         fit.X,
         fit.y,
         fit.price,
@@ -279,3 +289,59 @@ def diagnose(fit: FitResult, settings: DiagnosticSettings = DEFAULT_SETTINGS) ->
         settings=settings,
         spread=fit.spread,
     )
+    coverage = coverage_by_segment(
+        d.loo.inside,
+        np.isfinite(d.loo.low),
+        coverage_splits(fit, settings.coverage_term),
+        level=d.level,
+        spread="constant" if fit.spread is None else "modelled",
+    )
+    extra = tuple(
+        f"leave-one-out coverage {100 * s.coverage:.0f}% for {s.by} {s.label} ({s.n} sales) "
+        f"against the nominal {100 * d.level:.0f}%: the intervals there are "
+        + ("too narrow" if s.coverage < d.level else "too wide")
+        for s in coverage.outside()
+    )
+    return dataclasses.replace(d, coverage=coverage, warnings=(*d.warnings, *extra))
+
+
+def coverage_splits(fit: FitResult, term: str | None) -> dict[str, np.ndarray]:
+    """The splits of :func:`.coverage.coverage_by_segment` for ``fit``: fifths of the
+    predicted price, the regions, and ``term`` (a column or role) when given."""
+    splits: dict[str, np.ndarray] = {"predicted price": fifths(fit.fitted)}
+    region = fit.sales.roles.column("region")
+    if region is not None and region in fit.frame.columns:
+        splits["region"] = fit.frame[region].to_numpy(dtype=object)
+    if term:
+        col = term if term in fit.frame.columns else fit.sales.roles.column(term)
+        if col is not None and col in fit.frame.columns:
+            values = pd.to_numeric(fit.frame[col], errors="coerce")
+            if values.notna().mean() > 0.95 and values.nunique() > 5:
+                splits[term] = fifths(values.to_numpy(dtype=float))
+            else:
+                splits[term] = fit.frame[col].to_numpy(dtype=object)
+        else:  # a derived variable or an expression with one number per sale
+            from ..design import learn_design
+
+            try:
+                design = learn_design(
+                    [term],
+                    fit.frame,
+                    derived=fit.spec.derived,
+                    roles=fit.sales.roles,
+                    intercept=False,
+                )
+                built = design.build(fit.frame, unseen="flag")
+            except AppraiseError as exc:
+                raise AppraiseError(
+                    f"coverage term {term!r} is not a column, a role or an expression: {exc}"
+                ) from None
+            m = np.asarray(built.matrix, dtype=float)
+            if m.shape[1] != 1:
+                raise AppraiseError(
+                    f"coverage term {term!r} gives {m.shape[1]} columns; name one column, "
+                    "role or number per sale"
+                )
+            values = np.where(np.asarray(built.row_ok, dtype=bool), m[:, 0], np.nan)
+            splits[term] = fifths(values)
+    return splits

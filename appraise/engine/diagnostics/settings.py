@@ -54,6 +54,10 @@ class DiagnosticSettings:
     level:
         Level of the leave-one-out prediction intervals whose coverage is measured;
         ``None`` uses the model file's level.
+    coverage_term:
+        A column or role by which to split the coverage of the leave-one-out intervals
+        besides the fifths of predicted price and the regions (fifths when numeric,
+        levels otherwise); ``None``: none.
     """
 
     leverage_multiple: float = 3.0
@@ -68,6 +72,7 @@ class DiagnosticSettings:
     seed: int = 0
     trim: bool = False
     level: float | None = None
+    coverage_term: str | None = None
 
     def __post_init__(self) -> None:
         if self.folds < 2:
