@@ -19,61 +19,92 @@ impossible dates...) goes to the per-cell parser, so its reason text is unchange
 
 from __future__ import annotations
 
-import re
 from collections.abc import Callable
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from .cells import MISSING_MARKERS, is_missing
 
+_WS = r"[ \t\n\v\f\r]*"  # the ASCII white space str.strip() removes
+_PLAIN_ASCII = r"^[\t\n\v\f\r\x20-\x7e]*$"
+"""Texts the fast paths may decide: printable ASCII and ASCII white space only (so that
+``str.strip`` and ``str.lower`` act on them as the patterns below assume)."""
+
 _FAST_NUMBER = {
-    ".": re.compile(r"-?\$?(?:[0-9]{1,3}(?:,[0-9]{3})+|[0-9]+)(?:\.[0-9]*)?"),
-    ",": re.compile(r"-?\$?(?:[0-9]{1,3}(?:\.[0-9]{3})+|[0-9]+)(?:,[0-9]*)?"),
+    ".": r"-?\$?(?:[0-9]{1,3}(?:,[0-9]{3})+|[0-9]+)(?:\.[0-9]*)?",
+    ",": r"-?\$?(?:[0-9]{1,3}(?:\.[0-9]{3})+|[0-9]+)(?:,[0-9]*)?",
 }
-_FAST_DATE = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}")
+_FAST_DATE = r"[0-9]{4}-[0-9]{2}-[0-9]{2}"
 _FIRST_YEAR, _LAST_YEAR = 1678, 2261  # as cells.parse_date (datetime64[ns] range)
 
 
-def _str_positions(values: np.ndarray) -> np.ndarray:
-    """Positions of the plain ``str`` entries of an object array."""
-    if values.dtype.kind == "U":
-        return np.arange(len(values))
-    return np.flatnonzero([type(v) is str for v in values])
+def _marker_pattern() -> str:
+    def esc(m: str) -> str:
+        return "".join(ch if ch.isalnum() or ch == "/" else "\\" + ch for ch in m)
+
+    return "^" + _WS + "(?:" + "|".join(esc(m) for m in sorted(MISSING_MARKERS)) + ")" + _WS + "$"
+
+
+_MARKERS = _marker_pattern()
+
+
+def _whole(pattern: str) -> str:
+    return "^" + _WS + pattern + _WS + "$"
+
+
+def _texts(values: np.ndarray) -> tuple[np.ndarray, pa.Array, np.ndarray]:
+    """The plain ``str`` entries: their positions, as an Arrow array, and which are plain
+    ASCII (the ones a fast path may decide)."""
+    if len(values) and pd.api.types.infer_dtype(values, skipna=False) == "string":
+        at = np.arange(len(values))
+    else:
+        at = np.flatnonzero([type(v) is str for v in values])
+    arr = pa.array(values[at], type=pa.string())
+    plain = pc.match_substring_regex(arr, _PLAIN_ASCII).to_numpy(zero_copy_only=False)
+    return at, arr, plain
+
+
+def _is(arr: pa.Array, pattern: str, ignore_case: bool = False) -> np.ndarray:
+    found = pc.match_substring_regex(arr, pattern, ignore_case=ignore_case)
+    return found.to_numpy(zero_copy_only=False).astype(bool)
 
 
 def missing_mask(values: np.ndarray) -> np.ndarray:
-    """:func:`~appraise.engine.cells.is_missing` of every entry, texts tested at once."""
-    values = np.asarray(values, dtype=object) if values.dtype.kind != "f" else values
+    """:func:`~appraise.engine.cells.is_missing` of every entry, plain texts tested at once."""
     if values.dtype.kind == "f":
         return np.isnan(values)
+    values = np.asarray(values, dtype=object)
     out = np.zeros(len(values), dtype=bool)
-    at = _str_positions(values)
+    decided = np.zeros(len(values), dtype=bool)
+    at, arr, plain = _texts(values)
     if len(at):
-        texts = pd.Series(values[at], dtype=object)
-        out[at] = texts.str.strip().str.lower().isin(MISSING_MARKERS).to_numpy()
-    if len(at) < len(values):
-        rest = np.ones(len(values), dtype=bool)
-        rest[at] = False
-        out[rest] = [is_missing(v) for v in values[rest]]
+        out[at] = _is(arr, _MARKERS, ignore_case=True) & plain
+        decided[at] = plain
+    rest = np.flatnonzero(~decided)
+    out[rest] = [is_missing(v) for v in values[rest]]
     return out
+
+
+def _is_blank(v: object) -> bool:
+    return v is None or (isinstance(v, float) and v != v) or (isinstance(v, str) and not v.strip())
 
 
 def blank_mask(values: np.ndarray) -> np.ndarray:
     """True where an entry holds nothing at all: None, NaN or only white space."""
     if values.dtype.kind == "f":
         return np.isnan(values)
+    values = np.asarray(values, dtype=object)
     out = np.zeros(len(values), dtype=bool)
-    at = _str_positions(values)
+    decided = np.zeros(len(values), dtype=bool)
+    at, arr, plain = _texts(values)
     if len(at):
-        out[at] = (pd.Series(values[at], dtype=object).str.strip() == "").to_numpy()
-    if len(at) < len(values):
-        rest = np.ones(len(values), dtype=bool)
-        rest[at] = False
-        out[rest] = [
-            v is None or (isinstance(v, float) and v != v) or (isinstance(v, str) and not v.strip())
-            for v in values[rest]
-        ]
+        out[at] = _is(arr, "^" + _WS + "$") & plain
+        decided[at] = plain
+    rest = np.flatnonzero(~decided)
+    out[rest] = [_is_blank(v) for v in values[rest]]
     return out
 
 
@@ -81,8 +112,8 @@ def fast_numbers(values: np.ndarray, decimal: str = ".") -> tuple[np.ndarray, np
     """Numbers read from the entries whose shape makes the reading certain.
 
     Returns ``(numbers, decided)``: ``numbers[i]`` is the value where ``decided[i]``,
-    NaN elsewhere. Typed finite numbers are decided as they are; texts are decided
-    when they fit the strict pattern of the module docstring.
+    NaN elsewhere. Typed finite numbers are decided as they are; plain-ASCII texts are
+    decided when they fit the strict pattern of the module docstring.
     """
     n = len(values)
     numbers = np.full(n, np.nan)
@@ -92,19 +123,18 @@ def fast_numbers(values: np.ndarray, decimal: str = ".") -> tuple[np.ndarray, np
         decided = np.isfinite(v)
         numbers[decided] = v[decided]
         return numbers, decided
-    at = _str_positions(values)
+    at, arr, plain = _texts(values)
     if len(at):
-        texts = pd.Series(values[at], dtype=object).str.strip()
-        match = texts.str.fullmatch(_FAST_NUMBER[decimal].pattern).to_numpy(dtype=bool)
+        match = _is(arr, _whole(_FAST_NUMBER[decimal])) & plain
         if match.any():
             group = "," if decimal == "." else "."
-            digits = texts[match].str.replace("$", "", regex=False)
-            digits = digits.str.replace(group, "", regex=False)
+            digits = pc.utf8_trim_whitespace(arr.filter(pa.array(match)))
+            digits = pc.replace_substring(digits, "$", "")
+            digits = pc.replace_substring(digits, group, "")
             if decimal == ",":
-                digits = digits.str.replace(",", ".", regex=False)
-            parsed = digits.to_numpy(dtype=str).astype(np.float64)
+                digits = pc.replace_substring(digits, ",", ".")
             pos = at[match]
-            numbers[pos] = parsed
+            numbers[pos] = pc.cast(digits, pa.float64()).to_numpy(zero_copy_only=False)
             decided[pos] = True
     typed = np.array([_finite_plain_number(v) for v in values], dtype=bool) & ~decided
     if typed.any():
@@ -124,18 +154,23 @@ def fast_iso_dates(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     n = len(values)
     out = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
     decided = np.zeros(n, dtype=bool)
-    at = _str_positions(values)
+    if values.dtype.kind != "O":
+        return out, decided
+    at, arr, plain = _texts(values)
     if not len(at):
         return out, decided
-    texts = pd.Series(values[at], dtype=object).str.strip()
-    match = texts.str.fullmatch(_FAST_DATE.pattern).to_numpy(dtype=bool)
+    match = _is(arr, _whole(_FAST_DATE)) & plain
     if not match.any():
         return out, decided
-    years = texts[match].str.slice(0, 4).astype(int).to_numpy()
+    texts = pc.utf8_trim_whitespace(arr.filter(pa.array(match)))
+    years = pc.cast(pc.utf8_slice_codeunits(texts, 0, 4), pa.int32()).to_numpy()
     in_range = (years >= _FIRST_YEAR) & (years <= _LAST_YEAR)
-    dates = pd.to_datetime(texts[match], format="%Y-%m-%d", errors="coerce")
-    dates = dates.to_numpy(dtype="datetime64[ns]")
-    good = in_range & ~np.isnat(dates)
+    parsed = pc.strptime(texts, format="%Y-%m-%d", unit="ns", error_is_null=True)
+    # a day the month does not have may roll over: keep only dates that print back as written
+    same = pc.equal(pc.strftime(parsed, format="%Y-%m-%d"), texts)
+    same = pc.fill_null(same, False).to_numpy(zero_copy_only=False).astype(bool)
+    dates = parsed.to_numpy(zero_copy_only=False).astype("datetime64[ns]")
+    good = in_range & same & ~np.isnat(dates)
     pos = at[match][good]
     out[pos] = dates[good]
     decided[pos] = True

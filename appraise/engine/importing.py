@@ -32,6 +32,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from .cell_columns import blank_mask, fast_iso_dates, fast_numbers, missing_mask
 from .cells import (
     area_unit_of,
     clean_text,
@@ -82,7 +83,7 @@ class RawTable:
     """
 
     headers: list[object]
-    columns: list[list[object]]
+    columns: list[list[object] | np.ndarray]  # an array: a typed Parquet number column
     fmt: str
     notes: list[str] = field(default_factory=list)
     long_rows: dict[int, int] = field(default_factory=dict)  # position -> values in the row
@@ -175,6 +176,13 @@ def _read_csv(path: Path, data: bytes) -> RawTable:
     delimiter = sniff_delimiter(text)
     if delimiter != ",":
         notes.append(f"values separated by {_DELIMITER_NAMES[delimiter]}")
+    fast = _read_csv_columns(text, delimiter)
+    if fast is not None:
+        header, columns, trailing = fast
+        if trailing:
+            k = trailing
+            notes.append(f"{k} blank row{'s' if k > 1 else ''} after the last sale ignored")
+        return RawTable(header, columns, "csv", notes, {})
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     try:
         rows = list(reader)
@@ -197,6 +205,62 @@ def _read_csv(path: Path, data: bytes) -> RawTable:
             else:
                 body[i] = row[:width]
     return RawTable(list(header), _columns_from_rows(body, width, ""), "csv", notes, long_rows)
+
+
+def _read_csv_columns(text: str, delimiter: str) -> tuple[list[str], list, int] | None:
+    """The cells of a regular CSV file read by pandas' C parser, column by column.
+
+    Returns ``(header, columns, trailing blank rows dropped)``, or None when the file is
+    not one this path reads exactly as :mod:`csv` does: a row longer than the header, a
+    quoting the C parser refuses, a NUL character, nothing but blank rows. The caller
+    then reads it row by row. Short rows are padded with ``""`` and a blank line is a row
+    of ``""``, as the row-by-row reader gives them.
+    """
+    if "\x00" in text:
+        return None
+    try:
+        frame = pd.read_csv(
+            io.StringIO(text),
+            sep=delimiter,
+            header=None,
+            dtype=object,
+            na_filter=False,
+            keep_default_na=False,
+            skip_blank_lines=False,
+            engine="c",
+            quotechar='"',
+            doublequote=True,
+            skipinitialspace=False,
+            low_memory=False,
+        )
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError, csv.Error):
+        return None
+    if frame.shape[0] < 2:
+        return None
+    cells = [frame[c].to_numpy(dtype=object) for c in frame.columns]
+    cells = [np.where(pd.isna(col), "", col).astype(object) for col in cells]
+    last = _last_filled_row(cells, frame.shape[0])
+    if last <= 0:
+        return None  # a header and blank rows only: the row-by-row reader says why
+    header = [str(v) for v in (col[0] for col in cells)]
+    columns = [col[1 : last + 1] for col in cells]
+    return header, columns, frame.shape[0] - 1 - last
+
+
+def _last_filled_row(cells: list[np.ndarray], n: int) -> int:
+    """Position of the last row holding anything but white space (-1: none), looking at
+    the end of the file first (blank rows, when there are any, trail the sales)."""
+    tail = 64
+    while True:
+        lo = max(n - tail, 0)
+        filled = np.zeros(n - lo, dtype=bool)
+        for col in cells:
+            filled |= ~blank_mask(col[lo:])
+        if filled.any():
+            return lo + int(np.flatnonzero(filled)[-1])
+        if lo == 0:
+            return -1
+        tail *= 16
 
 
 def _read_xlsx(path: Path, sheet: str | int) -> RawTable:
@@ -257,8 +321,13 @@ def _read_parquet(path: Path) -> RawTable:
         raise DataError("the Parquet file has no columns", file=str(path))
     columns = []
     for i in range(table.num_columns):
-        values = table.column(i).to_pylist()
-        if pa.types.is_nested(table.schema.field(i).type):  # lists and records: read as text
+        kind = table.schema.field(i).type
+        column = table.column(i)
+        if pa.types.is_floating(kind) or (pa.types.is_integer(kind) and column.null_count == 0):
+            columns.append(column.to_numpy())  # typed numbers taken as they are (null -> NaN)
+            continue
+        values = column.to_pylist()
+        if pa.types.is_nested(kind):  # lists and records: read as text
             values = [None if v is None else str(v) for v in values]
         columns.append(values)
     return RawTable(list(table.column_names), columns, "parquet")
@@ -324,20 +393,28 @@ class _Distinct:
     counts: np.ndarray
     blank: np.ndarray
     void: np.ndarray  # per cell: nothing at all (None, NaN, white space), not even a marker
+    array: np.ndarray  # ``uniques`` as an array (object, or float for a typed float column)
 
     @classmethod
-    def of(cls, values: Sequence[object]) -> _Distinct:
-        cells = np.empty(len(values), dtype=object)
-        cells[:] = values
+    def of(cls, values: Sequence[object] | np.ndarray) -> _Distinct:
+        if isinstance(values, np.ndarray) and values.dtype.kind in "fiu":
+            cells = values  # a typed Parquet column: hashed as numbers, NaN the sentinel
+        else:
+            cells = np.empty(len(values), dtype=object)
+            cells[:] = values
         codes, uniques = pd.factorize(cells, use_na_sentinel=True)
+        uniques = np.asarray(uniques)
         k = len(uniques)
-        seen = codes >= 0
-        _, at = np.unique(codes[seen], return_index=True)
-        first = np.flatnonzero(seen)[at]  # factorize numbers values by first appearance
-        counts = np.bincount(codes[seen], minlength=k)
-        blank = np.array([is_missing(u) for u in uniques], dtype=bool)
-        void = np.array([_blank(u) for u in uniques] + [True], dtype=bool)[codes]
-        return cls(codes, list(uniques), first, counts, blank, void)
+        # factorize numbers the distinct values by first appearance: a code's first cell
+        # is where the running maximum of the codes first reaches it
+        seen = np.flatnonzero(codes >= 0)
+        c = codes[seen]
+        before = np.maximum.accumulate(np.concatenate(([-1], c[:-1]))) if len(c) else c
+        first = seen[c > before]
+        counts = np.bincount(c, minlength=k)
+        blank = missing_mask(uniques) if k else np.zeros(0, dtype=bool)
+        void = np.append(blank_mask(uniques) if k else np.zeros(0, dtype=bool), True)[codes]
+        return cls(codes, list(uniques), first, counts, blank, void, uniques)
 
     def spread(self, per_unique: np.ndarray, fill: object) -> np.ndarray:
         """Per-cell array from one value per distinct cell; ``fill`` where there is no cell."""
@@ -427,14 +504,34 @@ def infer_kind(values: Sequence[object] | _Distinct, settings: ImportSettings) -
 
 
 def _clean_floats(
-    d: _Distinct, kind: str, parse: Callable[[object], object], area: bool = False
+    d: _Distinct,
+    kind: str,
+    parse: Callable[[object], object],
+    area: bool = False,
+    decimal: str | None = None,
 ) -> _Clean:
-    """Numbers, or flags as 1.0/0.0: NaN where missing or unreadable."""
-    parsed, reasons = d.parse(parse)
-    per_unique = np.array([np.nan if v is None else float(v) for v in parsed], dtype=float)
+    """Numbers, or flags as 1.0/0.0: NaN where missing or unreadable.
+
+    With ``decimal`` (numbers), the distinct cells whose reading is certain from their
+    shape are read at once (:func:`.cell_columns.fast_numbers`); ``parse`` reads the rest.
+    """
+    k = len(d.uniques)
+    per_unique = np.full(k, np.nan)
+    reasons: list[str | None] = [None] * k
+    decided = np.zeros(k, dtype=bool)
+    if decimal is not None and k:
+        got, decided = fast_numbers(d.array, decimal)
+        decided &= ~d.blank
+        per_unique[decided] = got[decided]
+    for j in np.flatnonzero(~decided & ~d.blank):
+        try:
+            per_unique[j] = float(parse(d.uniques[j]))  # type: ignore[arg-type]
+        except ValueError as exc:
+            reasons[j] = str(exc)
     col = _Clean.build(kind, d, d.spread(per_unique, np.nan), reasons)
     if area:
-        for u, r, c in zip(d.uniques, reasons, d.counts, strict=True):
+        for j in np.flatnonzero(~decided):  # a cell read at once names no unit
+            u, r, c = d.uniques[j], reasons[j], d.counts[j]
             unit = area_unit_of(u) if isinstance(u, str) and r is None else None
             if unit is not None:
                 col.units[unit] = col.units.get(unit, 0) + int(c)
@@ -450,21 +547,36 @@ def _clean_dates(
     column: str,
 ) -> _Clean:
     order = settings.date_order
-    parsed, reasons = d.parse(partial(parse_date, order=order, serial_ok=serial_ok))
+    k = len(d.uniques)
+    # YYYY-MM-DD cells are read at once (form "iso"); parse_date reads the others
+    per_unique, decided = fast_iso_dates(d.array) if k else (np.zeros(0, "M8[ns]"), d.blank)
+    decided &= ~d.blank
+    parsed: list[object] = [None] * k
+    reasons: list[str | None] = [None] * k
+    parse = partial(parse_date, order=order, serial_ok=serial_ok)
+    for j in np.flatnonzero(~decided & ~d.blank):
+        try:
+            parsed[j] = parse(d.uniques[j])
+        except ValueError as exc:
+            reasons[j] = str(exc)
     first: dict[str, tuple[int, str]] = {}
     forms: dict[str, int] = {}
+    if decided.any():
+        at = np.flatnonzero(decided)
+        forms["iso"] = int(d.counts[at].sum())
+        j = int(at[np.argmin(d.first[at])])
+        first["iso"] = (int(d.first[j]), clean_text(d.uniques[j]))
     for j, reading in enumerate(parsed):
         if reading is None:
             continue
         forms[reading.form] = forms.get(reading.form, 0) + int(d.counts[j])
         if reading.form not in first or d.first[j] < first[reading.form][0]:
             first[reading.form] = (int(d.first[j]), clean_text(d.uniques[j]))
+        if reading.value is not None:
+            per_unique[j] = np.datetime64(reading.value, "ns")
     problem = date_order_problem(first, order)
     if problem is not None:
         raise DataError(problem[1], file=file, row=problem[0] + FIRST_DATA_ROW, column=column)
-    per_unique = np.array(
-        [None if r is None else r.value for r in parsed], dtype="datetime64[ns]"
-    ).reshape(-1)
     col = _Clean.build("date", d, d.spread(per_unique, np.datetime64("NaT")), reasons)
     col.forms = forms
     return col
@@ -509,10 +621,13 @@ def date_order_problem(first: dict[str, tuple[int, str]], order: str) -> tuple[i
 
 
 def _clean_texts(d: _Distinct) -> _Clean:
-    per_unique = np.array(
-        [None if blank else clean_text(u) for u, blank in zip(d.uniques, d.blank, strict=True)],
-        dtype=object,
-    )
+    per_unique = np.full(len(d.uniques), None, dtype=object)
+    if len(d.uniques):
+        plain = np.array([type(u) is str for u in d.uniques], dtype=bool) & ~d.blank
+        texts = pd.Series(d.array[plain], dtype=object).str.strip()  # clean_text of a str
+        per_unique[plain] = texts.to_numpy(dtype=object)
+        other = ~plain & ~d.blank
+        per_unique[other] = [clean_text(u) for u in d.array[other]]
     return _Clean.build("text", d, d.spread(per_unique, None), [None] * len(d.uniques))
 
 
@@ -527,7 +642,7 @@ def _clean_column(
     column: str,
 ) -> _Clean:
     if kind == "number":
-        return _clean_floats(d, kind, _number_parse(settings), area)
+        return _clean_floats(d, kind, _number_parse(settings), area, settings.decimal)
     if kind == "date":
         return _clean_dates(d, settings, serial_ok, file=file, column=column)
     if kind == "flag":

@@ -43,6 +43,7 @@ from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
+import pandas as pd
 
 from .cells import clean_text, parse_number
 
@@ -252,6 +253,20 @@ class DecimalDecision:
     evidence: Mapping[str, int]
 
 
+def _distinct_texts(cells: Sequence[object]) -> dict[str, int]:
+    """Each distinct text cell holding a separator, with its count, in order of first
+    appearance (cells are hashed once by pandas; only distinct texts are searched)."""
+    values = np.empty(len(cells), dtype=object)
+    values[:] = cells
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    counts = np.bincount(codes[codes >= 0], minlength=len(uniques))
+    return {
+        u: int(c)
+        for u, c in zip(uniques, counts, strict=True)
+        if isinstance(u, str) and _SEPARATED.search(u)
+    }
+
+
 def decide_decimal_mark(
     columns: Mapping[str, Sequence[object]],
     setting: str,
@@ -272,10 +287,7 @@ def decide_decimal_mark(
     example_amb: str | None = None
     example_ev: dict[str, str] = {}
     for cells in columns.values():
-        texts: dict[str, int] = {}
-        for v in cells:
-            if isinstance(v, str) and _SEPARATED.search(v):
-                texts[v] = texts.get(v, 0) + 1
+        texts = _distinct_texts(cells)
         for text, count in texts.items():
             if _AMBIGUOUS.fullmatch(text.strip()):
                 ambiguous += count
