@@ -577,6 +577,12 @@ def find_region_term(fit: FitResult, term: str | None = None) -> RegionTerm:
         )
     g = hit[0]
     pos = {c: j for j, c in enumerate(fit.names)}
+    missing = [c for c in g.columns if c not in pos]
+    if missing:
+        raise ModelFileError(
+            f"{g.expression}: the fit holds no coefficients for {', '.join(missing)}, so the "
+            "region effects cannot be read from it"
+        )
     cols: list[str | None] = []
     for lv in g.levels:
         if lv == g.reference:

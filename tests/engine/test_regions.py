@@ -120,12 +120,16 @@ def test_incinerator_difference_in_differences_with_onehot_and_product(
 
 
 # --- items 1, 2 and 8: effects, effect coding, joint test, Holm, against statsmodels ------
-@pytest.fixture(scope="module")
-def nbh_case(kielmc):
+SM_COV = {"classical": "nonrobust", "HC1": "HC1", "HC3": "HC3"}
+
+
+@pytest.fixture(scope="module", params=["classical", "HC1", "HC3"])
+def nbh_case(kielmc, request):
+    cov = request.param
     frame = kielmc.assign(nbh=kielmc["nbh"].astype(int).astype(str))
-    fit = _fit(frame, ["area", "age", "onehot(nbh, ref='0')"], response="log", cov="HC1")
+    fit = _fit(frame, ["area", "age", "onehot(nbh, ref='0')"], response="log", cov=cov)
     ref = smf.ols("np.log(rprice) ~ area + age + C(nbh, Treatment('0'))", frame).fit(
-        cov_type="HC1", use_t=True
+        cov_type=SM_COV[cov], use_t=True
     )
     return frame, fit, ref, analyse_regions(fit, strata=False)
 
@@ -157,7 +161,7 @@ def test_effect_coding_matches_sum_to_zero_coding_without_a_refit(nbh_case):
     frame, _, _, ra = nbh_case
     levels = sorted(frame["nbh"].unique())
     ref = smf.ols("np.log(rprice) ~ area + age + C(nbh, Sum)", frame).fit(
-        cov_type="HC1", use_t=True
+        cov_type=SM_COV[nbh_case[1].cov_type], use_t=True
     )
     for lv in levels[:-1]:  # Sum coding (levels sorted) leaves out the last level
         name = f"C(nbh, Sum)[S.{lv}]"
@@ -244,6 +248,25 @@ def test_slopes_of_a_fully_interacted_model_equal_separate_fits_per_region(kielm
     inter = [n for n in ref.params.index if ":" in n]
     ft = ref.f_test(", ".join(f"{n} = 0" for n in inter))
     assert_allclose(slopes.equal_slopes.statistic, float(np.squeeze(ft.fvalue)), rtol=1e-8)
+
+
+def test_thin_and_single_sale_regions_are_marked_and_kept_out_of_the_tests(kielmc):
+    frame = kielmc.assign(nbh=kielmc["nbh"].astype(int).astype(str))
+    frame.loc[0, "nbh"] = "lonely"  # one sale alone in a level
+    fit = _fit(frame, ["area", "age", "onehot(nbh, ref='0')"])
+    ra = analyse_regions(fit, strata=False, min_sales=10)
+    lonely = ra.effect("lonely")
+    assert lonely.count == 1 and not lonely.estimable and math.isnan(lonely.effect.se)
+    assert ra.effect("3").thin and not ra.effect("4").thin  # 7 and 60 sales (value_counts)
+    assert any("'3' has only 7 sales" in w for w in ra.warnings)
+    assert "nbh[lonely]" not in ra.joint.columns and ra.joint.df_num == 6
+    assert all("lonely" not in (c.first, c.second) for c in ra.pairwise)
+    assert "lonely" not in ra.groups.order
+    # the joint test without the lone level equals statsmodels' f_test on the same fit
+    ref = smf.ols("rprice ~ area + age + C(nbh, Treatment('0'))", frame).fit()
+    names = [n for n in ref.params.index if n.startswith("C(nbh") and "lonely" not in n]
+    R = np.array([[1.0 if m == n else 0.0 for m in ref.params.index] for n in names])
+    assert_allclose(ra.joint.statistic, float(np.squeeze(ref.f_test(R).fvalue)), rtol=1e-8)
 
 
 def test_missing_region_term_is_a_user_error(kielmc):
