@@ -52,6 +52,7 @@ from .session import (
 from .settings_dialog import SettingsDialog
 from .start_page import StartPage
 from .subject_view import SubjectView
+from .undo import SessionHistory
 from .worksheet_view import WorksheetView
 
 OPEN_FILTER = (
@@ -162,6 +163,9 @@ class MainWindow(QMainWindow):
         bar.addPermanentWidget(self.fit_label)
         bar.addPermanentWidget(self.caution_label)
 
+        # undo and redo of every change to the model, roles, exclusions and subject
+        self.history = SessionHistory(session, self)
+        self.undo_action, self.redo_action = self.history.make_actions(self)
         self._build_menus()
         self._connect()
         self._progress: QProgressDialog | None = None
@@ -203,6 +207,9 @@ class MainWindow(QMainWindow):
         file_menu.addAction(a.quit)
 
         edit_menu = bar.addMenu("&Edit")
+        edit_menu.addAction(self.undo_action)
+        edit_menu.addAction(self.redo_action)
+        edit_menu.addSeparator()
         edit_menu.addAction(a.find)
         edit_menu.addAction(a.exclude)
         edit_menu.addAction(a.include)

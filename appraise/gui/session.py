@@ -639,6 +639,15 @@ class Session(QObject):
             self.exclusionsChanged.emit()
             self.request_refit()
 
+    def set_user_exclusions(self, exclusions: tuple[Exclusion, ...]) -> None:
+        """Replace the user's exclusions as a whole (what undo and redo put back)."""
+        exclusions = tuple(exclusions)
+        if exclusions == self._user_exclusions:
+            return
+        self._user_exclusions = exclusions
+        self.exclusionsChanged.emit()
+        self.request_refit()
+
     def can_include(self, row: int) -> bool:
         """Whether the sale at ``row`` was left out by the user or by the model file's list."""
         if any(e.row == row for e in self._user_exclusions):
