@@ -114,7 +114,7 @@ def load_json_text(
     depth = nesting_depth(text)
     if depth > MAX_NESTING:
         raise error(
-            f"{what} is nested {depth} levels deep; the limit is {MAX_NESTING}", file=source
+            f"{what} is nested {depth:,} levels deep; the limit is {MAX_NESTING}", file=source
         )
     try:
         return json.loads(text, parse_int=limited_int)
@@ -140,7 +140,7 @@ def load_toml_text(
     depth = nesting_depth(text, toml=True)
     if depth > MAX_NESTING:
         raise error(
-            f"{what} is nested {depth} levels deep; the limit is {MAX_NESTING}", file=source
+            f"{what} is nested {depth:,} levels deep; the limit is {MAX_NESTING}", file=source
         )
     try:
         return tomllib.loads(text)

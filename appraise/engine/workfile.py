@@ -507,7 +507,7 @@ def load_workfile_text(raw: bytes, src: str) -> WorkfileState:
     depth = nesting_depth(text)
     if depth > MAX_NESTING:
         raise WorkfileError(
-            f"not a workfile: nested {depth} levels deep; the limit is {MAX_NESTING}", file=src
+            f"not a workfile: nested {depth:,} levels deep; the limit is {MAX_NESTING}", file=src
         )
     try:
         doc = json.loads(text, parse_int=limited_int)
@@ -567,7 +567,7 @@ def _state_from_doc(doc: dict, src: str) -> WorkfileState:
             raise WorkfileError("'sales.embedded.encoding' must be \"base64\"", file=src)
         data = need(emb_doc, "data", str, "sales.embedded")
         hint = next((Path(x).suffix for x in (rel, absolute) if isinstance(x, str)), None)
-        name = safe_base_name(name, fallback_suffix=hint)  # never a path, '..' or NUL
+        name = safe_base_name(name, fallback_suffix=hint, source=src)  # never a path, '..' or NUL
         try:
             embedded = EmbeddedSales(name, base64.b64decode(data, validate=True))
         except (binascii.Error, ValueError):

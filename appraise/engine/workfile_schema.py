@@ -145,7 +145,7 @@ def validate_workfile_document(doc: Mapping[str, Any], source: str) -> None:
     emb = sales.get("embedded")
     if emb is not None:
         c.kind(emb, (dict,), "sales.embedded")
-        c.name(emb.get("name"), "sales.embedded.name", limit=MAX_PATH)
+        c.text(emb.get("name"), "sales.embedded.name", limit=MAX_PATH)  # reduced when read
         c.one_of(emb.get("encoding"), ("base64",), "sales.embedded.encoding")
         c.kind(emb.get("data"), (str,), "sales.embedded.data")
 
@@ -235,7 +235,9 @@ def _build(where: str, make: Callable[[], Any], source: str) -> None:
 
 
 # --- names and paths ---------------------------------------------------------------------
-def safe_base_name(name: str, *, fallback_suffix: str | None = None) -> str:
+def safe_base_name(
+    name: str, *, fallback_suffix: str | None = None, source: str | None = None
+) -> str:
     """A file name from a workfile reduced to something safe to create in a fresh folder.
 
     Folders (``/`` and ``\\``) are dropped, control and NUL characters removed, leading
@@ -259,7 +261,8 @@ def safe_base_name(name: str, *, fallback_suffix: str | None = None) -> str:
     if suffix not in SALES_SUFFIXES:
         raise WorkfileError(
             f"the embedded sales file's name {_short(name)} has no sales-file suffix "
-            f"({', '.join(SALES_SUFFIXES)})"
+            f"({', '.join(SALES_SUFFIXES)})",
+            file=source,
         )
     stem = re.sub(r"[^\w .()+,-]", "_", stem).strip(" .") or "sales"
     return stem[: 100 - len(suffix)] + suffix
