@@ -18,7 +18,7 @@ from collections.abc import Callable
 import numpy as np
 
 from appraise.engine.diagnostics import Diagnostics
-from appraise.report.numbers import MISSING, money
+from appraise.report.numbers import MISSING, money, number
 
 from .plot_items import (
     EXCLUDED_COLOUR,
@@ -79,8 +79,14 @@ def describe_sale(d: Diagnostics, i: int, currency: str = "$") -> str:
 
 
 def number_text(x: float, fmt: str) -> str:
-    """``x`` in format ``fmt``; an em dash when it is missing or not finite."""
-    return MISSING if x is None or not math.isfinite(x) else format(x, fmt)
+    """``x`` in format ``fmt``; an em dash when it is missing or not finite. A ``g``
+    format keeps its significant digits but never turns to scientific notation."""
+    if x is None or not math.isfinite(x):
+        return MISSING
+    if fmt.endswith("g"):
+        text = number(x, int(fmt.strip("+.g") or 6))
+        return "+" + text if fmt.startswith("+") and x >= 0 else text
+    return format(x, fmt)
 
 
 def _signed(x: float, fmt: str) -> str:

@@ -56,6 +56,9 @@ from PySide6.QtWidgets import (
 
 from appraise.engine.diagnostics import Diagnostics, SaleFlag
 from appraise.report.cautions import ONE_LINE_CAUTION
+from appraise.report.diagnostics_section import PRB_CI_LEVEL
+from appraise.report.labels import COLLINEARITY_COLUMNS
+from appraise.report.numbers import percent
 from appraise.report.text import format_diagnostics
 
 from .diagnostics_plots import influence_figure, legend_html, ratio_figure
@@ -308,7 +311,15 @@ class DiagnosticsView(QWidget):
         self.sales_table = _table(self.sales_model, sortable=True)
         self.sales_table.horizontalHeader().setStretchLastSection(False)
         self.terms_model = TextTableModel(
-            ("Term", "Kind", "df", "(G)VIF", "GVIF^(1/(2 df))", "Rule", "Verdict"),
+            (
+                "Term",
+                "Kind",
+                "Columns",
+                COLLINEARITY_COLUMNS["gvif"],
+                COLLINEARITY_COLUMNS["gvif_root"],
+                "Rule",
+                "Verdict",
+            ),
             right=(2, 3, 4),
         )
         self.terms_table = _table(self.terms_model)
@@ -317,7 +328,14 @@ class DiagnosticsView(QWidget):
         self.tests_text = QTextBrowser()
         self.tests_text.setOpenLinks(False)
         self.measures_model = TextTableModel(
-            ("Measure", "Value", "95% interval", "Acceptable range", "Verdict"), right=(1,)
+            (
+                "Measure",
+                "Value",
+                f"{percent(PRB_CI_LEVEL)} interval",
+                "Acceptable range",
+                "Verdict",
+            ),
+            right=(1,),
         )
         self.measures_table = _table(self.measures_model)
         self.ratio_label = QLabel()

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import math
-
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QStandardItem, QStandardItemModel
 from PySide6.QtWidgets import (
@@ -17,7 +15,10 @@ from PySide6.QtWidgets import (
 )
 
 from appraise.engine.fitting import COEF_CI_LEVEL, FitResult
+from appraise.report.effects import coefficient_effects
+from appraise.report.labels import term_label
 from appraise.report.numbers import fixed, number, percent, pvalue
+from appraise.report.text import coefficient_count
 
 from .session import Session
 
@@ -26,7 +27,7 @@ BUSY_STYLE = "color: #555555; font-style: italic;"
 
 STAT_LABELS: tuple[tuple[str, str], ...] = (
     ("n", "Sales used"),
-    ("p", "Terms"),
+    ("p", "Coefficients"),
     ("r2", "R²"),
     ("adj_r2", "Adjusted R²"),
     ("sigma", "Residual std. error"),
@@ -36,26 +37,11 @@ STAT_LABELS: tuple[tuple[str, str], ...] = (
 )
 
 
-def log_effect(coef: float) -> float:
-    """Percentage change in price for a one-unit change, log response: 100 (e^b − 1).
-
-    For a 0/1 indicator this is the exact effect of the indicator (Halvorsen and
-    Palmquist 1980); for a continuous term it is the effect of one more unit.
-    """
-    return 100.0 * math.expm1(coef)
-
-
-def effect_text(name: str, coef: float) -> str:
-    """What a coefficient of a log-price model means, in words a reader can use.
-
-    A term ``log(x)`` has an elasticity: 1% more ``x``, about ``b``% more price.
-    Any other term: one more unit changes price by 100 (e^b − 1)%.
-    """
-    if name == "Intercept":
-        return ""
-    if name.startswith("log(") and name.endswith(")"):
-        return f"{coef:+.3f}% per 1% more"
-    return f"{log_effect(coef):+.2f}% per unit"
+def effect_text(fit: FitResult) -> list[str]:
+    """The plain effect of each coefficient, in the order of ``fit.terms``
+    (``+0.40% per month``, ``+$123 per sq ft``, ``+10.6% vs average``): the worksheet's
+    column (``appraise.report.effects``)."""
+    return [e.text for e in coefficient_effects(fit)]
 
 
 class ResultsView(QWidget):
@@ -121,7 +107,7 @@ class ResultsView(QWidget):
             return
         self.state.setStyleSheet("")
         scale = "log price" if fit.response == "log" else "price"
-        self.state.setText(f"Fitted: {scale} on {fit.p - int(fit.spec.intercept)} term(s).")
+        self.state.setText(f"Fitted: {scale}, {coefficient_count(fit)}.")
         values = {
             "n": f"{fit.n:,}",
             "p": str(fit.p),
@@ -137,25 +123,23 @@ class ResultsView(QWidget):
 
         ci = percent(COEF_CI_LEVEL)
         headers = ["Term", "Estimate", "Std. error", "t", "p", f"{ci} low", f"{ci} high"]
-        if fit.response == "log":
-            headers.append("Effect on price")
+        headers.append("Effect on price")
         self.model.setHorizontalHeaderLabels(headers)
-        for t in fit.terms:
+        for t, effect in zip(fit.terms, effect_text(fit), strict=True):
             cells = [
-                t.name,
-                number(t.coef),
-                number(t.se, 4),
+                term_label(t.name),
+                number(t.coef, 4),
+                number(t.se, 3),
                 fixed(t.t, 2),
                 pvalue(t.p),
-                number(t.ci_low),
-                number(t.ci_high),
+                number(t.ci_low, 4),
+                number(t.ci_high, 4),
+                effect if t.note is None else str(t.note),
             ]
-            if fit.response == "log":
-                cells.append(effect_text(t.name, t.coef))
             items = []
             for j, text in enumerate(cells):
                 item = QStandardItem(text)
-                if j:
+                if 0 < j < len(cells) - 1:  # numbers right, the term and its effect left
                     item.setTextAlignment(
                         Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
                     )

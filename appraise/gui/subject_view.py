@@ -28,6 +28,7 @@ from appraise.engine.expressions import expression_inputs
 from appraise.engine.sales import ROW_COLUMN, SalesTable
 from appraise.engine.valuation import Valuation
 from appraise.report.cautions import ONE_LINE_CAUTION
+from appraise.report.labels import field_label
 from appraise.report.numbers import fixed, money, percent, plain
 
 from .session import Session
@@ -152,7 +153,9 @@ class SubjectView(QWidget):
                 self.form.removeRow(0)
             self.editors = {name: self._make_editor(name) for name in fields}
             for name, editor in self.editors.items():
-                self.form.addRow(name.replace("_", " ").capitalize(), editor)
+                sales = self._session.sales
+                unit = sales.area_unit if sales is not None else None
+                self.form.addRow(field_label(name, unit), editor)
             self._fields = fields
         self._fill()
 

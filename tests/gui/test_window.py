@@ -310,14 +310,27 @@ def test_status_bar_names_counts_fit_and_caution(qtbot, window, sample_copy):
     assert np.isfinite(fit.r2)
 
 
-def test_effect_column_reads_log_coefficients():
-    # 100 (e^b - 1): an indicator with b = ln 1.1 raises price by exactly 10%
+def test_effect_column_reads_log_coefficients(qtbot, window, sample_copy):
+    # 100 (e^b - 1): an indicator with coefficient b changes price by that percent
     # (Halvorsen and Palmquist 1980, Am. Econ. Rev. 70(3), recalled from memory)
-    assert effect_text("region[Heronmoor]", np.log(1.1)) == "+10.00% per unit"
-    assert effect_text("months", np.log(0.995)) == "-0.50% per unit"
-    # a log-log term is an elasticity: b% more price per 1% more of the input
-    assert effect_text("log(living_area)", 0.592) == "+0.592% per 1% more"
-    assert effect_text("Intercept", 7.6) == ""
+    open_and_wait(qtbot, window, sample_copy, companions=True)
+    fit, view = window.session.fit, window.results_view
+    model = view.model
+    header = [model.headerData(j, Qt.Orientation.Horizontal) for j in range(model.columnCount())]
+    assert header[-1] == "Effect on price" and header[5:7] == ["95% low", "95% high"]
+    shown = {
+        model.item(i, 0).text(): model.item(i, len(header) - 1).text()
+        for i in range(model.rowCount())
+    }
+    coef = {t.name: t.coef for t in fit.terms}
+    assert (
+        shown["region: Heronmoor"]
+        == f"{100 * np.expm1(coef['region[Heronmoor]']):+.1f}% vs Old Mill"
+    )
+    assert shown["months"] == "+0.40% per month"  # never "+0.00% per unit"
+    assert shown["Intercept"] == ""
+    assert effect_text(fit) == [shown[model.item(i, 0).text()] for i in range(model.rowCount())]
+    assert view.stats["p"].text() == str(fit.p) and f"{fit.p} coefficients" in view.state.text()
 
 
 def test_context_menu_excludes_with_a_reason(qtbot, window, sample_copy):
