@@ -87,6 +87,10 @@ class TermGroup:
     reference: str | None
     inputs: tuple[str, ...]
     levels: tuple[str, ...] = ()
+    pooled: tuple[str, ...] = ()
+    """``onehot(..., min_count=k)``: the levels pooled into the "other" level (whose name
+    is in ``levels``); empty when nothing was pooled."""
+    pool_label: str | None = None
 
 
 @dataclass(frozen=True)
@@ -105,6 +109,9 @@ class _Term:
     reference: str | None = None
     exponents: tuple[tuple[int, ...], ...] = ()
     columns: tuple[str, ...] = ()
+    min_count: int | None = None
+    pooled: tuple[str, ...] = ()
+    pool_label: str | None = None
 
     @property
     def single_input(self) -> str | None:
@@ -319,7 +326,10 @@ def learn_design(
             origin[c] = f"'{t.feature}'"
             names.append(c)
     groups = tuple(
-        TermGroup(t.text, t.columns, t.kind, t.reference, t.inputs, t.levels) for t in terms
+        TermGroup(
+            t.text, t.columns, t.kind, t.reference, t.inputs, t.levels, t.pooled, t.pool_label
+        )
+        for t in terms
     )
     inputs = tuple(dict.fromkeys(h for t in terms for h in t.inputs))
     return DesignSpec(
@@ -345,11 +355,16 @@ def _make_term(feature: str, scope: NameScope) -> _Term:
                 f"'{feature}' reads no column; a constant adds nothing beside the intercept"
             )
         return _Term(feature, text, "plain", shape.args, inputs, hint, columns=(text,))
-    if shape.kind == "onehot":
-        return _Term(feature, text, "onehot", shape.args, inputs, hint, requested_ref=shape.ref)
-    if shape.kind == "onehot_product":
+    if shape.kind in ("onehot", "onehot_product"):
         return _Term(
-            feature, text, "onehot_product", shape.args, inputs, hint, requested_ref=shape.ref
+            feature,
+            text,
+            shape.kind,
+            shape.args,
+            inputs,
+            hint,
+            requested_ref=shape.ref,
+            min_count=shape.min_count,
         )
     d, m = len(shape.args), int(shape.degree or 0)
     if comb(d + m, m) - 1 > MAX_POLY_COLUMNS:
@@ -633,6 +648,8 @@ def _labels(ev: _Evaluator, t: _Term) -> np.ndarray:
         out[present] = written[inverse]
     else:
         out[:] = v
+    if t.pooled:  # a level pooled when the design was learned reads as the pool
+        out[pd.Series(out, dtype=object).isin(t.pooled).to_numpy()] = t.pool_label
     return out
 
 
@@ -671,6 +688,26 @@ def _learn_levels(t: _Term, labels: np.ndarray, usable: np.ndarray) -> _Term:
         )
     counts = pd.Series(seen).value_counts()
     levels = _sort_levels(set(counts.index))
+    pooled: tuple[str, ...] = ()
+    pool_label = None
+    if t.min_count is not None:
+        thin = [lv for lv in levels if counts[lv] < t.min_count]
+        if thin:
+            n_thin = int(sum(counts[lv] for lv in thin))
+            pool_label = (
+                f"other ({len(thin)} level{'s' if len(thin) != 1 else ''}, "
+                f"{n_thin} sale{'s' if n_thin != 1 else ''})"
+            )
+            pooled = tuple(thin)
+            if t.requested_ref is not None and level_label(t.requested_ref) in thin:
+                raise DesignError(
+                    f"'{t.feature}': the reference level '{level_label(t.requested_ref)}' has "
+                    f"fewer than {t.min_count} sales and would be pooled; choose another",
+                    column=col,
+                )
+            counts = counts.drop(thin)
+            counts[pool_label] = n_thin
+            levels = [lv for lv in levels if lv not in thin] + [pool_label]
     if t.requested_ref is None:
         top = counts.max()
         reference = next(lv for lv in levels if counts[lv] == top)
@@ -693,7 +730,14 @@ def _learn_levels(t: _Term, labels: np.ndarray, usable: np.ndarray) -> _Term:
         factor = t.args[1]
         prefix = (to_text(factor) if is_atom(factor) else f"({to_text(factor)})") + " * " + prefix
     cols = tuple(f"{prefix}[{lv}]" for lv in levels if lv != reference)
-    return replace(t, levels=tuple(levels), reference=reference, columns=cols)
+    return replace(
+        t,
+        levels=tuple(levels),
+        reference=reference,
+        columns=cols,
+        pooled=pooled,
+        pool_label=pool_label,
+    )
 
 
 def _check_levels(t: _Term, labels: np.ndarray, ok: np.ndarray, frame: pd.DataFrame) -> None:

@@ -393,6 +393,13 @@ class _Walker:
             ref = call.keyword("ref")
             if ref is not None and not isinstance(ref, Text | Number):
                 raise self.fail(node, "ref= must be a quoted level, e.g. ref='Old Mill'")
+            mc = call.keyword("min_count")
+            if mc is not None and not (
+                isinstance(mc, Number) and isinstance(mc.value, int) and mc.value >= 2
+            ):
+                raise self.fail(
+                    node, "min_count= must be a whole number of sales, at least 2, e.g. min_count=5"
+                )
         if info.name == "poly":
             deg = call.keyword("degree")
             if deg is None:
@@ -453,6 +460,8 @@ class FeatureShape:
     args: tuple[Node, ...]
     ref: str | float | None = None
     degree: int | None = None
+    min_count: int | None = None
+    """``onehot(..., min_count=k)``: levels with fewer than k sales are pooled."""
 
 
 def _onehot_product(node: Node) -> tuple[Call, Node] | None:
@@ -474,19 +483,32 @@ def feature_shape(node: Node) -> FeatureShape:
     """
     if isinstance(node, Call) and node.func == "onehot":
         ref = node.keyword("ref")
-        return FeatureShape("onehot", node.args, ref=None if ref is None else _literal(ref))
+        return FeatureShape(
+            "onehot",
+            node.args,
+            ref=None if ref is None else _literal(ref),
+            min_count=_min_count(node),
+        )
     product = _onehot_product(node)
     if product is not None:
         call, factor = product
         ref = call.keyword("ref")
         return FeatureShape(
-            "onehot_product", (*call.args, factor), ref=None if ref is None else _literal(ref)
+            "onehot_product",
+            (*call.args, factor),
+            ref=None if ref is None else _literal(ref),
+            min_count=_min_count(call),
         )
     if isinstance(node, Call) and node.func == "poly":
         deg = node.keyword("degree")
         assert isinstance(deg, Number)
         return FeatureShape("poly", node.args, degree=int(deg.value))
     return FeatureShape("plain", (node,))
+
+
+def _min_count(call: Call) -> int | None:
+    mc = call.keyword("min_count")
+    return None if mc is None else int(mc.value)  # type: ignore[union-attr]
 
 
 def _literal(node: Node) -> str | float:

@@ -193,12 +193,13 @@ _ALL = (
     ),
     FunctionInfo(
         name="onehot",
-        signature="onehot(category, ref='level')",
-        summary="a 0/1 column per level except the reference (default: the most frequent)",
+        signature="onehot(category, ref='level', min_count=5)",
+        summary="a 0/1 column per level except the reference (default: the most frequent);"
+        " min_count=k pools the levels with fewer than k sales into one 'other' level",
         params=(CATEGORY,),
         min_args=1,
         max_args=1,
-        keywords=("ref",),
+        keywords=("ref", "min_count"),
         expanding=True,
     ),
     FunctionInfo(

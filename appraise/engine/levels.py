@@ -33,9 +33,14 @@ class LevelCount:
     level: str
     count: int
     column: str | None
+    pooled: tuple[str, ...] = ()
+    """For the level ``onehot(..., min_count=k)`` pooled: the original levels in it."""
 
     def to_dict(self) -> dict:
-        return {"term": self.term, "level": self.level, "count": self.count, "column": self.column}
+        out = {"term": self.term, "level": self.level, "count": self.count, "column": self.column}
+        if self.pooled:
+            out["pooled_levels"] = list(self.pooled)
+        return out
 
 
 def level_counts(design: DesignSpec, X: np.ndarray) -> tuple[LevelCount, ...]:
@@ -51,12 +56,13 @@ def level_counts(design: DesignSpec, X: np.ndarray) -> tuple[LevelCount, ...]:
         sums = block.sum(axis=0)
         by_column = dict(zip(g.columns, sums, strict=True))
         for level in g.levels:
+            pooled = tuple(g.pooled) if level == g.pool_label else ()
             if level == g.reference:
                 n_ref = int(round(len(X) - block.sum()))
-                out.append(LevelCount(g.expression, level, n_ref, None))
+                out.append(LevelCount(g.expression, level, n_ref, None, pooled))
             else:
                 col = next(c for c in g.columns if c.endswith(f"[{level}]"))
-                out.append(LevelCount(g.expression, level, int(round(by_column[col])), col))
+                out.append(LevelCount(g.expression, level, int(round(by_column[col])), col, pooled))
     return tuple(out)
 
 
@@ -67,8 +73,8 @@ def thin_level_warnings(counts: tuple[LevelCount, ...], minimum: int) -> list[st
         if c.count == 1:
             out.append(
                 f"{c.term}: level '{c.level}' is held by one sale: its coefficient only "
-                "reproduces that sale and is not estimable; pool the level "
-                "(or drop the sale) before relying on a value in it"
+                "reproduces that sale and is not estimable; pool the level (onehot(..., "
+                f"min_count={max(minimum, 2)})) or drop the sale before relying on a value in it"
             )
         elif c.count < minimum:
             out.append(
@@ -97,6 +103,14 @@ def subject_level_warnings(
             continue
         on = [c for c in g.columns if x0.get(c) == 1.0]
         level = g.reference if not on else on[0][on[0].rindex("[") + 1 : -1]
+        if g.pool_label is not None and level == g.pool_label:
+            col = g.inputs[0] if len(g.inputs) == 1 else None
+            raw = None if col is None or col not in subject.columns else subject[col].iloc[0]
+            out.append(
+                (f"the subject's level '{raw}'" if raw is not None else "the subject's level")
+                + f" of {g.expression} has fewer sales than the pooling minimum and is valued "
+                f"as '{g.pool_label}' ({', '.join(g.pooled)} together)"
+            )
         for c in counts:
             if c.term == g.expression and c.level == level and c.count < minimum:
                 out.append(

@@ -43,6 +43,9 @@ def format_fit(fit: FitResult) -> str:
             lines.append(
                 f"Sales per level of {expr}: " + ", ".join(f"{c.level} {c.count}" for c in counts)
             )
+        for c in counts:
+            if c.pooled:
+                lines.append(f"Pooled into '{c.level}': {', '.join(c.pooled)}")
     ci = percent(COEF_CI_LEVEL)
     effects = coefficient_effects(fit)
     names = [term_label(t.name) for t in fit.terms]
@@ -224,9 +227,7 @@ def coverage_lines(d: Diagnostics) -> list[str]:
         out.append(f"    {s.label:<{w}} {s.n:>6,} sales  {percent(s.coverage, 1):>6}{mark}")
     worst = c.worst()
     if worst is not None:
-        out.append(
-            f"  worst: {worst.by} {worst.label}, {percent(worst.coverage, 1)} of its sales"
-        )
+        out.append(f"  worst: {worst.by} {worst.label}, {percent(worst.coverage, 1)} of its sales")
     return out
 
 

