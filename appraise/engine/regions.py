@@ -326,6 +326,32 @@ class SlopeSet:
 
 
 @dataclass(frozen=True)
+class AreaPrice:
+    """The model's price per unit of living area at one region's typical sale."""
+
+    level: str
+    count: int
+    base: str
+    """Which sale it is evaluated at (row and id)."""
+    area: float
+    value: float
+    """Estimated price of that sale (the smearing mean for a log response)."""
+    per_unit: Estimate
+
+    def to_dict(self) -> dict:
+        return to_jsonable(
+            {
+                "level": self.level,
+                "count": self.count,
+                "base": self.base,
+                "area": self.area,
+                "value": self.value,
+                "per_unit": self.per_unit.to_dict(),
+            }
+        )
+
+
+@dataclass(frozen=True)
 class RegionCentroid:
     """Mean position of a region's sales, and the subject's distance to it."""
 
@@ -412,6 +438,10 @@ class RegionAnalysis:
     subject_region: str | None
     strata: object | None = None
     """A :class:`appraise.engine.region_strata.StrataStudy` when asked for."""
+    area_prices: tuple[AreaPrice, ...] = field(default=())
+    """Price per unit of living area at each region's typical sale (see
+    :func:`area_prices`); empty without a mapped living-area column in the model."""
+    area_column: str | None = None
     warnings: tuple[str, ...] = field(default=())
 
     def effect(self, level: str) -> RegionEffect:
@@ -440,6 +470,10 @@ class RegionAnalysis:
                 "pairwise": [c.to_dict() for c in self.pairwise],
                 "groups": self.groups.to_dict(),
                 "slopes": [s.to_dict() for s in self.slopes],
+                "area_prices": {
+                    "column": self.area_column,
+                    "regions": [a.to_dict() for a in self.area_prices],
+                },
                 "centroids": [c.to_dict() for c in self.centroids],
                 "location_premium": None if self.premium is None else self.premium.to_dict(),
                 "strata": None if self.strata is None else self.strata.to_dict(),
@@ -766,6 +800,9 @@ def analyse_regions(
                 f"the reference level is taken as 0; add {s.factor} as a feature"
             )
 
+    area_col = fit.sales.roles.column("living_area")
+    per_area = area_prices(fit, region, level) if area_col in fit.design.inputs else ()
+
     subject_region = None
     if subject is not None and region.column in subject.columns and len(subject):
         v = subject[region.column].iloc[0]
@@ -795,6 +832,8 @@ def analyse_regions(
         premium=premium,
         subject_region=subject_region,
         strata=study,
+        area_prices=per_area,
+        area_column=area_col if per_area else None,
         warnings=tuple(warnings),
     )
 
@@ -842,6 +881,69 @@ def _slopes(
     else:
         unit = f"price per unit of {factor}"
     return SlopeSet(factor, group.expression, main, unit, tuple(out), test)
+
+
+def area_prices(
+    fit: FitResult, region: RegionTerm, level: float = DEFAULT_LEVEL, step: float = 0.5
+) -> tuple[AreaPrice, ...]:
+    r"""Price per unit of living area implied by the model at each region's typical sale
+    (the one with the median fitted value among the region's sales).
+
+    With :math:`g = (x(A+\delta) - x(A-\delta)) / 2\delta` the derivative of the design
+    row with respect to the living area A (central difference: exact for terms linear in
+    A, error of order :math:`\delta^2 / A^2` for ``log(A)``), the derivative of the
+    response is :math:`g'b`. For a linear response that is the price per unit, variance
+    :math:`g'Vg`. For a log response the price per unit is
+    :math:`\hat P\, g'b` with :math:`\hat P = e^{x'b} s` (s Duan's factor, held fixed),
+    and the delta method gives the gradient :math:`h = \hat P (g + (g'b)\,x)`, variance
+    :math:`h'Vh`. Every term of the model that reads the area counts: its interaction
+    with distance, and a product ``living_area * onehot(region)`` when there is one.
+    """
+    area_col = fit.sales.roles.column("living_area")
+    if area_col is None or area_col not in fit.frame.columns:
+        return ()
+    b = np.asarray(fit.params, dtype=float)
+    V = np.asarray(fit.cov_params, dtype=float)
+    q = float(stats.t.ppf(0.5 + level / 2, fit.df_resid))
+    labels = fit.frame[region.column].astype(str).to_numpy()
+    out = []
+    for lv in region.levels:
+        idx = np.flatnonzero(labels == lv)
+        if idx.size == 0:
+            continue
+        pos = int(idx[np.argsort(fit.fitted[idx], kind="stable")[idx.size // 2]])
+        row = fit.frame.iloc[[pos, pos]].reset_index(drop=True)
+        area = float(row[area_col].iloc[0])
+        row[area_col] = [area + step, area - step]
+        built = fit.design.build(row, unseen="flag")
+        if not built.row_ok.all():
+            continue
+        X2 = np.asarray(built.matrix, dtype=float)
+        g = (X2[0] - X2[1]) / (2 * step)
+        x = fit.X[pos]
+        slope = float(g @ b)
+        if fit.response == "log":
+            price = float(np.exp(x @ b) * fit.smearing)
+            h = price * (g + slope * x)
+            value = price * slope
+        else:
+            price = float(x @ b)
+            h = g
+            value = slope
+        se = math.sqrt(max(float(h @ V @ h), 0.0))
+        t = value / se if se > 0 else NAN
+        est = Estimate(
+            value,
+            se,
+            value - q * se,
+            value + q * se,
+            t,
+            float(2 * stats.t.sf(abs(t), fit.df_resid)) if se > 0 else NAN,
+        )
+        sid = fit.sale_ids[pos]
+        base = f"row {int(fit.rows[pos])}" + (f" ({sid})" if sid else "")
+        out.append(AreaPrice(lv, int(idx.size), base, area, price, est))
+    return tuple(out)
 
 
 def region_centroids(
@@ -995,6 +1097,7 @@ def location_premium(
 
 __all__ = [
     "DEFAULT_LEVEL",
+    "AreaPrice",
     "Contrast",
     "Estimate",
     "LocationPremium",
@@ -1008,6 +1111,7 @@ __all__ = [
     "SlopeSet",
     "WaldTest",
     "analyse_regions",
+    "area_prices",
     "combination",
     "distance_centre",
     "find_region_term",

@@ -31,6 +31,7 @@ from appraise.report.cautions import ONE_LINE_CAUTION
 from appraise.report.content import Table
 from appraise.report.numbers import fixed, money, pvalue, signed_percent
 from appraise.report.regions_section import (
+    area_price_table,
     effects_table,
     level_name,
     pairwise_table,
@@ -133,6 +134,16 @@ class RegionsView(QWidget):
         lay.addWidget(self.slope_plot, 3)
         lay.addWidget(self.slopes, 2)
 
+        self.area_plot = pg.PlotWidget()
+        self.area_plot.setBackground("w")
+        self.area_plot.showGrid(x=True, y=False, alpha=0.2)
+        self.area_prices = _table()
+        area_page = QWidget()
+        lay = QVBoxLayout(area_page)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.addWidget(self.area_plot, 3)
+        lay.addWidget(self.area_prices, 2)
+
         self.strata = _table()
         self.map = pg.PlotWidget()
         self.map.setBackground("w")
@@ -143,6 +154,7 @@ class RegionsView(QWidget):
         self.pages = QTabWidget()
         self.pages.addTab(effects_page, "Effects")
         self.pages.addTab(self.pairs, "Pairs")
+        self.pages.addTab(area_page, "Price per area")
         self.pages.addTab(slopes_page, "Slopes")
         self.pages.addTab(self.strata, "Ratio study")
         self.pages.addTab(self.map, "Map")
@@ -177,9 +189,9 @@ class RegionsView(QWidget):
     def _clear(self, message: object = None) -> None:
         self.analysis = None
         self.summary.setText(message if isinstance(message, str) else "No fit yet.")
-        for w in (self.forest, self.slope_plot, self.map):
+        for w in (self.forest, self.slope_plot, self.area_plot, self.map):
             w.clear()
-        for t in (self.effects, self.pairs, self.slopes, self.strata):
+        for t in (self.effects, self.pairs, self.slopes, self.area_prices, self.strata):
             t.clear()
             t.setRowCount(0)
             t.setColumnCount(0)
@@ -196,7 +208,7 @@ class RegionsView(QWidget):
             f"({ra.term.expression}).{subject} All effects zero: F = {fixed(j.statistic, 2)} "
             f"on {j.df_num} and {j.df_den} df, p {pvalue(j.p_value)}. Regions that cannot be "
             f"told apart at {1 - ra.level:.2f}: {groups}."
-            + (f" {len(ra.warnings)} warning(s): see the tables' notes." if ra.warnings else "")
+            + (f" {len(ra.warnings)} warning(s) (hover here to read them)." if ra.warnings else "")
         )
         self.summary.setToolTip("\n".join(ra.warnings))
         fill_table(self.effects, effects_table(ra))
@@ -205,6 +217,7 @@ class RegionsView(QWidget):
         if st is not None:
             fill_table(self.strata, st)
         self._draw_forest(ra)
+        self._draw_area_prices(ra)
         self._draw_slopes(ra)
         self._draw_map(ra)
 
@@ -256,6 +269,31 @@ class RegionsView(QWidget):
         unit = "% effect (e^b - 1)" if ra.response == "log" else "effect (price)"
         plot.setLabel("bottom", f"{unit} against {ra.term.reference}, {ra.level:.0%} interval")
         plot.setTitle("Region effects: diamond = reference, hollow = thin, red edge = subject's")
+
+    def _draw_area_prices(self, ra: RegionAnalysis) -> None:
+        plot = self.area_plot
+        plot.clear()
+        table = area_price_table(ra)
+        if table is None:
+            plot.setTitle("No living-area column in the model (living_area role)")
+            self.area_prices.setRowCount(0)
+            return
+        fill_table(self.area_prices, table)
+        rows = sorted(ra.area_prices, key=lambda a: a.per_unit.value)
+        y = np.arange(len(rows), dtype=float)
+        x = np.array([a.per_unit.value for a in rows])
+        lo = np.array([a.per_unit.low for a in rows])
+        hi = np.array([a.per_unit.high for a in rows])
+        plot.addItem(
+            pg.ErrorBarItem(x=x, y=y, left=x - lo, right=hi - x, beam=0.2, pen=pg.mkPen("#444444"))
+        )
+        plot.addItem(
+            pg.ScatterPlotItem(x=x, y=y, size=10, brush=pg.mkBrush(*rgba(OKABE_ITO["orange"])))
+        )
+        ticks = [(float(i), level_name(ra, a.level)) for i, a in enumerate(rows)]
+        plot.getAxis("left").setTicks([ticks])
+        plot.setLabel("bottom", "price per unit of living area at the region's typical sale")
+        plot.setTitle(f"Price per unit of living area, {ra.level:.0%} interval")
 
     def _draw_slopes(self, ra: RegionAnalysis) -> None:
         plot = self.slope_plot

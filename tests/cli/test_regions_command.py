@@ -91,6 +91,8 @@ def test_json_keys(sample_json):
     assert {"value", "se", "low", "high", "t", "p"} <= set(e["effect"])
     assert {"value", "low", "high", "kennedy"} <= set(e["percent"])
     assert {"by_region", "by_tier", "overall", "tier_edges"} <= set(d["strata"])
+    assert d["area_prices"]["column"] == "Living Area (sq ft)"
+    assert len(d["area_prices"]["regions"]) == 6
     assert "not an appraisal" in d["caution"]
     assert sum(e["count"] for e in d["effects"]) == d["n"] == 598  # README: 598 used
 

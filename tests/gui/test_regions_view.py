@@ -77,7 +77,10 @@ def test_strata_and_map(view):
     by_level = {e.level: e.effect.value for e in ra.effects}
     assert set(np.round(effect, 12)) == set(np.round(list(by_level.values()), 12))
     assert len(view.map_sales.data) == ra.n
-    assert view.pages.count() == 5
+    assert view.pages.count() == 6
+    # price per unit of living area in each region, as the engine computes it
+    assert view.area_prices.rowCount() == 6
+    assert "$" in view.area_prices.item(0, 4).text()
 
 
 def test_a_model_without_regions_says_so(qtbot, view, session):
