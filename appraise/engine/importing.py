@@ -918,14 +918,14 @@ def _exclusions(
     for mask, why, column in checks.rest(open_rows) if checks else ():
         take(mask, why, column)
     if id_col is not None:
-        first_of_id: dict[str, int] = {}
+        # an id seen again among the rows still open, in file order (hashed by pandas)
+        at = np.flatnonzero(open_rows & ~cleaned[id_col].missing)
+        keys = pd.Series(ids[at], dtype=object).map(str)
+        again = keys.duplicated(keep="first").to_numpy()
         repeats = np.zeros(n, dtype=bool)
-        for i in np.flatnonzero(open_rows & ~cleaned[id_col].missing):
-            key = str(ids[i])
-            if key in first_of_id:
-                repeats[i] = True
-            else:
-                first_of_id[key] = int(i) + FIRST_DATA_ROW
+        repeats[at[again]] = True
+        firsts = ~again & keys.isin(set(keys[again])).to_numpy()
+        first_of_id = dict(zip(keys[firsts], at[firsts] + FIRST_DATA_ROW, strict=True))
         take(
             repeats,
             lambda i: (

@@ -45,6 +45,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .cell_columns import fast_numbers
 from .cells import clean_text, parse_number
 
 
@@ -267,6 +268,17 @@ def _distinct_texts(cells: Sequence[object]) -> dict[str, int]:
     }
 
 
+def _fast_reads(texts: list[str]) -> dict[str, dict[str, bool]]:
+    """For each mark, the texts certain to read with it (the importer's vectorised fast
+    path, :mod:`.cell_columns`); the others are tried one by one."""
+    values = np.array(texts, dtype=object)
+    out = {}
+    for mark in (".", ","):
+        decided = fast_numbers(values, mark)[1] if len(values) else np.zeros(0, bool)
+        out[mark] = dict(zip(texts, decided.tolist(), strict=True))
+    return out
+
+
 def decide_decimal_mark(
     columns: Mapping[str, Sequence[object]],
     setting: str,
@@ -288,12 +300,15 @@ def decide_decimal_mark(
     example_ev: dict[str, str] = {}
     for cells in columns.values():
         texts = _distinct_texts(cells)
+        fast_reads = _fast_reads(list(texts))
         for text, count in texts.items():
             if _AMBIGUOUS.fullmatch(text.strip()):
                 ambiguous += count
                 example_amb = example_amb or text.strip()
                 continue
-            reads = [m for m in (".", ",") if _reads(text, m, currency_symbol)]
+            reads = [
+                m for m in (".", ",") if fast_reads[m].get(text) or _reads(text, m, currency_symbol)
+            ]
             if len(reads) == 1:
                 evidence[reads[0]] += count
                 example_ev.setdefault(reads[0], text.strip())
