@@ -372,7 +372,9 @@ def fit_model(
         leverage = structure.leverage()
         counts = absorbed_level_counts(design, structure)
     if spec.cov_type == "HC3":
-        _refuse_hc3_at_leverage_one(leverage, frame, counts, sale_id, sales.source.path)
+        _refuse_hc3_at_leverage_one(
+            leverage, frame, counts, sale_id, sales.source.path, spec.cov_type
+        )
     cov_type = STATSMODELS_COV[spec.cov_type]
     if cov_type != "nonrobust":
         res = (
@@ -503,9 +505,10 @@ LONE_NOTE = (
 )
 
 
-def _refuse_hc3_at_leverage_one(h, frame, counts, sale_id, file) -> None:
-    """HC3 divides each squared residual by (1 - h)^2: at leverage 1 (a level held by one
-    sale) that is 0/0 and the standard errors explode. Refuse, naming the sale."""
+def _refuse_hc3_at_leverage_one(h, frame, counts, sale_id, file, cov_type="HC3") -> None:
+    """HC3 divides each squared residual by (1 - h)^2 and HC2 by (1 - h): at leverage 1 (a
+    level held by one sale) that is 0/0 and the standard errors explode. Refuse, naming
+    the sale."""
     at = np.flatnonzero(h >= 1 - 1e-8)
     if at.size == 0:
         return
@@ -513,7 +516,8 @@ def _refuse_hc3_at_leverage_one(h, frame, counts, sale_id, file) -> None:
     lone = [f"{c.term} '{c.level}'" for c in counts if c.count == 1]
     sid = sale_id(i)
     raise FitError(
-        f"HC3 standard errors cannot be computed: the sale on row {int(frame[ROW_COLUMN].iloc[i])}"
+        f"{cov_type} standard errors cannot be computed: the sale on row "
+        f"{int(frame[ROW_COLUMN].iloc[i])}"
         + (f" ({sid})" if sid else "")
         + " has leverage 1"
         + (f" (it alone holds {', '.join(lone)})" if lone else "")

@@ -5,7 +5,7 @@ Example::
     target = "price"            # column (or role name) holding the sale price
     response = "log"            # "linear" or "log"
     level = 0.90                # prediction-interval level
-    cov_type = "HC1"            # "classical", "HC1" or "HC3"
+    cov_type = "HC1"            # "classical", "HC0", "HC1", "HC2" or "HC3"
     features = [
         "log(living_area)",
         "living_area * dist_km",
@@ -37,10 +37,10 @@ from .errors import ModelFileError
 from .limits import decode_utf8, load_toml_text
 
 Response = Literal["linear", "log"]
-CovType = Literal["classical", "HC1", "HC3"]
+CovType = Literal["classical", "HC0", "HC1", "HC2", "HC3"]
 
 RESPONSES: tuple[str, ...] = ("linear", "log")
-COV_TYPES: tuple[str, ...] = ("classical", "HC1", "HC3")
+COV_TYPES: tuple[str, ...] = ("classical", "HC0", "HC1", "HC2", "HC3")
 _KNOWN_KEYS = {
     "target",
     "response",

@@ -44,7 +44,9 @@ from .session import Session
 
 COV_LABELS = {
     "classical": "classical (constant error spread)",
+    "HC0": "HC0 (robust, White's original)",
     "HC1": "HC1 (robust to uneven spread)",
+    "HC2": "HC2 (robust, leverage-corrected)",
     "HC3": "HC3 (robust, small samples)",
 }
 RESPONSE_LABELS = {"linear": "price (linear)", "log": "log price (effects in %)"}

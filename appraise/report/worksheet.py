@@ -33,7 +33,9 @@ from .settings import ReportSettings
 
 COV_TYPE_TEXT: Mapping[str, str] = {
     "classical": "classical (assumes the same error variance for every sale)",
+    "HC0": "HC0, robust to unequal error variance (White's original)",
     "HC1": "HC1, robust to unequal error variance (White, scaled by n/(n-p))",
+    "HC2": "HC2, robust to unequal error variance (each residual corrected by its leverage)",
     "HC3": "HC3, robust to unequal error variance (weights influential sales more)",
 }
 

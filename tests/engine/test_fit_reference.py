@@ -160,7 +160,7 @@ def _windsor_design(w: pd.DataFrame) -> np.ndarray:
     return np.column_stack(cols).astype(float)
 
 
-@pytest.mark.parametrize("cov", ["classical", "HC1", "HC3"])
+@pytest.mark.parametrize("cov", ["classical", "HC0", "HC1", "HC2", "HC3"])
 def test_agrees_with_statsmodels_run_directly(windsor, cov):
     # Reference: statsmodels OLS on a design built by hand with numpy, to 1e-8 relative.
     fit = _fit(windsor, WINDSOR_ALL + f'cov_type = "{cov}"\n')

@@ -77,11 +77,20 @@ def test_a_one_sale_level_is_not_estimable():
     assert_allclose(lotsize.se, ref.bse["lotsize"], rtol=1e-8)
 
 
-def test_hc3_is_refused_at_leverage_one_naming_the_sale():
+@pytest.mark.parametrize("cov", ["HC2", "HC3"])
+def test_hc2_and_hc3_are_refused_at_leverage_one_naming_the_sale(cov):
     with pytest.raises(FitError) as ei:
-        _fit(_data(1), "HC3")
+        _fit(_data(1), cov)
     msg = str(ei.value)
+    assert f"{cov} standard errors cannot be computed" in msg
     assert "row 2" in msg and "leverage 1" in msg and "'Harbour'" in msg
+
+
+def test_hc1_never_calls_a_one_sale_coefficient_significant():
+    fit = _fit(_data(1), "HC1")
+    lone = next(t for t in fit.terms if t.name.endswith("[Harbour]"))
+    assert lone.note is not None and "not estimable" in lone.note
+    assert math.isnan(lone.se) and math.isnan(lone.p)
 
 
 def test_hc3_without_a_lone_sale_matches_statsmodels():

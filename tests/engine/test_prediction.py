@@ -31,7 +31,7 @@ def _rows():
     )
 
 
-@pytest.mark.parametrize("cov", ["classical", "HC1", "HC3"])
+@pytest.mark.parametrize("cov", ["classical", "HC0", "HC1", "HC2", "HC3"])
 @pytest.mark.parametrize("response", ["linear", "log"])
 def test_predict_matches_statsmodels_get_prediction(hprice1, cov, response):
     # Reference: statsmodels OLS(...).get_prediction(x).summary_frame() run directly.
@@ -56,7 +56,7 @@ def test_predict_matches_statsmodels_get_prediction(hprice1, cov, response):
         X = np.column_stack([np.log(X[:, 0]), np.log(X[:, 1]), X[:, 2]])
         x0 = np.column_stack([np.log(x0[:, 0]), np.log(x0[:, 1]), x0[:, 2]])
         y = np.log(y)
-    sm_cov = {"classical": "nonrobust", "HC1": "HC1", "HC3": "HC3"}[cov]
+    sm_cov = {"classical": "nonrobust"}.get(cov, cov)
     res = sm.OLS(y, sm.add_constant(X)).fit(cov_type=sm_cov, use_t=True)
     good = np.isfinite(x0).all(axis=1)
     sf = res.get_prediction(sm.add_constant(x0[good], has_constant="add")).summary_frame(alpha=0.1)
@@ -88,7 +88,9 @@ def test_predict_matches_statsmodels_get_prediction(hprice1, cov, response):
 def test_value_subject_is_the_one_row_prediction(hprice1):
     fit = fit_model(
         sales_from_frame(hprice1),
-        parse_model('spread = "constant"\ntarget = "price"\nfeatures = ["lotsize", "sqrft", "bdrms"]'),
+        parse_model(
+            'spread = "constant"\ntarget = "price"\nfeatures = ["lotsize", "sqrft", "bdrms"]'
+        ),
     )
     rows = _rows().iloc[[0]].reset_index(drop=True)
     v = value_subject(fit, rows, level=0.95)
