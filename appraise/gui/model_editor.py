@@ -39,6 +39,7 @@ from appraise.engine.modelspec import COV_TYPES, RESPONSES, ModelSpec
 from appraise.engine.roles import ROLES
 from appraise.engine.sales import ROW_COLUMN
 from appraise.engine.spread import SPREAD_METHOD_TEXT
+from appraise.report.levels_text import level_lines
 
 from .session import Session
 
@@ -277,6 +278,9 @@ class ModelEditor(QWidget):
         self.summary = QLabel()
         self.summary.setWordWrap(True)
         self.fit_status = QLabel()
+        self.levels_label = QLabel()  # sales per level of each onehot term, after a fit
+        self.levels_label.setWordWrap(True)
+        self.levels_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.fit_status.setWordWrap(True)
         self.fit_status.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
 
@@ -292,6 +296,7 @@ class ModelEditor(QWidget):
         lay.addWidget(add_derived, 0, Qt.AlignmentFlag.AlignLeft)
         lay.addWidget(self.summary)
         lay.addWidget(self.fit_status)
+        lay.addWidget(self.levels_label)
         lay.addStretch(1)
         scroll = QScrollArea()
         scroll.setWidgetResizable(True)
@@ -312,6 +317,7 @@ class ModelEditor(QWidget):
         session.salesChanged.connect(lambda _s: self._sales_changed())
         session.fitStarted.connect(lambda: self._show_fit_state(None))
         session.fitFinished.connect(lambda _f: self._show_fit_state(None))
+        session.fitFinished.connect(self._show_levels)
         session.fitFailed.connect(self._show_fit_state)
         self._sales_changed()
         if session.spec is not None:
@@ -425,6 +431,18 @@ class ModelEditor(QWidget):
             spread=self.spread.currentData(),
             spread_terms=base.spread_terms if self.spread.currentData() == "modelled" else (),
             derived=MappingProxyType(dict(derived)),
+        )
+
+    def _show_levels(self, fit) -> None:
+        """Sales per level beside the terms; a thin level in the warning colour."""
+        lines = level_lines(fit) if fit is not None else []
+        self.levels_label.setText(
+            "<br>".join(
+                f"<span style='color:{ERROR_COLOUR}'>{_escape(x.text)}</span>"
+                if x.thin
+                else _escape(x.text)
+                for x in lines
+            )
         )
 
     def _show_fit_state(self, message: str | None) -> None:
