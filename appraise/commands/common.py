@@ -16,7 +16,12 @@ SHORT_CAUTION = ONE_LINE_CAUTION  # the one wording the CLI, PDF footer and app 
 
 def add_sales_arguments(parser: argparse.ArgumentParser) -> None:
     """SALES plus the import settings every command that reads sales accepts."""
-    parser.add_argument("sales", metavar="SALES", help="comparable sales: .csv, .xlsx or .parquet")
+    parser.add_argument(
+        "sales",
+        metavar="SALES",
+        help="comparable sales: .csv, .xlsx or .parquet; or a saved workfile (.appraise.json), "
+        "whose sales, model, subject and exclusions are used unless given here",
+    )
     g = parser.add_argument_group("reading the sales")
     g.add_argument(
         "--decimal",
@@ -38,9 +43,60 @@ def add_sales_arguments(parser: argparse.ArgumentParser) -> None:
     )
     g.add_argument("--sheet", default="0", help="worksheet name or 0-based index for .xlsx")
     g.add_argument("--roles", metavar="ROLEMAP.json", help="a saved column-role map to use")
+    g.add_argument(
+        "--read-recorded-path",
+        action="store_true",
+        help="with a workfile: read the sales file it names even when that is not a plain "
+        ".csv/.xlsx/.parquet file (by default such a path is not read)",
+    )
+
+
+def is_workfile(path: str) -> bool:
+    """A SALES argument naming a workfile rather than a sales export (sales are never JSON)."""
+    return str(path).lower().endswith(".json")
+
+
+def workfile_from_args(args: argparse.Namespace):
+    """``(state, restored)`` when SALES is a workfile (read once per run), else ``None``."""
+    if not is_workfile(args.sales):
+        return None
+    cached = getattr(args, "_workfile", None)
+    if cached is None:
+        from ..engine.workfile import load_workfile, restore
+
+        state = load_workfile(args.sales)
+        trust = getattr(args, "read_recorded_path", False)
+        cached = (state, restore(state, confirm=(lambda p: True) if trust else None))
+        args._workfile = cached
+        for line in state.recovered:
+            print(f"note: {line}", file=sys.stderr)
+    return cached
+
+
+def workfile_exclusions(args: argparse.Namespace) -> tuple:
+    """The sales the workfile's user left out (none without a workfile)."""
+    wf = workfile_from_args(args)
+    return () if wf is None else tuple(wf[1].user_exclusions)
+
+
+def subject_source(args: argparse.Namespace):
+    """``--subject`` as given, else the workfile's subject; SubjectError when neither."""
+    if getattr(args, "subject", None):
+        return args.subject
+    wf = workfile_from_args(args)
+    if wf is not None:
+        return dict(wf[1].subject)
+    from ..engine.errors import SubjectError
+
+    raise SubjectError("no subject: give --subject SUBJECT (or a workfile as SALES)")
 
 
 def import_settings(args: argparse.Namespace) -> ImportSettings:
+    wf = workfile_from_args(args) if hasattr(args, "sales") else None
+    if wf is not None:
+        from ..engine.workfile import import_settings_from_dict
+
+        return import_settings_from_dict(wf[0].import_settings, source=wf[0].location)
     sheet: str | int = args.sheet
     if isinstance(sheet, str) and sheet.isdigit():
         sheet = int(sheet)
@@ -52,6 +108,9 @@ def import_settings(args: argparse.Namespace) -> ImportSettings:
 def load_sales_from_args(args: argparse.Namespace):
     from .. import pipeline
 
+    wf = workfile_from_args(args)
+    if wf is not None:
+        return wf[1].sales
     return pipeline.load(args.sales, import_settings(args), getattr(args, "roles", None))
 
 
@@ -67,7 +126,10 @@ def add_model_argument(parser: argparse.ArgumentParser, *, multiple: bool = Fals
         )
     else:
         parser.add_argument(
-            "--model", "-m", metavar="MODEL.toml", required=True, help="the model file (TOML)"
+            "--model",
+            "-m",
+            metavar="MODEL.toml",
+            help="the model file (TOML); required unless SALES is a workfile",
         )
 
 
@@ -76,9 +138,9 @@ def add_subject_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--subject",
         "-s",
-        required=True,
         metavar="SUBJECT",
-        help="the subject: a JSON object or a one-row CSV with the sales' columns",
+        help="the subject: a JSON object or a one-row CSV with the sales' columns; "
+        "required unless SALES is a workfile",
     )
     parser.add_argument(
         "--level",
@@ -95,7 +157,14 @@ def add_json_argument(parser: argparse.ArgumentParser) -> None:
 def load_model_from_args(args: argparse.Namespace) -> ModelSpec:
     from .. import pipeline
 
-    return pipeline.read_model(args.model)
+    if args.model:
+        return pipeline.read_model(args.model)
+    wf = workfile_from_args(args)
+    if wf is not None:
+        return wf[1].spec
+    from ..engine.errors import ModelFileError
+
+    raise ModelFileError("no model: give --model MODEL.toml (or a workfile as SALES)")
 
 
 def fit_from_args(args: argparse.Namespace, spec: ModelSpec | None = None):
@@ -104,13 +173,16 @@ def fit_from_args(args: argparse.Namespace, spec: ModelSpec | None = None):
 
     sales = load_sales_from_args(args)
     spec = spec if spec is not None else load_model_from_args(args)
-    return sales, spec, pipeline.fit(sales, spec)
+    return sales, spec, pipeline.fit(sales, spec, workfile_exclusions(args))
 
 
 def read_subject_from_args(args: argparse.Namespace, sales):
     from .. import pipeline
 
-    return pipeline.subject_frame(args.subject, sales, import_settings(args))
+    source = subject_source(args)
+    if isinstance(source, dict):
+        source = pipeline.filled(source)
+    return pipeline.subject_frame(source, sales, import_settings(args))
 
 
 def print_json(obj) -> None:

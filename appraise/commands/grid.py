@@ -22,6 +22,7 @@ from .common import (
     fit_from_args,
     import_settings,
     print_json,
+    subject_source,
 )
 
 
@@ -65,7 +66,7 @@ def run(args: argparse.Namespace) -> int:
     weights = _ids(args.weights)
     result, _ = pipeline.grid(
         fit,
-        args.subject,
+        subject_source(args),
         effective_date=args.effective_date,
         import_settings=import_settings(args),
         selection=SelectionSettings(

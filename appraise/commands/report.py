@@ -22,6 +22,8 @@ from .common import (
     load_model_from_args,
     load_sales_from_args,
     read_subject_from_args,
+    subject_source,
+    workfile_exclusions,
 )
 
 
@@ -88,6 +90,7 @@ def run(args: argparse.Namespace) -> int:
         subject=read_subject_from_args(args, sales),
         level=args.level,
         diagnostics=None if args.no_diagnostics else DiagnosticSettings(),
+        user_exclusions=workfile_exclusions(args),
     )
     fit, valuation, diagnostics = run_.fit, run_.valuation, run_.diagnostics
     settings = ReportSettings(currency=args.currency, page_size=args.page_size)
@@ -99,7 +102,7 @@ def run(args: argparse.Namespace) -> int:
             comps = [c.strip() for c in args.comps.split(",") if c.strip()] if args.comps else None
             grid, _ = pipeline.grid(
                 fit,
-                args.subject,
+                subject_source(args),
                 effective_date=args.effective_date,
                 import_settings=import_settings(args),
                 comps=comps,

@@ -35,6 +35,7 @@ from .levels import (
     single_sale_columns,
     thin_level_warnings,
 )
+from .limits import design_scale_problem, unusable_summary
 from .modelspec import ModelSpec
 from .prediction import Prediction, predict
 from .sales import ROW_COLUMN, Exclusion, SalesTable
@@ -343,9 +344,12 @@ def fit_model(
     if n <= p:
         raise FitError(
             f"{n} usable sales for {p} terms: a fit needs more sales than terms "
-            "(drop terms or add sales)",
+            "(drop terms or add sales)" + unusable_summary(built.problems),
             file=sales.source.path,
         )
+    scale = design_scale_problem(X, names)
+    if scale is not None:
+        raise FitError(scale, file=sales.source.path)
     price = pd.to_numeric(frame[target]).to_numpy(dtype=float)
     y = np.log(price) if spec.response == "log" else price
     structure = None

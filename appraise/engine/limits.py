@@ -270,3 +270,41 @@ def _refuse_extent(rows: int, cols: int, file: str) -> None:
             f"(a cell far from the others?); the limit is {MAX_XLSX_CELLS:,} cells",
             file=file,
         )
+
+
+# --- the design matrix ----------------------------------------------------------------------
+MAX_DESIGN_MAGNITUDE = 1e100
+"""Largest absolute value a design column may hold. Least squares forms sums of squares
+and cross-products; beyond about 1e154 they overflow, and well before that the rank
+decision is meaningless, so such a column is refused with its name instead of being
+reported as collinear."""
+
+
+def design_scale_problem(X: np.ndarray, names: tuple[str, ...]) -> str | None:
+    """A message naming the design columns whose values exceed :data:`MAX_DESIGN_MAGNITUDE`."""
+    if X.size == 0:
+        return None
+    with np.errstate(invalid="ignore"):
+        peak = np.nanmax(np.abs(X), axis=0)
+    bad = [(n, v) for n, v in zip(names, peak, strict=True) if v > MAX_DESIGN_MAGNITUDE]
+    if not bad:
+        return None
+    shown = ", ".join(f"'{n}' (values up to about 10^{int(np.floor(np.log10(v)))})" for n, v in bad)
+    return (
+        f"{shown}: too large to fit (the limit is 10^{int(np.log10(MAX_DESIGN_MAGNITUDE))}); "
+        "rescale the term, e.g. divide it by a power of ten"
+    )
+
+
+def unusable_summary(problems: tuple[tuple[int, str, str | None], ...]) -> str:
+    """Why the model could not use sales, most frequent reason first (for a fit refused
+    for too few sales): ``"; 412 sales left out: '10**10**10 * living_area' is not
+    finite (412)"``."""
+    if not problems:
+        return ""
+    counts: dict[str, int] = {}
+    for _, reason, _ in problems:
+        counts[reason] = counts.get(reason, 0) + 1
+    top = sorted(counts.items(), key=lambda kv: -kv[1])[:2]
+    listed = "; ".join(f"{r} ({k:,})" for r, k in top)
+    return f"; {len(problems):,} sales left out by the model: {listed}"
