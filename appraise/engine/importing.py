@@ -758,7 +758,9 @@ def load_sales(
     if raw.n_rows == 0:
         raise DataError("the file has a header but no rows of sales", file=file)
     headers, header_notes = clean_headers(raw.headers)
-    role_map = resolve_roles(headers, roles, file=file)
+    # with no map given, the roles are guessed from the headers and the columns' content
+    values = None if roles is not None else dict(zip(headers, raw.columns, strict=True))
+    role_map = resolve_roles(headers, roles, file=file, values=values)
     if role_map.column("price") is None:
         raise _no_price_error(headers, file)
     n = raw.n_rows

@@ -152,7 +152,8 @@ _SYNONYMS: Mapping[str, _Synonyms] = {
         "feet; finished sq ft; finished sqft; heated area; heated square feet; living space; "
         "living sq ft; living sqft; floor area; interior area; above grade finished area; above "
         "grade area; house size; home size; building area; building size; square feet; square "
-        "footage; sq ft; sqft; sqrft; sq m; sqm; livingarea",
+        "footage; sq ft; sqft; sqrft; sq m; sqm; livingarea; gr liv area; liv area; gross liv area; "
+        "above grade living area; living area above grade",
         "lot; land; site; plot; parcel; basement; bsmt; garage; price; per; cost; below; acre; "
         "acres; porch; deck; yard; unfinished; patio",
     ),
@@ -178,8 +179,8 @@ _SYNONYMS: Mapping[str, _Synonyms] = {
     ),
     "bathrooms": _syn(
         "bathrooms; bathrooms total; total bathrooms; total baths; number of bathrooms; bathroom "
-        "count; baths; bathroom; bathrms; bths; full baths; bath; ba",
-        "bed; beds; bedroom; bedrooms; br; half; partial",
+        "count; baths; bathroom; bathrms; bths; full baths; full bath; full bathrooms; bath; ba",
+        "bed; beds; bedroom; bedrooms; br; half; partial; bsmt; basement",
         "bath; ba",
     ),
     "latitude": _syn(
@@ -199,8 +200,9 @@ _SYNONYMS: Mapping[str, _Synonyms] = {
         "school; zoning; tax; flood; census; time; id; code; number",
     ),
     "condition": _syn(
-        "condition; condition rating; overall condition; building condition; quality; quality "
-        "rating; overall quality; construction quality; grade; cond; state of repair",
+        "condition; condition rating; overall condition; overall cond; building condition; "
+        "quality; quality rating; overall quality; overall qual; construction quality; grade; "
+        "cond; state of repair",
         "air; sale; sales; terms; financing; roof; kitchen",
         "cond",
     ),
@@ -242,23 +244,221 @@ def _contains(words: tuple[str, ...], phrase: tuple[str, ...]) -> bool:
     return any(words[i : i + k] == phrase for i in range(len(words) - k + 1))
 
 
-def suggest_roles(headers: Iterable[str]) -> RoleMap:
-    """Suggest a column for each role from header names.
+Confidence = Literal["high", "medium", "low"]
 
-    Each header is reduced with :func:`header_words` and compared with the
-    role's phrases: a header equal to a phrase beats one that merely contains
-    it; an earlier (stronger) phrase beats a later one; fewer extra words beat
-    more; then the leftmost header wins. A header containing one of the role's
-    "avoid" words (``List Price``, ``Price per Sq Ft``) is never suggested for
-    it. No role gets two columns and no column two roles.
+
+@dataclass(frozen=True)
+class RoleGuess:
+    """A suggested column for a role, how sure the guess is, and why, in plain words."""
+
+    role: str
+    column: str
+    confidence: Confidence
+    reason: str
+
+
+RATING_WORDS: frozenset[str] = frozenset(
+    {
+        "excellent", "very good", "good", "above average", "average", "typical", "normal",
+        "below average", "fair", "poor", "very poor", "new", "like new", "superior", "inferior",
+        "high", "low", "medium", "moderate", "luxury", "standard", "basic", "economy", "custom",
+        "ex", "gd", "ta", "fa", "po", "avg", "vg", "exc", "a", "b", "c", "d", "e",
+        "c1", "c2", "c3", "c4", "c5", "c6", "q1", "q2", "q3", "q4", "q5", "q6",
+        "1", "2", "3", "4", "5", "6", "7", "8", "9", "10",
+    }
+)  # fmt: skip
+"""Words a condition or quality rating is written in (normalised by :func:`header_words`)."""
+
+ABSENT_WORDS: frozenset[str] = frozenset({"", "na", "n a", "none", "missing", "unknown"})
+"""Values that say a rating is absent; ``No_Garage``-like values start with 'no'."""
+
+YES_NO: frozenset[str] = frozenset(
+    {"yes", "no", "y", "n", "true", "false", "t", "f", "1", "0", "qualified", "unqualified"}
+)
+
+_NUMBER_BOUNDS: Mapping[str, tuple[float, float, bool]] = MappingProxyType(
+    {
+        # role: (lowest, highest, whole numbers only)
+        "price": (1.0, float("inf"), False),
+        "living_area": (50.0, 100_000.0, False),
+        "lot_area": (0.0, float("inf"), False),
+        "year_built": (1500.0, 2100.0, True),
+        "bedrooms": (0.0, 30.0, True),
+        "bathrooms": (0.0, 30.0, False),
+        "latitude": (-90.0, 90.0, False),
+        "longitude": (-180.0, 180.0, False),
+    }
+)
+"""What the values of a number role must lie in for the header's guess to stand."""
+
+SAMPLE_VALUES = 2000
+"""Values looked at per column when checking a guess against the content."""
+
+
+def _as_number(v: object) -> float | None:
+    if v is None or isinstance(v, bool):
+        return None
+    if isinstance(v, int | float):
+        return float(v) if v == v else None
+    t = re.sub(r"[\s$£€¥,]", "", str(v))
+    if not t:
+        return None
+    try:
+        return float(t)
+    except ValueError:
+        return None
+
+
+_BLANKS = frozenset({"", "n/a", "na", "-", "--", "?", "null", "none", "nan", "missing"})
+
+
+def _present(values: Sequence[object]) -> list[object]:
+    out = []
+    for v in values[:SAMPLE_VALUES]:
+        if v is None or (isinstance(v, float) and v != v):
+            continue
+        if isinstance(v, str) and v.strip().casefold() in _BLANKS:
+            continue
+        out.append(v)
+    return out
+
+
+def looks_like_rating(values: Sequence[object]) -> bool:
+    """Whether a column's values read as a condition or quality rating.
+
+    Whole numbers 1 to 10 with at most ten distinct values, or words of
+    :data:`RATING_WORDS` (``Good``, ``Above_Average``, ``C3``...) for at least 80% of the
+    distinct values that are present (values saying "none" or "no ..." are set aside).
+    A road-proximity code such as ``Norm``/``Feedr``/``PosN`` is not a rating.
+    """
+    present = _present(values)
+    if not present:
+        return False
+    numbers = [_as_number(v) for v in present]
+    if all(x is not None for x in numbers):
+        distinct = set(numbers)
+        return len(distinct) <= 10 and all(x == int(x) and 0 <= x <= 10 for x in distinct)
+    words = {header_words(str(v)) for v in present}
+    words = {w for w in words if w not in ABSENT_WORDS and not w.startswith("no ")}
+    if not words:
+        return False
+    rated = sum(w in RATING_WORDS for w in words)
+    return rated / len(words) >= 0.8
+
+
+def _looks_like_date(values: Sequence[object]) -> bool:
+    present = _present(values)
+    if not present:
+        return False
+    hits = 0
+    for v in present:
+        if hasattr(v, "year") and hasattr(v, "month"):
+            hits += 1
+        elif isinstance(v, str) and re.fullmatch(
+            r"\s*(\d{4}[-/.]\d{1,2}[-/.]\d{1,2}|\d{1,2}[-/.]\d{1,2}[-/.]\d{2,4}|"
+            r"\d{1,2}\s+[A-Za-z]{3,9}\s+\d{4}|[A-Za-z]{3,9}\s+\d{1,2},?\s+\d{4})([ T].*)?\s*",
+            v,
+        ):
+            hits += 1
+    return hits / len(present) >= 0.5
+
+
+def content_fit(role: str, values: Sequence[object] | None) -> tuple[bool | None, str]:
+    """Whether a column's values suit ``role``: (True/False, why) or (None, "") unchecked.
+
+    Number roles need numbers in a plausible range (years built 1500-2100, bedrooms
+    whole numbers 0-30, latitudes within +-90...); the sale date needs dates; the
+    condition role needs a rating (:func:`looks_like_rating`); the arm's-length flag
+    two yes/no-like values.
+    """
+    if values is None:
+        return None, ""
+    present = _present(values)
+    if not present:
+        return None, ""  # nothing to go by: the header decides
+    if role in _NUMBER_BOUNDS:
+        low, high, whole = _NUMBER_BOUNDS[role]
+        numbers = [_as_number(v) for v in present]
+        good = [x for x in numbers if x is not None]
+        if len(good) < 0.5 * len(present):
+            return False, "most values are not numbers"
+        inside = [x for x in good if low <= x <= high and (not whole or x == int(x))]
+        if len(inside) < 0.9 * len(good):
+            return False, "the values are outside what this role holds"
+        lo, hi = min(good), max(good)
+        shown = f"{lo:.0f} to {hi:.0f}" if role == "year_built" else f"{_plain(lo)} to {_plain(hi)}"
+        return True, f"numbers from {shown}"
+    if role == "sale_date":
+        ok = _looks_like_date(present)
+        return ok, "the values are dates" if ok else "the values are not dates"
+    if role == "condition":
+        ok = looks_like_rating(present)
+        shown = ", ".join(sorted({str(v) for v in present})[:4])
+        if ok:
+            return True, f"the values look like a rating ({shown}...)"
+        return False, f"the values do not look like a rating ({shown}...)"
+    if role == "region":
+        distinct = {str(v).strip() for v in present}
+        numeric = all(_as_number(v) is not None for v in present)
+        ok = not numeric and len(distinct) <= max(2, len(present) // 2)
+        return ok, (
+            f"{len(distinct)} named areas shared by the sales"
+            if ok
+            else "the values are not area names shared by several sales"
+        )
+    if role == "sale_id":
+        distinct = {str(v).strip() for v in present}
+        ok = len(distinct) >= 0.9 * len(present)
+        return ok, "the values are (nearly) all different" if ok else "many values repeat"
+    if role == "arms_length":
+        distinct = {header_words(str(v)) for v in present}
+        ok = len(distinct) <= 2 and distinct <= YES_NO
+        return ok, "the values are yes/no" if ok else "the values are not yes/no"
+    return None, ""
+
+
+def _plain(x: float) -> str:
+    return f"{x:,.0f}" if abs(x) >= 100 else f"{x:,.4g}"
+
+
+CONTENT_DECIDES: frozenset[str] = frozenset(
+    {"condition", "sale_date", "year_built", "bedrooms", "latitude", "longitude"}
+)
+"""Roles whose guess from the header is dropped when the values do not suit them; for
+the others (the price above all: the importer explains each bad value by row) values
+that do not suit only lower the confidence."""
+
+_CONFIDENCE = {(0, True): "high", (0, None): "medium", (1, True): "medium", (1, None): "low"}
+
+
+def guess_roles(
+    headers: Iterable[str], values: Mapping[str, Sequence[object]] | None = None
+) -> tuple[RoleGuess, ...]:
+    """Suggest a column for each role from the headers and, when given, the values.
+
+    Each header is reduced with :func:`header_words` and compared with the role's
+    phrases: a header equal to a phrase beats one that merely contains it; an earlier
+    (stronger) phrase beats a later one; fewer extra words beat more; then the
+    leftmost header wins. A header containing one of the role's "avoid" words
+    (``List Price``, ``Price per Sq Ft``) is never suggested for it. With ``values``
+    (header -> the column's values, raw text is fine) a header whose content does not
+    suit the role (:func:`content_fit`) is passed over, so ``Condition_1`` holding road
+    codes does not become the condition rating. No role gets two columns and no
+    column two roles. Only the roles of :data:`CONTENT_DECIDES` are passed over; for
+    the others values that do not suit make the guess "low".
+
+    Confidence: "high" for a header equal to a phrase whose values suit the role;
+    "medium" for an equal header with no values to check, or a header containing a
+    phrase whose values suit it; "low" for a header that only contains a phrase.
     """
     headers = list(headers)
-    candidates: list[tuple[tuple[int, int, int, int], str, str]] = []
+    candidates: list[tuple[tuple[int, int, int, int], str, str, Confidence, str]] = []
     for pos, header in enumerate(headers):
         words = tuple(header_words(header).split())
         if not words:
             continue
         joined = " ".join(words)
+        column_values = None if values is None else values.get(header)
         for role, syn in _SYNONYMS.items():
             if syn.avoid.intersection(words):
                 continue
@@ -269,18 +469,33 @@ def suggest_roles(headers: Iterable[str]) -> RoleMap:
                     level = 1
                 else:
                     continue
+                fit, why = content_fit(role, column_values)
+                if fit is False and role in CONTENT_DECIDES:
+                    break  # the header says this role, the values do not
                 extra = len(words) - len(phrase.split())
-                candidates.append(((level, rank, extra, pos), role, header))
+                how = "is" if level == 0 else "contains"
+                reason = f"the header {how} '{phrase}'" + (f"; {why}" if why else "")
+                confidence: Confidence = (
+                    "low" if fit is False else _CONFIDENCE[(level, fit)]  # type: ignore[assignment]
+                )
+                candidates.append(((level, rank, extra, pos), role, header, confidence, reason))
                 break
     candidates.sort(key=lambda c: c[0])
-    chosen: dict[str, str] = {}
+    chosen: dict[str, RoleGuess] = {}
     used: set[str] = set()
-    for _, role, header in candidates:
+    for _, role, header, confidence, reason in candidates:
         if role in chosen or header in used:
             continue
-        chosen[role] = header
+        chosen[role] = RoleGuess(role, header, confidence, reason)
         used.add(header)
-    return RoleMap({r: chosen[r] for r in ROLES if r in chosen})
+    return tuple(chosen[r] for r in ROLES if r in chosen)
+
+
+def suggest_roles(
+    headers: Iterable[str], values: Mapping[str, Sequence[object]] | None = None
+) -> RoleMap:
+    """The role map of :func:`guess_roles` (headers alone, or headers and values)."""
+    return RoleMap({g.role: g.column for g in guess_roles(headers, values)})
 
 
 # --- checking a map against a file ----------------------------------------------------
@@ -291,11 +506,16 @@ def _squash(name: str) -> str:
 
 
 def resolve_roles(
-    headers: Sequence[str], roles: RoleMap | None, *, file: str | None = None
+    headers: Sequence[str],
+    roles: RoleMap | None,
+    *,
+    file: str | None = None,
+    values: Mapping[str, Sequence[object]] | None = None,
 ) -> RoleMap:
     """The role map to read a file with.
 
-    With ``roles`` None, the suggestion from :func:`suggest_roles`. Otherwise
+    With ``roles`` None, the suggestion from :func:`suggest_roles` (from the headers and,
+    when given, the columns' ``values``). Otherwise
     ``roles`` itself, checked against ``headers``: a column named in it must
     exist (matched exactly, else ignoring case and spacing when that finds
     exactly one header), and no column may hold two roles.
@@ -307,7 +527,7 @@ def resolve_roles(
         headers found), or one column given two roles.
     """
     if roles is None:
-        return suggest_roles(headers)
+        return suggest_roles(headers, values)
     found: dict[str, str] = {}
     by_squash: dict[str, list[str]] = {}
     for h in headers:
