@@ -33,6 +33,7 @@ COMMANDS: dict[str, str] = {
     "regions": "neighbourhood effects with intervals, tests, slopes and the ratio study by region",
     "diagnose": "check a model: influential sales, redundant terms, accuracy, ratio study",
     "compare": "rank candidate model files by leave-one-out error on the same sales",
+    "suggest": "search for a better model by measured out-of-sample gains",
     "report": "write the valuation worksheet (PDF, optional HTML and tables)",
     "batch": "value every subject of a CSV or Parquet file (a roll) into CSV or Parquet",
     "open": "open the desktop workbench (the default with no command)",

@@ -72,3 +72,18 @@ CERTIFICATION_FIELDS: tuple[str, ...] = (
     "Signature",
     "Date signed",
 )
+
+FAIR_LENDING_CAUTION = (
+    "Characteristics of protected classes (race, colour, ethnicity or national origin, "
+    "religion, sex, familial status, disability, the age of the occupants) and variables "
+    "that stand in for them must be left out of the model; fair-lending and fair-housing "
+    "law applies to any use of this estimate."
+)
+"""Printed by the model assistant beside the columns its fair-lending guard skipped."""
+
+SUGGESTION_CAUTION = (
+    "The proposed model is chosen by measured out-of-sample error, not by judgement: check "
+    "that every term makes sense for this market before relying on it. The hold-out figure "
+    "is the honest estimate; the search's own figure flatters the model it picked."
+)
+"""Printed with every model the assistant proposes."""
