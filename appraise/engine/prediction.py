@@ -192,6 +192,7 @@ def predict(
         fitted[ok] = Xo @ fit.params
         var_mean[ok] = np.einsum("ij,jk,ik->i", Xo, fit.cov_params, Xo)
         lev[ok] = np.einsum("ij,jk,ik->i", Xo, fit.xtx_inv, Xo)
+    _classical_for_lone_levels(fit, X, ok, var_mean, lev)
     err_var, spread_problems = error_variance(fit, frame, ok, fitted)
     for pos, reason, column in spread_problems:
         if ok[pos]:
@@ -212,6 +213,23 @@ def predict(
         smearing=fit.smearing,
         spread=fit.spread,
     )
+
+
+def _classical_for_lone_levels(fit, X, ok, var_mean, lev) -> None:
+    """A robust (HC) covariance gives a direction fixed by a single sale zero variance
+    (that sale's residual is 0), so a row in a level held by one sale would get an
+    interval of no width for the mean. For such rows the classical variance
+    :math:`s^2 h_0` is used instead (the level is also warned as not estimable)."""
+    if fit.cov_type == "classical" or not ok.any():
+        return
+    names = list(fit.design.names)
+    if X.shape[1] != len(names):
+        return  # structured fit: the absorbed term is not among the columns of X
+    lone = [names.index(c.column) for c in fit.levels if c.count == 1 and c.column in names]
+    if not lone:
+        return
+    touched = ok & (np.abs(np.nan_to_num(X[:, lone])) > 0).any(axis=1)
+    var_mean[touched] = fit.sigma**2 * lev[touched]
 
 
 def error_variance(

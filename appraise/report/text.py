@@ -77,9 +77,12 @@ def format_fit(fit: FitResult) -> str:
 
 def format_valuation(v: Valuation, symbol: str = "$") -> str:
     pct = f"{v.level * 100:g}%"
-    lines = [f"Estimated value: {money(v.estimate, symbol)}"]
+    # what the subject's value rests on is read before the value itself
+    first = [w for w in v.warnings if str(w).startswith("the subject's level")]
+    lines = [f"warning: {w}" for w in first]
+    lines.append(f"Estimated value: {money(v.estimate, symbol)}")
     if v.median is not None:
-        lines[0] += " (mean, Duan smearing)"
+        lines[-1] += " (mean, Duan smearing)"
         lines.append(f"Median estimate: {money(v.median, symbol)}")
     lines.append(
         f"{pct} prediction interval for this sale: {money(v.low, symbol)} to {money(v.high, symbol)}"
@@ -94,7 +97,8 @@ def format_valuation(v: Valuation, symbol: str = "$") -> str:
         f"{fixed(v.max_sample_leverage, 4)})"
     )
     for w in v.warnings:
-        lines.append(f"warning: {w}")
+        if w not in first:
+            lines.append(f"warning: {w}")
     return "\n".join(lines)
 
 

@@ -168,3 +168,16 @@ def test_min_count_is_checked():
                 'target = "price"\nfeatures = ["sqrft", "onehot(town, ref=\'Dale\', min_count=5)"]'
             ),
         )
+
+
+def test_a_subject_in_a_one_sale_level_never_gets_an_interval_of_no_width_under_hc1():
+    d = _data(1)
+    fit = _fit(d, "HC1")
+    subject = d.iloc[[0]].drop(columns="price")  # the sale that alone holds 'Harbour'
+    v = value_subject(fit, subject)
+    assert v.warnings[0].startswith("the subject's level 'Harbour'")
+    # HC1 gives that direction zero variance (the sale's residual is 0); the classical
+    # s^2 h is used instead, so the mean interval is s * sqrt(h) wide, h = 1 here
+    pred = fit.predict(subject)
+    assert_allclose(pred.se_mean[0], fit.sigma * math.sqrt(pred.leverage[0]), rtol=1e-10)
+    assert v.mean_high - v.mean_low > 0.1 * v.estimate
