@@ -534,7 +534,8 @@ class _Evaluator:
 
     def date(self, node: Node, feature: str, where: str) -> np.ndarray:
         if isinstance(node, Text):
-            return np.datetime64(iso_date(node.value).isoformat(), "ns")
+            # day resolution: a literal such as '0001-01-01' lies outside datetime64[ns]
+            return np.datetime64(iso_date(node.value).isoformat(), "D")
         v = self.value(node, feature)
         if isinstance(v, np.ndarray) and v.dtype.kind == "M":
             return v
