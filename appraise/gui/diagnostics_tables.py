@@ -20,6 +20,8 @@ from PySide6.QtCore import QAbstractTableModel, QModelIndex, QPersistentModelInd
 from PySide6.QtGui import QBrush, QColor
 
 from appraise.engine.diagnostics import Diagnostics
+from appraise.engine.diagnostics.coverage import OUTSIDE_POINTS, THIN_SEGMENT
+from appraise.engine.spread import SPREAD_METHOD_TEXT
 from appraise.report.numbers import MISSING, money, pvalue
 
 from .diagnostics_plots import FLAG_COLOUR, number_text, positions_by_row
@@ -196,6 +198,35 @@ def measure_cells(d: Diagnostics) -> tuple[list[tuple[str, ...]], dict, list[str
     return cells, colours, tips
 
 
+def coverage_html(d: Diagnostics, verdict) -> list[str]:
+    """The coverage of the leave-one-out intervals by segment, as an HTML table."""
+    c = d.coverage
+    if c is None or not c.segments:
+        return []
+    out = [
+        "<h3>Coverage by segment</h3>",
+        f"<p>{escape(SPREAD_METHOD_TEXT.get(c.spread, c.spread)).capitalize()}. Share of the "
+        f"sales in each segment inside their own leave-one-out {100 * c.level:g}% interval; "
+        f"more than {OUTSIDE_POINTS:g} points from nominal is marked, under "
+        f"{THIN_SEGMENT} sales is thin. To change the spread, set <i>Interval spread</i> in "
+        "the model editor.</p>",
+        '<table border="1" cellspacing="0" cellpadding="3">',
+        "<tr><th>Split by</th><th>Segment</th><th>Sales</th><th>Coverage</th><th>Verdict</th></tr>",
+    ]
+    for s in c.segments:
+        mark = "thin" if s.thin else verdict(s.outside(c.level), "as nominal", "off nominal")
+        out.append(
+            "<tr>"
+            + "".join(
+                f"<td>{escape(x)}</td>"
+                for x in (s.by, s.label, f"{s.n:,}", _pct(100 * s.coverage))
+            )
+            + f"<td>{mark}</td></tr>"
+        )
+    out.append("</table>")
+    return out
+
+
 def tests_html(d: Diagnostics, currency: str = "$") -> str:
     """Residual tests, accuracy and the warnings as HTML for the tests tab."""
     rt, loo, kf = d.residual_tests, d.loo, d.kfold
@@ -253,6 +284,7 @@ def tests_html(d: Diagnostics, currency: str = "$") -> str:
         out.append(
             f"<p>{kf.n_unpredictable} sale(s) could not be predicted from the other folds.</p>"
         )
+    out += coverage_html(d, verdict)
     if d.warnings:
         out.append("<h3>Warnings</h3><ul>")
         out += [f"<li>{escape(w)}</li>" for w in d.warnings]
