@@ -1015,6 +1015,18 @@ def distance_centre(fit: FitResult) -> DistanceCentre | None:
     return None
 
 
+NICE_STEPS_KM = (0.05, 0.1, 0.2, 0.25, 0.5, 1.0, 2.0, 2.5, 5.0, 10.0, 20.0, 25.0, 50.0)
+
+
+def distance_grid(top: float, points: int = PREMIUM_POINTS) -> np.ndarray:
+    """0, s, 2s, ... up to ``top`` (never beyond the farthest sale), s the smallest round
+    step giving at most ``points`` distances."""
+    if not np.isfinite(top) or top <= 0:
+        return np.array([0.0])
+    step = next((s for s in NICE_STEPS_KM if top / s <= points - 1), top / (points - 1))
+    return np.arange(0.0, top + 1e-9 * step, step)
+
+
 def location_premium(
     fit: FitResult,
     *,
@@ -1052,7 +1064,8 @@ def location_premium(
         lat, lon, np.full_like(lat, centre.latitude), np.full_like(lat, centre.longitude)
     )
     top = float(max_km) if max_km is not None else float(np.nanmax(dists))
-    km = np.linspace(0.0, top, points)
+    km = distance_grid(top, points)
+    points = km.size
     rows = pd.concat([base] * points, ignore_index=True)
     rows[centre.latitude_column] = centre.latitude + np.degrees(km / EARTH_MEAN_RADIUS_KM)
     rows[centre.longitude_column] = centre.longitude
@@ -1114,6 +1127,7 @@ __all__ = [
     "area_prices",
     "combination",
     "distance_centre",
+    "distance_grid",
     "find_region_term",
     "group_regions",
     "has_region_term",

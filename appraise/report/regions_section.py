@@ -8,7 +8,14 @@ region is marked in every table where it appears.
 
 from __future__ import annotations
 
-from ..engine.regions import Estimate, Percent, RegionAnalysis, analyse_regions, has_region_term
+from ..engine.regions import (
+    NICE_STEPS_KM,
+    Estimate,
+    Percent,
+    RegionAnalysis,
+    analyse_regions,
+    has_region_term,
+)
 from .content import Block, Facts, Notice, Paragraph, Table
 from .labels import without_source_tags
 from .numbers import MISSING, fixed, integer, money, money_rate, number, pvalue, signed_percent
@@ -61,40 +68,72 @@ def _raw(e: Estimate | Percent) -> str:
 
 
 def effects_table(ra: RegionAnalysis, currency: str = "$") -> Table:
-    """One row per region, lowest effect first."""
+    """One row per region, lowest effect first.
+
+    For a log response the coefficient and its SE share a cell and the interval is given as
+    percentages only (the log-scale bounds are in the export and the JSON), so the table
+    fits a printed page.
+    """
     log = ra.response == "log"
-    cols = ["Region", "Sales", "Effect", "SE", f"{ra.level:.0%} interval", "p"]
     if log:
-        cols += ["% effect", "% interval", "% (Kennedy)"]
-    cols += ["vs average", "Letters"]
+        cols = ["Region", "Sales", "Effect (SE)", "p", "% effect", f"{ra.level:.0%} interval"]
+        cols += ["Kennedy", "vs average", "Letters"]
+    else:
+        cols = ["Region", "Sales", "Effect", "SE", f"{ra.level:.0%} interval", "p"]
+        cols += ["vs average", "Letters"]
     rows, values = [], []
     for e in ra.sorted_effects():
         name = level_name(ra, e.level) + (" (thin)" if e.thin else "")
         if not e.estimable and not e.reference:
             name += " (one sale: not estimable)"
-        row = [
-            name,
-            integer(e.count),
-            _amount(ra, e.effect.value, currency),
-            MISSING if e.reference else _amount(ra, e.effect.se, currency),
-            MISSING if e.reference else _interval(ra, e.effect, currency),
-            MISSING if e.reference else pvalue(e.effect.p),
-        ]
-        val: list = [e.level, e.count, e.effect.value, e.effect.se, _raw(e.effect), e.effect.p]
+        ref = e.reference
+        p = MISSING if ref else pvalue(e.effect.p)
+        letters = ra.groups.letters_of(e.level)
         if log:
-            row += [
+            se = "" if ref or e.effect.se != e.effect.se else f" ({number(e.effect.se, 3)})"
+            row = [
+                name,
+                integer(e.count),
+                number(e.effect.value, 4) + se,
+                p,
                 _pct(e.percent),
-                MISSING if e.reference else _pct_interval(e.percent),
-                MISSING if e.reference or e.percent is None else _pct_kennedy(e.percent),
+                MISSING if ref else _pct_interval(e.percent),
+                MISSING if ref or e.percent is None else _pct_kennedy(e.percent),
+                _pct(e.coded_percent),
+                letters,
             ]
-            val += [
+            val = [
+                e.level,
+                e.count,
+                e.effect.value,
+                e.effect.p,
                 e.percent.value if e.percent else None,
                 _raw(e.percent) if e.percent else None,
                 e.percent.kennedy if e.percent else None,
+                e.coded.value,
+                letters,
             ]
-        coded = _pct(e.coded_percent) if log else money(e.coded.value, currency)
-        row += [coded, ra.groups.letters_of(e.level)]
-        val += [e.coded.value, ra.groups.letters_of(e.level)]
+        else:
+            row = [
+                name,
+                integer(e.count),
+                money(e.effect.value, currency),
+                MISSING if ref else money(e.effect.se, currency),
+                MISSING if ref else _interval(ra, e.effect, currency),
+                p,
+                money(e.coded.value, currency),
+                letters,
+            ]
+            val = [
+                e.level,
+                e.count,
+                e.effect.value,
+                e.effect.se,
+                _raw(e.effect),
+                e.effect.p,
+                e.coded.value,
+                letters,
+            ]
         rows.append(tuple(row))
         values.append(tuple(val))
     return Table(
@@ -106,11 +145,13 @@ def effects_table(ra: RegionAnalysis, currency: str = "$") -> Table:
         ("l",) + ("r",) * (len(cols) - 2) + ("l",),
         note=EFFECT_NOTE.format(level=f"{ra.level:.0%}", cov=ra.cov_type)
         + (
-            " % effect = e^b - 1; Kennedy (1981): e^(b - Var(b)/2) - 1."
-            " 'vs average' is the effect against the unweighted average of all regions."
+            " Effect: the coefficient (log scale) with its SE; % effect = e^b - 1 with its "
+            "interval; Kennedy (1981): e^(b - Var(b)/2) - 1."
             if log
-            else " 'vs average' is the effect against the unweighted average of all regions."
-        ),
+            else ""
+        )
+        + " 'vs average': the effect against the unweighted average of all regions. Regions "
+        "sharing a letter cannot be told apart.",
     )
 
 
@@ -319,7 +360,7 @@ def region_blocks(ra: RegionAnalysis, currency: str = "$") -> tuple[Block, ...]:
     ]
     if ra.subject_region is not None:
         facts.insert(2, ("Subject's region", ra.subject_region))
-    blocks: list[Block] = [Facts(tuple(facts), "Neighbourhoods"), effects_table(ra, currency)]
+    blocks: list[Block] = [Facts(tuple(facts)), effects_table(ra, currency)]
     blocks.append(Paragraph("How the groups are formed: " + ra.groups.method + "."))
     if ra.pairwise:
         blocks.append(pairwise_table(ra, currency))
@@ -379,10 +420,17 @@ def centroid_table(ra: RegionAnalysis) -> Table:
     )
 
 
-def premium_table(ra: RegionAnalysis, currency: str = "$", every: int = 5) -> Table:
+def premium_table(ra: RegionAnalysis, currency: str = "$", rows_at_most: int = 11) -> Table:
+    """The location effect at every k-th distance, k chosen for at most ``rows_at_most`` rows."""
     p = ra.premium
     assert p is not None
     log = ra.response == "log"
+    kms = [pt.km for pt in p.points]
+    step = kms[1] - kms[0] if len(kms) > 1 else 1.0
+    shown = next(
+        (s for s in NICE_STEPS_KM if s >= step and kms[-1] / s <= rows_at_most - 1), kms[-1]
+    )
+    every = max(1, round(shown / step))
     rows = []
     for pt in p.points[::every]:
         if log:

@@ -29,7 +29,7 @@ def table_text(t: Table) -> list[str]:
 
 def format_regions(ra: RegionAnalysis, caution: str = "", currency: str = "$") -> str:
     """The whole analysis as plain text, ending with the caution."""
-    lines: list[str] = []
+    lines: list[str] = ["Neighbourhoods"]
     for b in region_blocks(ra, currency):
         if isinstance(b, Facts):
             if b.title:
