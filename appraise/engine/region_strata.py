@@ -103,6 +103,14 @@ class StrataStudy:
         )
 
 
+def _level_order(level: str) -> tuple:
+    """Numbers in numeric order (2 before 10), then text alphabetically."""
+    try:
+        return (0, float(level), level)
+    except ValueError:
+        return (1, 0.0, level)
+
+
 def loo_values(fit: FitResult) -> np.ndarray:
     """Leave-one-out value of each sale in price units (NaN at leverage 1)."""
     h = fit.leverage()
@@ -142,8 +150,10 @@ def stratified_study(
     warnings: list[str] = []
     by_region: list[Stratum] = []
     if region_column is not None and region_column in fit.frame.columns:
-        labels = fit.frame[region_column].astype(str).to_numpy()
-        for lv in sorted(set(labels)):
+        from .regions import level_labels
+
+        labels = level_labels(fit.frame[region_column])
+        for lv in sorted(set(labels) - {""}, key=_level_order):
             s = study(labels == lv)
             by_region.append(Stratum("region", lv, s.n, s.n < min_sales, s))
     tier, edges = price_tiers(price)

@@ -76,6 +76,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from .design import level_label
 from .errors import AppraiseError, ModelFileError
 from .expressions import (
     Call,
@@ -651,6 +652,15 @@ def _is_name(text: str) -> bool:
 
 
 # --- the analysis ------------------------------------------------------------------------
+def level_labels(values: pd.Series) -> np.ndarray:
+    """Each value written as the design writes a level (3.0 -> '3', dates ISO), so rows
+    can be matched with the levels of a ``onehot`` term; missing values become ''."""
+    out = np.full(len(values), "", dtype=object)
+    present = values.notna().to_numpy()
+    out[present] = [level_label(v) for v in values[present].tolist()]
+    return out
+
+
 def has_region_term(fit: FitResult) -> bool:
     """Whether the model has a ``onehot`` feature on the column with the ``region`` role."""
     try:
@@ -806,7 +816,7 @@ def analyse_regions(
     subject_region = None
     if subject is not None and region.column in subject.columns and len(subject):
         v = subject[region.column].iloc[0]
-        subject_region = None if pd.isna(v) else str(v)
+        subject_region = None if pd.isna(v) else level_label(v)
     centroids = region_centroids(fit, region, subject)
     premium = location_premium(fit, subject=subject, level=level) if location else None
 
@@ -856,7 +866,7 @@ def _slopes(
     base = np.zeros(p)
     if main is not None:
         base[names.index(main)] = 1.0
-    labels = fit.frame[region.column].astype(str).to_numpy()
+    labels = level_labels(fit.frame[region.column])
     out = []
     for lv in group.levels:
         g = base.copy()
@@ -905,7 +915,7 @@ def area_prices(
     b = np.asarray(fit.params, dtype=float)
     V = np.asarray(fit.cov_params, dtype=float)
     q = float(stats.t.ppf(0.5 + level / 2, fit.df_resid))
-    labels = fit.frame[region.column].astype(str).to_numpy()
+    labels = level_labels(fit.frame[region.column])
     out = []
     for lv in region.levels:
         idx = np.flatnonzero(labels == lv)
@@ -958,7 +968,7 @@ def region_centroids(
         return ()
     lat = pd.to_numeric(frame[lat_col], errors="coerce").to_numpy(dtype=float)
     lon = pd.to_numeric(frame[lon_col], errors="coerce").to_numpy(dtype=float)
-    labels = frame[region.column].astype(str).to_numpy()
+    labels = level_labels(frame[region.column])
     s_lat = s_lon = None
     if subject is not None and lat_col in subject.columns and lon_col in subject.columns:
         s_lat = pd.to_numeric(subject[lat_col], errors="coerce").to_numpy(dtype=float)[:1]
@@ -1131,6 +1141,7 @@ __all__ = [
     "find_region_term",
     "group_regions",
     "has_region_term",
+    "level_labels",
     "holm",
     "location_premium",
     "percent_of",

@@ -25,7 +25,12 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from appraise.engine.regions import RegionAnalysis, analyse_regions, has_region_term
+from appraise.engine.regions import (
+    RegionAnalysis,
+    analyse_regions,
+    has_region_term,
+    level_labels,
+)
 from appraise.qtrender.palette import OKABE_ITO, rgba
 from appraise.report.cautions import ONE_LINE_CAUTION
 from appraise.report.content import Table
@@ -343,7 +348,7 @@ class RegionsView(QWidget):
         east = (lon - lon0) * KM_PER_DEGREE * math.cos(math.radians(lat0))
         north = (lat - lat0) * KM_PER_DEGREE
         by_level = {e.level: e.effect.value for e in ra.effects}
-        labels = frame[ra.term.column].astype(str).to_numpy()
+        labels = level_labels(frame[ra.term.column])
         effect = np.array([by_level.get(v, np.nan) for v in labels])
         self._map_origin = (lat0, lon0)
         return east, north, effect

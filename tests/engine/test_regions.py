@@ -304,6 +304,18 @@ def test_price_per_unit_area_in_a_log_model_by_the_delta_method(kielmc):
         assert a.per_unit.low < a.per_unit.value < a.per_unit.high
 
 
+def test_a_numeric_region_column_is_matched_by_its_level_labels(kielmc):
+    # nbh as floats (0.0 ... 6.0), as the importer reads a numeric column: levels '0'..'6'
+    frame = kielmc.assign(nbh=kielmc["nbh"].astype(float))
+    fit = _fit(frame, ["area", "onehot(nbh)", "area * onehot(nbh)"], area="area")
+    ra = analyse_regions(fit, subject=frame.iloc[[5]])
+    counts = frame["nbh"].value_counts()
+    assert [s.label for s in ra.strata.by_region] == ["0", "1", "2", "3", "4", "5", "6"]
+    assert [s.n for s in ra.strata.by_region] == [int(counts[float(k)]) for k in range(7)]
+    assert ra.subject_region == str(int(frame["nbh"].iloc[5]))
+    assert len(ra.area_prices) == 7
+
+
 def test_missing_region_term_is_a_user_error(kielmc):
     fit = _fit(kielmc, ["area", "age"])
     with pytest.raises(ModelFileError, match="no onehot"):
