@@ -150,6 +150,14 @@ class RegionsView(QWidget):
         lay.addWidget(self.area_prices, 2)
 
         self.strata = _table()
+        self.warnings = QLabel()
+        self.warnings.setWordWrap(True)
+        self.warnings.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        strata_page = QWidget()
+        lay = QVBoxLayout(strata_page)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.addWidget(self.strata, 3)
+        lay.addWidget(self.warnings, 1)
         self.map = pg.PlotWidget()
         self.map.setBackground("w")
         self.map.setAspectLocked(True)
@@ -161,7 +169,7 @@ class RegionsView(QWidget):
         self.pages.addTab(self.pairs, "Pairs")
         self.pages.addTab(area_page, "Price per area")
         self.pages.addTab(slopes_page, "Slopes")
-        self.pages.addTab(self.strata, "Ratio study")
+        self.pages.addTab(strata_page, "Ratio study")
         self.pages.addTab(self.map, "Map")
 
         outer = QVBoxLayout(self)
@@ -201,6 +209,7 @@ class RegionsView(QWidget):
             t.setRowCount(0)
             t.setColumnCount(0)
         self.slope_note.setText("")
+        self.warnings.setText("")
 
     # --- drawing -------------------------------------------------------------------
     def _show(self, ra: RegionAnalysis) -> None:
@@ -213,9 +222,10 @@ class RegionsView(QWidget):
             f"({ra.term.expression}).{subject} All effects zero: F = {fixed(j.statistic, 2)} "
             f"on {j.df_num} and {j.df_den} df, p {pvalue(j.p_value)}. Regions that cannot be "
             f"told apart at {1 - ra.level:.2f}: {groups}."
-            + (f" {len(ra.warnings)} warning(s) (hover here to read them)." if ra.warnings else "")
+            + (f" {len(ra.warnings)} warning(s), listed under Ratio study." if ra.warnings else "")
         )
         self.summary.setToolTip("\n".join(ra.warnings))
+        self.warnings.setText("\n".join(f"- {w}" for w in ra.warnings))
         fill_table(self.effects, effects_table(ra))
         fill_table(self.pairs, pairwise_table(ra))
         st = strata_table(ra)
