@@ -314,6 +314,7 @@ def decide_decimal_mark(
                 example_ev.setdefault(reads[0], text.strip())
     mark = other if evidence[other] > evidence[setting] else setting
     note = None
+    read_as = _value_text(example_amb, mark, currency_symbol) if example_amb else ""
     if mark != setting:
         note = (
             f"decimal mark: {evidence[other]:,} cell(s) such as '{example_ev[other]}' read only "
@@ -321,24 +322,29 @@ def decide_decimal_mark(
             f"whole file is read with decimal mark '{other}' (the setting was '{setting}')"
         )
         if ambiguous:
-            note += (
-                f"; {ambiguous:,} cell(s) such as '{example_amb}' are read with '{setting}' "
-                "as the grouping separator"
-            )
-    elif ambiguous:
-        why = (
-            f"as {evidence[setting]:,} cell(s) such as '{example_ev[setting]}' need it"
-            if evidence[setting]
-            else "as set; no cell in the file reads only the other way"
-        )
-        group = "," if mark == "." else "."
+            note += f"; {ambiguous:,} cell(s) such as '{example_amb}' are read as {read_as}"
+    elif ambiguous and evidence[setting]:
         note = (
-            f"decimal mark: {ambiguous:,} cell(s) such as '{example_amb}' could be read either "
-            f"way; the whole file is read with decimal mark '{mark}' {why} "
-            f"(if '{group}' is meant, '{example_amb}' is read wrongly: change the decimal-mark "
-            "setting)"
+            f"decimal mark '{mark}' as set, confirmed by {evidence[setting]:,} cell(s) such as "
+            f"'{example_ev[setting]}'; {ambiguous:,} cell(s) such as '{example_amb}' are read "
+            f"as {read_as}"
+        )
+    elif ambiguous:
+        note = (
+            f"decimal mark '{mark}' as set, but nothing in the file confirms it: {ambiguous:,} "
+            f"cell(s) such as '{example_amb}' are read as {read_as}; if "
+            f"{_value_text(example_amb, other, currency_symbol)} is meant, set the decimal "
+            f"mark to '{other}'"
         )
     return DecimalDecision(mark, note, ambiguous, dict(evidence))
+
+
+def _value_text(text: str, mark: str, currency_symbol: str) -> str:
+    try:
+        v = parse_number(text, decimal=mark, currency_symbol=currency_symbol)  # type: ignore[arg-type]
+    except ValueError:
+        return "unreadable"
+    return f"{v:,.2f}".rstrip("0").rstrip(".")
 
 
 def _reads(text: str, mark: str, currency_symbol: str) -> bool:
