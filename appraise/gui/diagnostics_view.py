@@ -39,6 +39,7 @@ from PySide6.QtWidgets import (
     QAbstractItemView,
     QApplication,
     QCheckBox,
+    QComboBox,
     QFrame,
     QGridLayout,
     QHBoxLayout,
@@ -233,6 +234,16 @@ class DiagnosticsView(QWidget):
         self.seed_box.setRange(0, 2_147_483_647)
         self.seed_box.setPrefix("seed ")
         self.seed_box.setToolTip("Seed of the shuffle that deals the sales into folds")
+        self.coverage_box = QComboBox()
+        self.coverage_box.setEditable(True)  # a derived variable or expression may be typed
+        self.coverage_box.setMinimumContentsLength(12)
+        self.coverage_box.setToolTip(
+            "Split the coverage of the leave-one-out intervals by this column, role or "
+            "expression too (fifths when it is a number), beside the fifths of predicted "
+            "price and the regions"
+        )
+        self._fill_coverage_choices()
+        session.salesChanged.connect(lambda *_: self._fill_coverage_choices())
         self.copy_text_button = QPushButton("Copy as te&xt")
         self.copy_text_button.setToolTip("The whole check-up as the command line prints it")
         self.copy_text_button.clicked.connect(self.copy_text)
@@ -244,9 +255,18 @@ class DiagnosticsView(QWidget):
         self.trim_box.toggled.connect(lambda _on: self.apply_settings())
         self.folds_box.valueChanged.connect(lambda _v: self._settings_timer.start())
         self.seed_box.valueChanged.connect(lambda _v: self._settings_timer.start())
+        self.coverage_box.activated.connect(lambda _i: self.apply_settings())
+        self.coverage_box.lineEdit().editingFinished.connect(self.apply_settings)
         bar = QHBoxLayout()
         bar.addWidget(self.status, 1)
-        for w in (self.trim_box, self.folds_box, self.seed_box, self.copy_text_button):
+        bar.addWidget(QLabel("Coverage also by"))
+        for w in (
+            self.coverage_box,
+            self.trim_box,
+            self.folds_box,
+            self.seed_box,
+            self.copy_text_button,
+        ):
             bar.addWidget(w)
 
         # the strip
@@ -496,7 +516,27 @@ class DiagnosticsView(QWidget):
         self._update_status()
 
     # --- options ---
+    def _fill_coverage_choices(self) -> None:
+        """Role names, then the other headers, as choices of the coverage split."""
+        sales = self.session.sales
+        current = self.coverage_box.currentText()
+        self.coverage_box.blockSignals(True)
+        self.coverage_box.clear()
+        self.coverage_box.addItem("")
+        if sales is not None:
+            roles = dict(sales.roles.columns)
+            for role in roles:
+                self.coverage_box.addItem(role)
+            for h in sales.frame.columns:
+                if h not in roles.values() and not str(h).startswith("_"):
+                    self.coverage_box.addItem(str(h))
+        self.coverage_box.setCurrentText(current)
+        self.coverage_box.blockSignals(False)
+
     def _show_settings(self, settings) -> None:
+        self.coverage_box.blockSignals(True)
+        self.coverage_box.setCurrentText(settings.coverage_term or "")
+        self.coverage_box.blockSignals(False)
         for box, value in (
             (self.trim_box, settings.trim),
             (self.folds_box, settings.folds),
@@ -518,6 +558,7 @@ class DiagnosticsView(QWidget):
             trim=self.trim_box.isChecked(),
             folds=self.folds_box.value(),
             seed=self.seed_box.value(),
+            coverage_term=self.coverage_box.currentText().strip() or None,
         )
         if wanted != current:
             self.session.set_diagnostic_settings(wanted)

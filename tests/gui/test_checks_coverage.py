@@ -19,3 +19,16 @@ def test_checks_tab_lists_coverage_by_segment(qtbot, window, sample_copy):
     for seg in s.diagnostics.coverage.segments:
         assert seg.label in text
     assert "Old Mill" in text and "1 of 5 (lowest)" in text
+
+
+def test_the_user_picks_a_term_to_split_the_coverage_by(qtbot, window, sample_copy):
+    open_and_wait(qtbot, window, sample_copy, companions=True)
+    s = window.session
+    view = window.diagnostics_view
+    assert view.coverage_box.findText("region") >= 0  # roles are offered
+    with qtbot.waitSignal(s.diagnosticsChanged, timeout=WAIT_MS):
+        view.coverage_box.setCurrentText("age")  # a derived variable of the sample model
+        view.apply_settings()
+    qtbot.waitUntil(lambda: s.diagnostics is not None, timeout=WAIT_MS)
+    assert s.diagnostic_settings.coverage_term == "age"
+    assert any(seg.by == "age" for seg in s.diagnostics.coverage.segments)
