@@ -44,7 +44,7 @@ from .cells import (
 from .errors import DataError, RoleError
 from .limits import check_xlsx
 from .plausibility import DEFAULT_RULES, PlausibilityRules, RowChecks, decide_decimal_mark
-from .roles import AREA_ROLES, ROLE_KINDS, RoleMap, list_headers, resolve_roles
+from .roles import AREA_ROLES, ROLE_KINDS, RoleMap, guess_roles, list_headers, resolve_roles
 from .sales import ROW_COLUMN, Exclusion, SalesTable, SourceInfo
 from .settings import SQFT_PER_M2, AreaUnit, ImportSettings
 
@@ -486,6 +486,8 @@ def infer_kind(values: Sequence[object] | _Distinct, settings: ImportSettings) -
     n = int(d.counts[present].sum())
     if n == 0:
         return "text"
+    if d.array.dtype.kind in "fiu" and np.isfinite(d.array).all():
+        return "number"  # a typed number column (Parquet): every cell reads as a number
     allowed_bad = max(1, n // 5)
 
     def mostly(parse: Callable[[object], object]) -> bool:
@@ -761,6 +763,7 @@ def load_sales(
     # with no map given, the roles are guessed from the headers and the columns' content
     values = None if roles is not None else dict(zip(headers, raw.columns, strict=True))
     role_map = resolve_roles(headers, roles, file=file, values=values)
+    guesses = () if values is None else guess_roles(headers, values)
     if role_map.column("price") is None:
         raise _no_price_error(headers, file)
     n = raw.n_rows
@@ -818,7 +821,26 @@ def load_sales(
         source=source,
         area_unit=settings.area_unit,
         notes=tuple(notes),
+        examples=_raw_examples(headers, raw.columns),
+        role_guesses=tuple(g for g in guesses if role_map.column(g.role) == g.column),
     )
+
+
+def _raw_examples(
+    headers: Sequence[str], columns: Sequence[Sequence[object]], look: int = 2000, keep: int = 4
+) -> dict[str, tuple[str, ...]]:
+    """Each column's most frequent values among its first ``look`` cells, as written."""
+    out: dict[str, tuple[str, ...]] = {}
+    for name, values in zip(headers, columns, strict=True):
+        counts: dict[str, int] = {}
+        for v in values[:look]:
+            if v is None:
+                continue
+            t = str(v).strip()
+            if t:
+                counts[t] = counts.get(t, 0) + 1
+        out[name] = tuple(sorted(counts, key=lambda t: -counts[t])[:keep])
+    return out
 
 
 def _money_and_area_columns(roles: RoleMap, headers: Sequence[str]) -> list[str]:

@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
 from .jsonable import to_jsonable
-from .roles import RoleMap
+from .roles import RoleGuess, RoleMap
 from .settings import AreaUnit
 
 ROW_COLUMN = "_row"
@@ -69,6 +70,11 @@ class SalesTable:
     source: SourceInfo
     area_unit: AreaUnit
     notes: tuple[str, ...] = field(default=())
+    examples: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
+    """Per column, its most frequent values as written in the file (at most four), so a
+    flag read as 1/0 can still be shown as the file's own "Yes"/"No"."""
+    role_guesses: tuple[RoleGuess, ...] = ()
+    """How each role was guessed, when no role map was given (confidence and reason)."""
 
     @property
     def n_used(self) -> int:
