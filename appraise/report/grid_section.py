@@ -31,7 +31,7 @@ def grid_blocks(
                 ("Comparables", str(len(comps))),
                 ("How adjustments combine", d["order_note"]),
             ),
-            "Sales comparison",
+            "The comparison in brief",
         )
     ]
     head = ("Line", *[str(c["sale_id"]) for c in comps])
