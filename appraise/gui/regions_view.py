@@ -68,8 +68,8 @@ def effect_colour_map(low: float, high: float) -> tuple[pg.ColorMap, float]:
     ), span
 
 
-def fill_table(widget: QTableWidget, table: Table) -> None:
-    """Show a worksheet :class:`Table` in a table widget (sorting off while filling)."""
+def fill_table(widget: QTableWidget, table: Table, note: QLabel | None = None) -> None:
+    """Show a worksheet :class:`Table` in a table widget (its note in ``note``)."""
     widget.setSortingEnabled(False)
     widget.clear()
     widget.setColumnCount(len(table.columns))
@@ -82,13 +82,23 @@ def fill_table(widget: QTableWidget, table: Table) -> None:
                 item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
             widget.setItem(i, j, item)
     widget.setToolTip(table.note)
+    if note is not None:
+        note.setText(table.note)
     widget.resizeColumnsToContents()
+
+
+def _note() -> QLabel:
+    label = QLabel()
+    label.setWordWrap(True)
+    label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+    return label
 
 
 def _table() -> QTableWidget:
     t = QTableWidget()
     t.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
     t.verticalHeader().setVisible(False)
+    t.verticalHeader().setDefaultSectionSize(t.fontMetrics().height() + 6)
     t.setWordWrap(False)
     return t
 
@@ -124,8 +134,16 @@ class RegionsView(QWidget):
         lay.setContentsMargins(0, 0, 0, 0)
         lay.addWidget(self.forest, 3)
         lay.addWidget(self.effects, 2)
+        self.effects_note = _note()
+        lay.addWidget(self.effects_note)
 
         self.pairs = _table()
+        pairs_page = QWidget()
+        lay = QVBoxLayout(pairs_page)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.addWidget(self.pairs, 1)
+        self.pairs_note = _note()
+        lay.addWidget(self.pairs_note)
         self.slope_plot = pg.PlotWidget()
         self.slope_plot.setBackground("w")
         self.slope_plot.showGrid(x=True, y=False, alpha=0.2)
@@ -148,6 +166,8 @@ class RegionsView(QWidget):
         lay.setContentsMargins(0, 0, 0, 0)
         lay.addWidget(self.area_plot, 3)
         lay.addWidget(self.area_prices, 2)
+        self.area_note = _note()
+        lay.addWidget(self.area_note)
 
         self.strata = _table()
         self.warnings = QLabel()
@@ -166,7 +186,7 @@ class RegionsView(QWidget):
 
         self.pages = QTabWidget()
         self.pages.addTab(effects_page, "Effects")
-        self.pages.addTab(self.pairs, "Pairs")
+        self.pages.addTab(pairs_page, "Pairs")
         self.pages.addTab(area_page, "Price per area")
         self.pages.addTab(slopes_page, "Slopes")
         self.pages.addTab(strata_page, "Ratio study")
@@ -208,8 +228,9 @@ class RegionsView(QWidget):
             t.clear()
             t.setRowCount(0)
             t.setColumnCount(0)
-        self.slope_note.setText("")
-        self.warnings.setText("")
+        for label in (self.slope_note, self.warnings, self.effects_note, self.pairs_note):
+            label.setText("")
+        self.area_note.setText("")
 
     # --- drawing -------------------------------------------------------------------
     def _show(self, ra: RegionAnalysis) -> None:
@@ -225,12 +246,13 @@ class RegionsView(QWidget):
             + (f" {len(ra.warnings)} warning(s), listed under Ratio study." if ra.warnings else "")
         )
         self.summary.setToolTip("\n".join(ra.warnings))
-        self.warnings.setText("\n".join(f"- {w}" for w in ra.warnings))
-        fill_table(self.effects, effects_table(ra))
-        fill_table(self.pairs, pairwise_table(ra))
+        fill_table(self.effects, effects_table(ra), self.effects_note)
+        fill_table(self.pairs, pairwise_table(ra), self.pairs_note)
         st = strata_table(ra)
         if st is not None:
             fill_table(self.strata, st)
+        notes = [st.note] if st is not None else []
+        self.warnings.setText("\n".join([*notes, *(f"- {w}" for w in ra.warnings)]))
         self._draw_forest(ra)
         self._draw_area_prices(ra)
         self._draw_slopes(ra)
@@ -293,7 +315,7 @@ class RegionsView(QWidget):
             plot.setTitle("No living-area column in the model (living_area role)")
             self.area_prices.setRowCount(0)
             return
-        fill_table(self.area_prices, table)
+        fill_table(self.area_prices, table, self.area_note)
         rows = sorted(ra.area_prices, key=lambda a: a.per_unit.value)
         y = np.arange(len(rows), dtype=float)
         x = np.array([a.per_unit.value for a in rows])

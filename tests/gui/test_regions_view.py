@@ -71,7 +71,8 @@ def test_strata_and_map(view):
     ra = view.analysis
     # all sales, six regions, four price tiers
     assert view.strata.rowCount() == 1 + 6 + 4
-    assert view.warnings.text().count("- ") == len(ra.warnings)
+    assert view.warnings.text().count("\n- ") == len(ra.warnings)
+    assert "Holm" in view.pairs_note.text()
     east, north, effect = view.map_points(ra)
     assert len(east) == ra.n
     assert np.isfinite(effect).all()
