@@ -198,3 +198,21 @@ def test_worksheet_has_a_neighbourhood_section_with_the_subject_marked(tmp_path)
     model.write_text('target = "price"\nfeatures = ["living_area", "bathrooms"]\n')
     plain = pipeline.fit(sales, pipeline.read_model(model))
     assert build_worksheet(plain, pipeline.value(plain, SUBJECT)).section("neighbourhoods") is None
+
+
+def test_another_onehot_term_can_be_named(capsys):
+    code, out, _ = _run(
+        capsys, "regions", SALES, "--model", MODEL, "--term", "Condition", "--json", "--trim"
+    )
+    assert code == 0
+    d = json.loads(out)
+    assert d["region_term"]["reference"] == "average"
+    assert sorted(e["level"] for e in d["effects"]) == [
+        "average", "excellent", "fair", "good", "poor",
+    ]  # fmt: skip
+    assert d["strata"]["overall"]["trim"] is True
+    # the generator's condition effects (sample_data/generate.py), average = 0
+    truth = {"poor": -0.18, "fair": -0.08, "good": 0.06, "excellent": 0.12}
+    for e in d["effects"]:
+        if not e["reference"]:
+            assert e["effect"]["low"] <= truth[e["level"]] <= e["effect"]["high"], e["level"]
