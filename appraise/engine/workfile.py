@@ -320,6 +320,8 @@ def save_workfile(path: str | Path, state: WorkfileState) -> WorkfileState:
     temporary file in the same folder, which is flushed, fsync'ed and moved over
     ``path`` with :func:`os.replace` (atomic on POSIX and Windows). On any
     failure the temporary file is removed and the old workfile is left as it was.
+    Temporary files that earlier, interrupted saves left are then dealt with
+    (:func:`clean_interrupted_saves`).
     """
     target = Path(path).expanduser()
     now = _now()
@@ -352,6 +354,7 @@ def save_workfile(path: str | Path, state: WorkfileState) -> WorkfileState:
         _remove_quietly(tmp_name)
         raise
     _fsync_folder(folder)
+    clean_interrupted_saves(target)  # what earlier interrupted saves left, never a live one
     return written
 
 

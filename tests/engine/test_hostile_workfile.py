@@ -284,9 +284,10 @@ def test_kill_during_save_leaves_a_loadable_file_and_no_orphans(tmp_path):
         removed += sum("removed" in s for s in state.recovered)
         kept += sum("kept as" in s for s in state.recovered)
         assert not [p for p in tmp_path.iterdir() if p.name.endswith(".tmp")]
-    # each kill left at most one temporary file, and every one was dealt with
+    # each kill left at most one temporary file, and every one was dealt with (by the next
+    # open here, or by the next child's save, which cleans up what a dead writer left)
     recovered = list(tmp_path.glob("w.appraise.recovered-*.json"))
-    assert len(recovered) == kept and removed + kept <= KILLS
+    assert kept <= len(recovered) <= KILLS and removed + kept <= KILLS
     for p in recovered:
         assert load_workfile(p).format == "appraise-workfile"
 
