@@ -23,6 +23,10 @@ SYNTAX_EXAMPLES: tuple[tuple[str, str], ...] = (
     ("lot_area / living_area", "a ratio of two columns"),
     ("hinge(age, 60)", "zero up to 60 years, then the years beyond: a bend in the age effect"),
     ("onehot(region, ref='Old Mill')", "one 0/1 column per neighbourhood except the reference"),
+    (
+        "living_area * onehot(region)",
+        "with living_area and onehot(region) too: a price per unit of area in each neighbourhood",
+    ),
     ("poly(age, degree=2)", "age and age squared (every product up to the degree)"),
     ("months_between(sale_date, '2026-06-30')", "months from the date of value: market change"),
 )
