@@ -252,7 +252,7 @@ def test_a_random_json_document_fails_clearly(value, marked):
 
 # --- a save killed at a random moment ------------------------------------------------------
 def _save_forever(path: str, ready) -> None:  # runs in the child process
-    big = os.urandom(3 << 20)  # a 3 MiB embedded copy makes each save take a while
+    big = os.urandom(2 << 20)  # a 2 MiB embedded copy makes each save take a while
     state = _state(
         sales_sha256=hashlib.sha256(big).hexdigest(), embedded_sales=EmbeddedSales("s.csv", big)
     )
@@ -264,6 +264,7 @@ def _save_forever(path: str, ready) -> None:  # runs in the child process
 KILLS = 6
 
 
+@pytest.mark.slow  # six child processes, each killed mid-save: 5 to 15 s
 @pytest.mark.skipif(os.name != "posix", reason="fork and SIGKILL are POSIX")
 def test_kill_during_save_leaves_a_loadable_file_and_no_orphans(tmp_path):
     path = tmp_path / "w.appraise.json"
