@@ -287,6 +287,17 @@ class _Walker:
     def convert(self, node: ast.AST, *, top: bool = False, text_ok: bool = False) -> Node:
         if isinstance(node, ast.BinOp):
             op = _BINOPS.get(type(node.op))
+            if isinstance(node.op, ast.BitXor):  # a ^ b: a power as spreadsheets write it
+                left, right = (
+                    f"({self.piece(n)})"
+                    if isinstance(n, ast.BinOp | ast.UnaryOp)
+                    else self.piece(n)
+                    for n in (node.left, node.right)
+                )
+                fixed = f"{left} ** {right}"
+                raise ExpressionError(
+                    f"in '{self.expr}': use ** for powers: {fixed} (^ is not a power here)"
+                )
             if op is None:
                 sym = {ast.FloorDiv: "//", ast.Mod: "%", ast.MatMult: "@"}.get(type(node.op))
                 name = f"operator {sym}" if sym else "a bitwise operator"
@@ -855,7 +866,41 @@ def check_expression(
     ------
     ExpressionError, UnknownNameError
     """
-    NameScope.of(columns, derived, roles).resolve(parse_expression(expr), expr)
+    try:
+        NameScope.of(columns, derived, roles).resolve(parse_expression(expr), expr)
+    except ExpressionError as exc:
+        fixed = backquote_hint(expr, columns)
+        if fixed is None:
+            raise
+        raise ExpressionError(f"a header with spaces or symbols needs backquotes: {fixed}") from exc
+
+
+def backquote_hint(expr: str, columns: Sequence[str]) -> str | None:
+    """``expr`` with each header that needs backquotes put in them, when that is what
+    keeps it from being read; None when no such header is written bare in it.
+
+    ``log(Living Area (sq ft))`` with a column ``Living Area (sq ft)`` gives
+    ``log(`Living Area (sq ft)`)``. Longer headers are tried first, so a header that is
+    part of another is never quoted inside it.
+    """
+    if not isinstance(expr, str) or "`" in expr:
+        return None
+    needy = sorted((c for c in columns if quote_name(c) != c), key=len, reverse=True)
+    text, marks = expr, {}
+    for k, header in enumerate(needy):
+        if header in text:
+            mark = f"\x00{k}\x00"
+            marks[mark] = quote_name(header)
+            text = text.replace(header, mark)
+    if not marks:
+        return None
+    for mark, quoted in marks.items():
+        text = text.replace(mark, quoted)
+    try:
+        parse_expression(text)
+    except ExpressionError:
+        return None
+    return text
 
 
 def expression_inputs(

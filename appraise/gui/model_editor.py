@@ -15,6 +15,7 @@ from dataclasses import replace
 from types import MappingProxyType
 
 from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QKeySequence, QShortcut
 from PySide6.QtWidgets import (
     QComboBox,
     QDialog,
@@ -41,6 +42,7 @@ from appraise.engine.sales import ROW_COLUMN
 from appraise.engine.spread import SPREAD_METHOD_TEXT
 from appraise.report.levels_text import level_lines
 
+from .feature_picker import FeaturePicker, picker_entries
 from .session import Session
 
 COV_LABELS = {
@@ -123,6 +125,15 @@ class ExpressionRow(QWidget):
     def name(self) -> str:
         return self.name_edit.text().strip() if self.name_edit is not None else ""
 
+    def is_blank(self) -> bool:
+        """Nothing typed yet (a new row): neither checked nor part of the model."""
+        return not self.expression and not self.name
+
+    def show_blank(self) -> None:
+        self.error = None
+        self.status.setText("<span style='color:#555555'>type a feature</span>")
+        self.status.setToolTip("")
+
     def show_check(self, error: str | None) -> None:
         self.error = error
         if error is None:
@@ -180,15 +191,22 @@ class _PickDialog(QDialog):
     """A small form of drop-downs (and optionally a degree) for one helper."""
 
     def __init__(
-        self, parent: QWidget, title: str, fields: list[tuple[str, list[str]]], degree: bool = False
+        self,
+        parent: QWidget,
+        title: str,
+        fields: list[tuple[str, list[str]]],
+        degree: bool = False,
+        defaults: list[str] | None = None,
     ) -> None:
         super().__init__(parent)
         self.setWindowTitle(title)
         form = QFormLayout(self)
         self.combos: list[QComboBox] = []
-        for label, choices in fields:
+        for k, (label, choices) in enumerate(fields):
             c = QComboBox()
             c.addItems(choices)
+            if defaults and k < len(defaults) and defaults[k] in choices:
+                c.setCurrentIndex(choices.index(defaults[k]))
             form.addRow(label, c)
             self.combos.append(c)
         self.degree: QSpinBox | None = None
@@ -242,7 +260,13 @@ class ModelEditor(QWidget):
             "variance that follows the predicted price (see Checks: coverage by segment)"
         )
 
+        self.title = QLineEdit()
+        self.title.setObjectName("modelTitle")
+        self.title.setPlaceholderText("A name for this model, shown in the worksheet")
+        self.title.textChanged.connect(lambda _t: self._edited())
+
         head = QFormLayout()
+        head.addRow("Tit&le", self.title)
         head.addRow("&Price column", self.target)
         head.addRow("&Response", self.response)
         head.addRow("&Interval level", self.level)
@@ -255,8 +279,16 @@ class ModelEditor(QWidget):
         self.new_feature.returnPressed.connect(self._add_typed_feature)
         self.add_button = QPushButton("&Add")
         self.add_button.clicked.connect(self._add_typed_feature)
+        self.names_button = QPushButton("Na&mes… (F2)")
+        self.names_button.setToolTip("Every role name and header you can type, with its kind")
+        self.names_button.clicked.connect(self.open_picker)
+        self.picker: FeaturePicker | None = None
+        picker_key = QShortcut(QKeySequence("F2"), self)
+        picker_key.setContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
+        picker_key.activated.connect(self.open_picker)
         add_row = QHBoxLayout()
         add_row.addWidget(self.new_feature, 1)
+        add_row.addWidget(self.names_button)
         add_row.addWidget(self.add_button)
 
         helpers = QHBoxLayout()
@@ -353,6 +385,7 @@ class ModelEditor(QWidget):
             return
         self._filling = True
         self.target.setEditText(spec.target)
+        self.title.setText(spec.title)
         self.response.setCurrentIndex(max(0, self.response.findData(spec.response)))
         self.level.setValue(round(spec.level * 100.0, 1))
         self.cov_type.setCurrentIndex(max(0, self.cov_type.findData(spec.cov_type)))
@@ -381,6 +414,9 @@ class ModelEditor(QWidget):
         bad = 0
         seen: set[str] = set()
         for row in self.derived.rows:
+            if row.is_blank():  # a new row: nothing to check until something is typed
+                row.show_blank()
+                continue
             error = None
             if not row.name.isidentifier():
                 error = "the name must be a plain word (letters, digits, _)"
@@ -397,6 +433,9 @@ class ModelEditor(QWidget):
             bad += error is not None
         features = []
         for row in self.features.rows:
+            if row.is_blank():
+                row.show_blank()
+                continue
             error = (
                 "empty" if not row.expression else _check(row.expression, columns, derived, roles)
             )
@@ -423,6 +462,7 @@ class ModelEditor(QWidget):
         base = self._session.spec or ModelSpec(target=target, features=tuple(features))
         return replace(
             base,
+            title=self.title.text().strip(),
             target=target,
             features=tuple(features),
             response=self.response.currentData(),
@@ -471,38 +511,86 @@ class ModelEditor(QWidget):
         fields: list[tuple[str, list[str]]],
         degree: bool = False,
         build: Callable[[list[str], int], str] | None = None,
+        defaults: list[str] | None = None,
     ) -> None:
         if not all(choices for _l, choices in fields):
-            self.summary.setText(f"{title}: load sales first.")
+            self.summary.setText(f"{title}: load sales with at least one number column first.")
             return
-        dlg = _PickDialog(self, title, fields, degree)
+        dlg = _PickDialog(self, title, fields, degree, defaults)
         if dlg.exec() == QDialog.DialogCode.Accepted and build is not None:
             d = dlg.degree.value() if dlg.degree is not None else 0
             self.add_feature(build(dlg.values(), d))
 
+    def numeric_names(self) -> list[str]:
+        """Names of number columns as typed (role names first), never the price itself."""
+        sales = self._session.sales
+        if sales is None:
+            return []
+        price_col = sales.roles.column("price")
+        target = self.target.currentText().strip()
+        out = []
+        for e in picker_entries(sales, self._derived_now()):
+            if e.kind not in ("number", "binary"):
+                continue
+            header = e.detail if e.source == "role" else e.text.strip("`")
+            if e.text in ("price", target) or (e.source != "derived" and header == price_col):
+                continue
+            out.append(e.text.strip("`") if e.source == "header" else e.text)
+        return list(dict.fromkeys(out))
+
+    def _derived_now(self) -> dict[str, str]:
+        return {r.name: r.expression for r in self.derived.rows if r.name and r.expression}
+
+    def _defaults(self, names: list[str], *preferred: str) -> list[str]:
+        """The preferred names found in ``names`` (in order), then the first other ones."""
+        picked = [p for p in preferred if p in names]
+        picked += [n for n in names if n not in picked]
+        return picked
+
     def insert_polynomial(self) -> None:
+        names = self.numeric_names()
         self._ask(
             "Polynomial",
-            [("&Variable", self.available_names())],
+            [("&Variable", names)],
             degree=True,
             build=lambda v, d: poly_expression([v[0]], d),
+            defaults=self._defaults(names, "age", "living_area")[:1],
         )
 
     def insert_interaction(self) -> None:
-        names = self.available_names()
+        names = self.numeric_names()
         self._ask(
             "Interaction",
             [("&First", names), ("&Second", names)],
             build=lambda v, _d: interaction_expression(v[0], v[1]),
+            defaults=self._defaults(names, "living_area", "dist_km", "lot_area", "age")[:2],
         )
 
     def insert_ratio(self) -> None:
-        names = self.available_names()
+        names = self.numeric_names()
         self._ask(
             "Ratio",
             [("&Numerator", names), ("&Denominator", names)],
             build=lambda v, _d: ratio_expression(v[0], v[1]),
+            defaults=self._defaults(names, "lot_area", "living_area")[:2],
         )
+
+    # --- the picker -------------------------------------------------------------------------
+    def open_picker(self) -> FeaturePicker:
+        """Show the names that can be typed; the one chosen goes into the new-feature line."""
+        if self.picker is None:
+            self.picker = FeaturePicker(self)
+            self.picker.chosen.connect(self.insert_name)
+        self.picker.set_entries(picker_entries(self._session.sales, self._derived_now()))
+        self.picker.show()
+        self.picker.raise_()
+        self.picker.filter.setFocus()
+        return self.picker
+
+    def insert_name(self, text: str) -> None:
+        """Insert ``text`` at the cursor of the new-feature line (what the picker does)."""
+        self.new_feature.insert(text)
+        self.new_feature.setFocus()
 
     def insert_indicators(self) -> None:
         sales = self._session.sales

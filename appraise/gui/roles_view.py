@@ -18,7 +18,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from appraise.engine.roles import REQUIRED_ROLES, ROLES, RoleMap, suggest_roles
+from appraise.engine.roles import REQUIRED_ROLES, ROLES, RoleGuess, RoleMap, guess_roles
 from appraise.engine.sales import ROW_COLUMN
 from appraise.report.numbers import plain
 
@@ -34,15 +34,32 @@ class RolesView(QWidget):
         super().__init__(parent)
         self._session = session
         self.combos: dict[str, QComboBox] = {}
+        self.confidence: dict[str, QLabel] = {}
+        self._guesses: dict[str, RoleGuess] = {}
         form = QFormLayout()
         for role, description in ROLES.items():
             combo = QComboBox()
             combo.setObjectName(f"role_{role}")
-            combo.setToolTip(description)
+            combo.setToolTip(f"{description}. In a feature, type {role}.")
             combo.currentIndexChanged.connect(self._edited)
+            combo.setMinimumContentsLength(12)
+            combo.setSizeAdjustPolicy(
+                QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon
+            )
             self.combos[role] = combo
-            label = description + (" *" if role in REQUIRED_ROLES else "")
-            form.addRow(label, combo)
+            sure = QLabel()
+            sure.setObjectName(f"role_confidence_{role}")
+            self.confidence[role] = sure
+            cell = QHBoxLayout()
+            cell.setContentsMargins(0, 0, 0, 0)
+            cell.addWidget(combo, 1)
+            cell.addWidget(sure)
+            label = QLabel(
+                f"{description}{' *' if role in REQUIRED_ROLES else ''}<br>"
+                f"<span style='color:#555555'><code>{role}</code></span>"
+            )
+            label.setToolTip(f"The name to type in a feature: {role}")
+            form.addRow(label, cell)
         inner = QWidget()
         inner.setLayout(form)
         scroll = QScrollArea()
@@ -53,7 +70,10 @@ class RolesView(QWidget):
         self.note.setWordWrap(True)
         self.apply_button = QPushButton("&Apply roles")
         self.apply_button.clicked.connect(self.apply)
-        self.suggest_button = QPushButton("S&uggest from headers")
+        self.suggest_button = QPushButton("S&uggest from headers and values")
+        self.suggest_button.setToolTip(
+            "Guess each role from the headers and what the columns hold; Apply to confirm"
+        )
         self.suggest_button.clicked.connect(self.suggest)
         buttons = QHBoxLayout()
         buttons.addWidget(self.suggest_button)
@@ -73,8 +93,11 @@ class RolesView(QWidget):
         sales = self._session.sales
         return [] if sales is None else [c for c in sales.frame.columns if c != ROW_COLUMN]
 
-    def show_roles(self, roles: RoleMap | None = None) -> None:
-        """Fill the drop-downs from ``roles`` (default: the map the sales were read with)."""
+    def show_roles(
+        self, roles: RoleMap | None = None, guesses: tuple[RoleGuess, ...] | None = None
+    ) -> None:
+        """Fill the drop-downs from ``roles`` (default: the map the sales were read with);
+        ``guesses`` give the confidence shown beside each (default: the import's guesses)."""
         sales = self._session.sales
         headers = self._headers()
         if roles is None:
@@ -88,15 +111,41 @@ class RolesView(QWidget):
             col = roles.column(role)
             combo.setCurrentIndex(max(0, combo.findData(col)) if col else 0)
             combo.blockSignals(False)
+        if guesses is not None:
+            self._guesses = {g.role: g for g in guesses}
+        elif sales is not None:
+            self._guesses = {g.role: g for g in sales.role_guesses}
+        else:
+            self._guesses = {}
         self.setEnabled(sales is not None)
         self._edited()
 
+    def _show_confidence(self) -> None:
+        """Beside each role: how sure the guess for the column shown is (and why, on hover)."""
+        for role, label in self.confidence.items():
+            guess = self._guesses.get(role)
+            if guess is not None and self.combos[role].currentData() == guess.column:
+                colour = {"high": "#2e7d32", "medium": "#8a6d00", "low": "#c62828"}[
+                    guess.confidence
+                ]
+                label.setText(f"<span style='color:{colour}'>{guess.confidence}</span>")
+                label.setToolTip(f"Guessed: {guess.reason}. Apply to confirm, or choose another.")
+            else:
+                label.setText("")
+                label.setToolTip("")
+
     def _label(self, header: str) -> str:
-        """``Header  (e.g. 412,500)``: the column with a first value to recognise it by."""
+        """``Header  (e.g. 412,500)``: the column with values to recognise it by, as the
+        file writes them (a yes/no flag shows ``Yes / No``, not the 1 it is read as)."""
         sales = self._session.sales
-        if sales is None or sales.frame.empty:
+        if sales is None:
             return header
-        values = sales.frame[header].dropna()
+        written = sales.examples.get(header, ())
+        values = sales.frame[header].dropna() if header in sales.frame.columns else ()
+        if written and len(written) <= 2:
+            return f"{header}   ({' / '.join(written)})"
+        if written:
+            return f"{header}   (e.g. {written[0]})"
         return f"{header}   (e.g. {plain(values.iloc[0])})" if len(values) else header
 
     def role_map(self) -> RoleMap:
@@ -105,8 +154,25 @@ class RolesView(QWidget):
             columns={r: c.currentData() for r, c in self.combos.items() if c.currentData()}
         )
 
+    def _values_as_written(self, header: str) -> list:
+        """The column's values to guess from: a flag read as 1/0 by the file's own words."""
+        sales = self._session.sales
+        column = sales.frame[header].dropna()
+        written = sales.examples.get(header, ())
+        numeric = column.dtype.kind in "fiu"
+        if written and numeric and set(column.unique()) <= {0, 1}:
+            return list(written)
+        return column.head(2000).tolist()
+
     def suggest(self) -> None:
-        self.show_roles(suggest_roles(self._headers()))
+        """Guess the roles from the headers and the columns' values; Apply confirms."""
+        sales = self._session.sales
+        headers = self._headers()
+        values = None
+        if sales is not None:
+            values = {h: self._values_as_written(h) for h in headers}
+        guesses = guess_roles(headers, values)
+        self.show_roles(RoleMap({g.role: g.column for g in guesses}), guesses)
 
     def apply(self) -> None:
         self._session.set_roles(self.role_map())
@@ -128,4 +194,5 @@ class RolesView(QWidget):
         if pending and not lines:
             lines.append("Changed: Apply to read the file again with these roles.")
         self.note.setText(" ".join(lines))
+        self._show_confidence()
         self.apply_button.setEnabled(pending and not missing and not twice)
