@@ -46,6 +46,11 @@ log price for a log response, "price" values are in the currency of the sales):
     source, note}``; names "median", "mean", "weighted_mean", "cod", "prd", "prb",
     "ppe10").
 - ``warnings``: list of text.
+
+``--sales-out FILE`` also writes one row per row of the sales file (CSV, or XLSX by
+its suffix): the sale's columns, whether it was used (or why not), the fitted value,
+the leave-one-out value and interval, the ratio, leverage, studentized residual,
+Cook's distance and the flags in words.
 """
 
 from __future__ import annotations
@@ -104,6 +109,12 @@ def register(sub) -> None:
     add_model_argument(p)
     add_json_argument(p)
     add_diagnostic_arguments(p)
+    p.add_argument(
+        "--sales-out",
+        metavar="FILE.csv|FILE.xlsx",
+        help="also write every sale with its fitted and leave-one-out value, interval, "
+        "ratio and flags (spreadsheet-safe)",
+    )
     p.set_defaults(func=run)
 
 
@@ -111,6 +122,12 @@ def run(args: argparse.Namespace) -> int:
     settings = diagnostic_settings(args)
     _, spec, fit = fit_from_args(args)
     diag = pipeline.check(fit, settings)
+    if args.sales_out:
+        from ..report.sales_export import write_sales_results
+
+        written = write_sales_results(fit, diag, args.sales_out)
+        if not args.json:
+            print(f"Wrote {written}")
     if args.json:
         print_json({"caution": SHORT_CAUTION, **diag.to_dict()})
     else:

@@ -49,12 +49,27 @@ def register(sub) -> None:
     )
     p.add_argument("--no-grid", action="store_true", help="leave out the sales-comparison section")
     p.add_argument(
-        "--page-size", choices=PAGE_SIZES, default="A4", help="paper size of the PDF (default A4)"
+        "--page-size",
+        choices=PAGE_SIZES,
+        default=None,
+        help="paper size of the PDF (default: the locale's, Letter in the US, else A4)",
     )
     p.add_argument(
         "--tables-dir",
         metavar="DIR",
         help="also write coefficients and exclusions as CSV and XLSX into DIR",
+    )
+    p.add_argument(
+        "--tables",
+        metavar="FILE.xlsx|DIR",
+        help="also write every table of the worksheet (and the sales with their results): "
+        "one workbook with a sheet each, or a CSV per table into DIR",
+    )
+    p.add_argument(
+        "--sales-out",
+        metavar="FILE.csv|FILE.xlsx",
+        help="also write every sale with its fitted and leave-one-out value, interval, "
+        "ratio and flags (spreadsheet-safe)",
     )
     p.add_argument("--currency", default="$", help="currency symbol printed (default '$')")
     p.add_argument(
@@ -93,6 +108,9 @@ def run(args: argparse.Namespace) -> int:
         user_exclusions=workfile_exclusions(args),
     )
     fit, valuation, diagnostics = run_.fit, run_.valuation, run_.diagnostics
+    from ..report.paper import default_page_size
+
+    args.page_size = args.page_size or default_page_size()
     settings = ReportSettings(currency=args.currency, page_size=args.page_size)
     grid, grid_figs = None, ()
     if not args.no_grid:
@@ -136,6 +154,18 @@ def run(args: argparse.Namespace) -> int:
     if args.tables_dir:
         for path in export_tables(worksheet, args.tables_dir):
             print(f"Wrote {path}")
+    if args.tables or args.sales_out:
+        from ..report.sales_export import sales_results_table, write_sales_results
+        from ..report.tables import export_all_tables
+
+        extra = () if diagnostics is None else (sales_results_table(fit, diagnostics),)
+        if args.tables:
+            for path in export_all_tables(worksheet, args.tables, extra=extra):
+                print(f"Wrote {path}")
+        if args.sales_out:
+            if diagnostics is None:
+                raise ReportError("--sales-out needs the model check (drop --no-diagnostics)")
+            print(f"Wrote {write_sales_results(fit, diagnostics, args.sales_out)}")
     cur = args.currency
     print(
         f"Estimate {money(valuation.estimate, cur)}; {100 * valuation.level:g}% prediction "

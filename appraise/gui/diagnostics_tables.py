@@ -22,7 +22,9 @@ from PySide6.QtGui import QBrush, QColor
 from appraise.engine.diagnostics import Diagnostics
 from appraise.engine.diagnostics.coverage import OUTSIDE_POINTS, THIN_SEGMENT
 from appraise.engine.spread import SPREAD_METHOD_TEXT
-from appraise.report.numbers import MISSING, money, pvalue
+from appraise.report.diagnostics_section import PRB_CI_LEVEL
+from appraise.report.labels import RATIO_MEASURE_LABELS, term_label, without_source_tags
+from appraise.report.numbers import MISSING, money, number, p_phrase, percent, pvalue
 
 from .diagnostics_plots import FLAG_COLOUR, number_text, positions_by_row
 from .plot_items import OKABE_ITO
@@ -79,11 +81,15 @@ def summary_items(d: Diagnostics, currency: str = "$") -> tuple[SummaryItem, ...
         if m.name == "ppe10" and value != MISSING:
             value += "%"
         if m.name == "prb" and math.isfinite(m.ci_low):
-            value += f" [{measure_text(m.name, m.ci_low)}, {measure_text(m.name, m.ci_high)}]"
+            value += (
+                f" ({percent(PRB_CI_LEVEL)}: {measure_text(m.name, m.ci_low)} to "
+                f"{measure_text(m.name, m.ci_high)})"
+            )
         verdict = m.verdict if m.verdict in ("within", "outside") else "info"
         reference = f"range {m.range_text()}" if m.range_text() else "no range in the standard"
-        detail = "; ".join(t for t in (m.source, m.note) if t)
-        items.append(SummaryItem(m.name, m.label, value, reference, verdict, detail))
+        detail = "; ".join(without_source_tags(t) for t in (m.source, m.note) if t)
+        label = RATIO_MEASURE_LABELS.get(m.name, m.label)
+        items.append(SummaryItem(m.name, label, value, reference, verdict, detail))
     loo, kf = d.loo, d.kfold
     items.append(
         SummaryItem(
@@ -133,7 +139,7 @@ def summary_items(d: Diagnostics, currency: str = "$") -> tuple[SummaryItem, ...
             "spread",
             "error spread",
             "uneven" if rt.heteroskedastic else "even",
-            f"Breusch-Pagan p = {pvalue(rt.koenker.p_value)}",
+            f"Breusch-Pagan (Koenker), {p_phrase(rt.koenker.p_value)}",
             "outside" if rt.heteroskedastic else "within",
             "\n".join(rt.suggestions) or "studentized Breusch-Pagan test finds no uneven spread",
         )
@@ -158,17 +164,21 @@ def _pct(x: float) -> str:
 
 def flagged_cells(d: Diagnostics) -> list[tuple[str, str, str]]:
     """Row, sale id and findings of each flagged sale, most influential first."""
-    return [(str(f.row), f.sale_id or "", "; ".join(x.text for x in f.findings)) for f in d.flags]
+    return [
+        (str(f.row), f.sale_id or "", "; ".join(without_source_tags(x.text) for x in f.findings))
+        for f in d.flags
+    ]
 
 
 def term_cells(d: Diagnostics) -> tuple[list[tuple[str, ...]], dict[tuple[int, int], str]]:
-    """One row per model term: its (G)VIF, GVIF^(1/(2 df)), the rule and the verdict."""
+    """One row per model term: its variance inflation ((G)VIF), its standard-error
+    inflation (GVIF^(1/(2 df))), the rule and the verdict."""
     cells, colours = [], {}
     for k, t in enumerate(d.collinearity.terms):
         verdict = "\u2717 redundant" if t.flagged else "\u2713 fine"
         cells.append(
             (
-                t.expression,
+                term_label(t.expression),
                 t.kind,
                 str(t.df),
                 number_text(t.gvif, ".4g"),
@@ -186,15 +196,17 @@ def measure_cells(d: Diagnostics) -> tuple[list[tuple[str, ...]], dict, list[str
     cells, colours, tips = [], {}, []
     for k, m in enumerate(d.ratio_study.measures):
         ci = (
-            f"[{m.ci_low:.4f}, {m.ci_high:.4f}]"
+            f"{m.ci_low:.4f} to {m.ci_high:.4f}"
             if math.isfinite(m.ci_low) and math.isfinite(m.ci_high)
             else ""
         )
         words = VERDICT_MARKS[m.verdict][0] if m.verdict in ("within", "outside") else "no range"
-        cells.append((m.label, number_text(m.value, ".4f"), ci, m.range_text(), words))
+        value = number_text(m.value, ".4f") + ("%" if m.name == "ppe10" else "")
+        label = RATIO_MEASURE_LABELS.get(m.name, m.label)
+        cells.append((label, value, ci, m.range_text(), words))
         if m.verdict in ("within", "outside"):
             colours[(k, 4)] = VERDICT_MARKS[m.verdict][1]
-        tips.append("; ".join(t for t in (m.source, m.note) if t))
+        tips.append("; ".join(without_source_tags(t) for t in (m.source, m.note) if t))
     return cells, colours, tips
 
 
@@ -218,8 +230,7 @@ def coverage_html(d: Diagnostics, verdict) -> list[str]:
         out.append(
             "<tr>"
             + "".join(
-                f"<td>{escape(x)}</td>"
-                for x in (s.by, s.label, f"{s.n:,}", _pct(100 * s.coverage))
+                f"<td>{escape(x)}</td>" for x in (s.by, s.label, f"{s.n:,}", _pct(100 * s.coverage))
             )
             + f"<td>{mark}</td></tr>"
         )
@@ -245,14 +256,15 @@ def tests_html(d: Diagnostics, currency: str = "$") -> str:
         f"<h3>Residual tests (alpha {rt.alpha:g})</h3>",
         '<table border="1" cellspacing="0" cellpadding="3">',
         "<tr><th>Test</th><th>Statistic</th><th>df</th><th>p</th><th>Verdict</th></tr>",
-        row(("Breusch-Pagan, studentized n R² (Koenker)", f"{k.statistic:.4g}", str(k.df),
-             pvalue(k.p_value)), verdict(rt.heteroskedastic, "even spread", "uneven spread")),
-        row(("Breusch-Pagan, studentized, F form", f"{k.f_statistic:.4g}",
+        row(("Breusch-Pagan, Koenker's studentized form (n R²)", number(k.statistic, 4),
+             str(k.df), pvalue(k.p_value)),
+            verdict(rt.heteroskedastic, "even spread", "uneven spread")),
+        row(("Breusch-Pagan, Koenker's form as an F test", number(k.f_statistic, 4),
              f"{k.df}, {d.n - k.df - 1}", pvalue(k.f_p_value))),
-        row(("Breusch-Pagan, original ESS/2 (assumes normal errors)", f"{o.statistic:.4g}",
-             str(o.df), pvalue(o.p_value))),
+        row(("Breusch-Pagan, original form, ESS/2 (assumes normal errors)",
+             number(o.statistic, 4), str(o.df), pvalue(o.p_value))),
         row((f"Jarque-Bera (skewness {j.skewness:.2f}, kurtosis {j.kurtosis:.2f})",
-             f"{j.statistic:.4g}", "2", pvalue(j.p_value)),
+             number(j.statistic, 4), "2", pvalue(j.p_value)),
             verdict(rt.non_normal, "normal", "not normal")),
         "</table>",
         "<p>The verdict on spread uses the studentized form, which does not assume normal "
@@ -264,7 +276,7 @@ def tests_html(d: Diagnostics, currency: str = "$") -> str:
         "<h3>Accuracy on sales left out of the fit</h3>",
         '<table border="1" cellspacing="0" cellpadding="3">',
         "<tr><th>Measure</th><th>Value</th><th>Reference</th><th></th><th>Verdict</th></tr>",
-        row((f"PRESS ({scale})", f"{loo.press:.5g}", "", "")),
+        row((f"PRESS ({scale})", number(loo.press, 5), "", "")),
         row(("Leave-one-out RMSE", money(loo.rmse_price, currency), "", "")),
         row(("Leave-one-out median absolute % error", _pct(loo.mdape), "", "")),
         row((f"{kf.folds}-fold RMSE (seed {kf.seed})", money(kf.rmse_price, currency), "", "")),
@@ -319,7 +331,11 @@ def condition_text(d: Diagnostics) -> str:
     )
     for dep in cond.dependences:
         text += f" Near-dependence (index {dep.index:.1f}): {', '.join(dep.columns)}."
-    return text + " GVIF: Fox and Monette (1992); a term of one column shows its VIF."
+    return text + (
+        " Variance inflation: the VIF of a one-column term, the generalized VIF of a group "
+        "(Fox and Monette 1992); standard-error inflation: how many times wider the term's "
+        "interval is because of the other terms, GVIF^(1/(2 df))."
+    )
 
 
 # --- table models ------------------------------------------------------------------------------

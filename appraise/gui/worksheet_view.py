@@ -32,8 +32,10 @@ from appraise.qtrender.pdf import build_document, page_size_of, paint_pages, wri
 from appraise.report.cautions import ONE_LINE_CAUTION
 from appraise.report.content import PAGE_SIZES, Worksheet
 from appraise.report.html import render_html
+from appraise.report.paper import default_page_size
+from appraise.report.sales_export import sales_results_table, write_sales_results
 from appraise.report.settings import ReportSettings
-from appraise.report.tables import export_tables
+from appraise.report.tables import export_all_tables
 from appraise.report.worksheet import build_worksheet
 
 from .session import Session
@@ -64,6 +66,7 @@ class WorksheetView(QWidget):
         self.state.setWordWrap(True)
         self.page_size = QComboBox()
         self.page_size.addItems(list(PAGE_SIZES))
+        self.page_size.setCurrentText(default_page_size())  # Letter in the US, else A4
         self.page_size.currentTextChanged.connect(self._page_size_changed)
         self.print_button = QPushButton("&Print…")
         self.print_button.clicked.connect(self.print_worksheet)
@@ -73,11 +76,23 @@ class WorksheetView(QWidget):
         self.html_button.clicked.connect(self._ask_export_html)
         self.tables_button = QPushButton("Export &tables…")
         self.tables_button.clicked.connect(self._ask_export_tables)
+        self.sales_button = QPushButton("Export &sales…")
+        self.sales_button.setToolTip(
+            "Every sale with its fitted value, leave-one-out value and interval, ratio and "
+            "flags, as CSV or XLSX"
+        )
+        self.sales_button.clicked.connect(self._ask_export_sales)
         bar = QHBoxLayout()
         bar.addWidget(QLabel("Paper:"))
         bar.addWidget(self.page_size)
         bar.addStretch(1)
-        for b in (self.print_button, self.pdf_button, self.html_button, self.tables_button):
+        for b in (
+            self.print_button,
+            self.pdf_button,
+            self.html_button,
+            self.tables_button,
+            self.sales_button,
+        ):
             bar.addWidget(b)
 
         self.preview = QTextBrowser()
@@ -189,6 +204,9 @@ class WorksheetView(QWidget):
         ready = self._worksheet is not None
         for b in (self.print_button, self.pdf_button, self.html_button, self.tables_button):
             b.setEnabled(ready)
+        self.sales_button.setEnabled(
+            self._session.fit is not None and self._session.diagnostics is not None
+        )
 
     def _ensure_worksheet(self) -> Worksheet | None:
         if self._worksheet is None or self._dirty:
@@ -210,6 +228,26 @@ class WorksheetView(QWidget):
         p = Path(path)
         p.write_text(render_html(ws), encoding="utf-8")
         return p
+
+    def export_tables(self, target: str | Path) -> tuple[Path, ...]:
+        """Every table of the worksheet, and the sales with their results when the checks
+        have run: one workbook with a sheet each (``target`` ends in .xlsx) or a CSV per
+        table in the folder ``target``."""
+        ws = self._ensure_worksheet()
+        if ws is None:
+            raise AppraiseError("there is no worksheet to export yet")
+        s = self._session
+        extra = ()
+        if s.fit is not None and s.diagnostics is not None:
+            extra = (sales_results_table(s.fit, s.diagnostics),)
+        return export_all_tables(ws, target, extra=extra)
+
+    def export_sales(self, path: str | Path) -> Path:
+        """Each sale with the model's results (``appraise diagnose --sales-out``)."""
+        s = self._session
+        if s.fit is None or s.diagnostics is None:
+            raise AppraiseError("the sales have no results yet: wait for the model check")
+        return write_sales_results(s.fit, s.diagnostics, path)
 
     def print_to(self, printer) -> int:
         """Paint the worksheet on a configured ``QPrinter``; returns the page count."""
@@ -247,9 +285,28 @@ class WorksheetView(QWidget):
             self._run(lambda: self.export_html(path), "Could not write the HTML")
 
     def _ask_export_tables(self) -> None:
-        folder = QFileDialog.getExistingDirectory(self, "Folder for the CSV and XLSX tables")
-        if folder and self._ensure_worksheet() is not None:
-            self._run(lambda: export_tables(self._worksheet, folder), "Could not write the tables")
+        workbook, csvs = "Workbook, a sheet per table (*.xlsx)", "CSV files, one per table (*)"
+        path, chosen = QFileDialog.getSaveFileName(
+            self, "Export every table", "worksheet-tables.xlsx", f"{workbook};;{csvs}"
+        )
+        if not path:
+            return
+        target = Path(path)
+        if chosen == workbook and target.suffix.lower() != ".xlsx":
+            target = target.with_suffix(".xlsx")
+        elif chosen == csvs:
+            target = target.with_suffix("")  # a folder of that name
+        self._run(lambda: self.export_tables(target), "Could not write the tables")
+
+    def _ask_export_sales(self) -> None:
+        path, _ = QFileDialog.getSaveFileName(
+            self,
+            "Export the sales with their results",
+            "sales-results.xlsx",
+            "Workbook (*.xlsx);;CSV (*.csv)",
+        )
+        if path:
+            self._run(lambda: self.export_sales(path), "Could not write the sales")
 
     def _run(self, action, title: str) -> None:
         try:

@@ -27,6 +27,14 @@ SALES_COLOUR = (46, 84, 150, 170)
 SUBJECT_COLOUR = (200, 40, 30, 255)
 LINE_COLOUR = (110, 110, 110, 255)
 
+LEGEND_TEXT_SIZE = "17pt"
+"""Legend text, sized for print: the chart is exported at twice its layout width, and
+the legend's label is drawn at its own point size, so this reads like the axis labels
+on paper (about 7 pt on an A4 or Letter page)."""
+
+LEGEND_SYMBOL_SIZE = 14.0
+"""Diameter of the legend's marker samples (pixels of the layout)."""
+
 
 @dataclass(frozen=True)
 class Series:
@@ -128,9 +136,10 @@ def scatter_chart(
     legend = plot.addLegend(
         offset=(10, 10),
         labelTextColor="#111111",
-        labelTextSize="12pt",
+        labelTextSize=LEGEND_TEXT_SIZE,
         brush=(255, 255, 255, 210),
         pen=(160, 160, 160),
+        verSpacing=-2,
     )
 
     for ln in lines:
@@ -147,6 +156,7 @@ def scatter_chart(
         for (lo, hi), xi, okk in zip(s.bars, x, ok, strict=False):
             if okk and math.isfinite(lo) and math.isfinite(hi):
                 plot.plot([xi, xi], [lo, hi], pen=pg.mkPen(s.colour, width=2.5))
+        symbol_pen = pg.mkPen(255, 255, 255, 200, width=0.5) if s.size < 12 else pg.mkPen("k")
         plot.plot(
             x[ok],
             y[ok],
@@ -154,10 +164,18 @@ def scatter_chart(
             symbol=s.symbol,
             symbolSize=s.size,
             symbolBrush=pg.mkBrush(s.colour),
-            symbolPen=pg.mkPen(255, 255, 255, 200, width=0.5) if s.size < 12 else pg.mkPen("k"),
-            name=s.label,
+            symbolPen=symbol_pen,
             antialias=True,
         )
+        if s.label and legend is not None:
+            # the legend shows a larger sample than the points, so it reads in print
+            sample = pg.ScatterPlotItem(
+                symbol=s.symbol,
+                size=max(s.size, LEGEND_SYMBOL_SIZE),
+                brush=pg.mkBrush(s.colour),
+                pen=pg.mkPen(90, 90, 90, 200, width=0.5),
+            )
+            legend.addItem(sample, s.label)
     if aspect is not None:
         plot.getViewBox().setAspectLocked(True, ratio=aspect)
     if legend is not None and not any(s.label for s in series):

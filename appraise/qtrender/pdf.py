@@ -10,13 +10,14 @@ and the figures keep their full pixel size.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from pathlib import Path
 
 from ..engine.errors import ReportError
 from ..report.cautions import ONE_LINE_CAUTION
-from ..report.content import Figure, Worksheet
-from ..report.html import render_html
+from ..report.content import Facts, Figure, Notice, SignatureBlock, Table, Worksheet
+from ..report.html import PageBreaks, render_html
 from .qtapp import ensure_app
 
 LOGICAL_DPI = 96.0
@@ -38,30 +39,206 @@ def figure_resource(index: int, figure: Figure) -> str:
     return f"appraise-figure-{index}.png"
 
 
-def build_document(worksheet: Worksheet, *, text_width: float | None = None):
+KEEP_ROWS = 3
+"""A table split across pages keeps at least this many rows on each side."""
+
+SHORT_TABLE_ROWS = 12
+"""A table of at most this many rows is never split: it moves to the next page whole."""
+
+MAX_BREAK_PASSES = 60
+"""Layout passes spent placing page breaks (one break per pass) before giving up."""
+
+
+def build_document(
+    worksheet: Worksheet, *, text_width: float | None = None, page_height: float | None = None
+):
     """A ``QTextDocument`` holding the worksheet, figures registered as resources.
 
     ``text_width`` (logical pixels) sets the layout width, and figures are sized
-    to fit it; the PDF writer sets the page size itself afterwards.
+    to fit it. With ``page_height`` the document is paged at that height and page
+    breaks are placed so that no table row, short table or heading is split from
+    what follows it (:func:`keep_together_breaks`); without it (a screen preview)
+    the document is one long page.
     """
     ensure_app()
-    from PySide6.QtCore import QUrl
-    from PySide6.QtGui import QImage, QTextDocument
+    from PySide6.QtGui import QImage
 
-    doc = QTextDocument()
-    doc.setDefaultFont(plain_font(9.5))
     width = text_width or 640.0
-    doc.setTextWidth(width)
+    images = []
     for i, fig in enumerate(worksheet.figures()):
         image = QImage.fromData(fig.png, "PNG")
         if image.isNull():
             raise ReportError(f"figure {i + 1} ({fig.caption[:40]}) could not be decoded")
+        images.append(image)
+    doc = _document(worksheet, width, images, PageBreaks())
+    if page_height is None:
+        return doc
+    doc.setPageSize(_size(width, page_height))
+    breaks = PageBreaks()
+    for _ in range(MAX_BREAK_PASSES):
+        more = next_break(doc, worksheet, page_height, breaks)
+        if more is None:
+            break
+        breaks = more
+        doc = _document(worksheet, width, images, breaks)
+        doc.setPageSize(_size(width, page_height))
+    return doc
+
+
+def _size(width: float, height: float):
+    from PySide6.QtCore import QSizeF
+
+    return QSizeF(width, height)
+
+
+def _document(worksheet: Worksheet, width: float, images, breaks: PageBreaks):
+    from PySide6.QtCore import QUrl
+    from PySide6.QtGui import QTextDocument, QTextOption
+
+    doc = QTextDocument()
+    doc.setDefaultFont(plain_font(9.5))
+    option = doc.defaultTextOption()
+    option.setWrapMode(QTextOption.WrapMode.WordWrap)  # never break inside a word
+    doc.setDefaultTextOption(option)
+    doc.setTextWidth(width)
+    for i, (fig, image) in enumerate(zip(worksheet.figures(), images, strict=True)):
         doc.addResource(
             QTextDocument.ResourceType.ImageResource, QUrl(figure_resource(i, fig)), image
         )
-    doc.setHtml(render_html(worksheet, image_src=figure_resource, image_width=int(width * 0.96)))
+    doc.setHtml(
+        render_html(
+            worksheet, image_src=figure_resource, image_width=int(width * 0.96), breaks=breaks
+        )
+    )
     doc.setMetaInformation(QTextDocument.MetaInformation.DocumentTitle, worksheet.title)
     return doc
+
+
+def _tables_of(worksheet: Worksheet, breaks: PageBreaks) -> list[tuple[int, int, int]]:
+    """For each top-level table Qt builds, in order: (block index, first row, rows)."""
+    out = []
+    for b, block in enumerate(worksheet.blocks()):
+        if isinstance(block, Table | Facts):
+            cuts = sorted(r for r in breaks.rows_of(b) if 0 < r < len(block.rows))
+            starts = [0, *cuts]
+            ends = [*cuts, len(block.rows)]
+            out.extend((b, a, e - a) for a, e in zip(starts, ends, strict=True))
+        elif isinstance(block, Notice | SignatureBlock):
+            out.append((b, 0, 1 if isinstance(block, Notice) else len(block.fields)))
+    return out
+
+
+def next_break(doc, worksheet: Worksheet, page_height: float, breaks: PageBreaks):
+    """The breaks with one more: the first place (top to bottom) where a table row
+    spans two pages, a short table is split, a split table leaves fewer than
+    :data:`KEEP_ROWS` rows on a page, or a heading ends a page; None when there is none.
+    """
+    from PySide6.QtGui import QTextTable
+
+    layout = doc.documentLayout()
+
+    def page(y: float) -> int:
+        return int(y // page_height)
+
+    problems: list[tuple[float, str, tuple[int, int]]] = []
+    frames = [f for f in doc.rootFrame().childFrames() if isinstance(f, QTextTable)]
+    for frame, (b, first, _n) in zip(frames, _tables_of(worksheet, breaks), strict=False):
+        head = frame.format().headerRowCount()
+        rows = []
+        for r in range(head, frame.rows()):
+            top, bottom = math.inf, -math.inf
+            for c in range(frame.columns()):
+                cell = frame.cellAt(r, c)
+                top = min(top, layout.blockBoundingRect(cell.firstCursorPosition().block()).top())
+                bottom = max(
+                    bottom, layout.blockBoundingRect(cell.lastCursorPosition().block()).bottom()
+                )
+            rows.append((first + r - head, top, bottom))
+        if not rows:
+            continue
+        frame_rect = layout.frameBoundingRect(frame)
+        total = len(worksheet_block(worksheet, b).rows) if _has_rows(worksheet, b) else len(rows)
+        starts_page = frame_rect.top() % page_height < 24.0
+        if page(rows[0][1]) != page(rows[-1][2] - 1) and not starts_page:
+            if total <= SHORT_TABLE_ROWS and frame_rect.height() < page_height * 0.8:
+                problems.append((frame_rect.top(), "short", (b, first)))
+                continue
+        for k, (r, top, bottom) in enumerate(rows):
+            if page(top) != page(bottom - 1):
+                problems.append((top, "row", (b, r)))
+                break
+            if k and page(top) != page(rows[k - 1][1]):  # the page turns before row r
+                before, after = k, len(rows) - k
+                if before < KEEP_ROWS and not starts_page:
+                    problems.append((rows[0][1], "orphan", (b, first)))
+                elif after < KEEP_ROWS and len(rows) > 2 * KEEP_ROWS:
+                    problems.append((top, "widow", (b, rows[-KEEP_ROWS][0])))
+                break
+    section, titled = -1, _titled_blocks(worksheet)
+    h3 = -1
+    block = doc.begin()
+    while block.isValid():
+        level = block.blockFormat().headingLevel()
+        if level in (2, 3):
+            if level == 2:
+                section += 1
+            else:
+                h3 += 1
+            nxt = block.next()
+            if nxt.isValid():
+                y = layout.blockBoundingRect(block).top()
+                y_next = layout.blockBoundingRect(nxt).bottom()
+                if page(y) != page(y_next - 1) and y % page_height > 24.0:
+                    if level == 2:
+                        problems.append((y, "section", (-1, section)))
+                    elif h3 < len(titled):
+                        problems.append((y, "title", (titled[h3], 0)))
+        block = block.next()
+    problems = [p for p in problems if not _known(breaks, p)]
+    if not problems:
+        return None
+    _y, kind, (b, r) = min(problems)
+    if kind != "section" and r == 0 and b in _first_blocks(worksheet):
+        kind, r = "section", _first_blocks(worksheet)[b]  # move the section's title along
+    if kind == "section":
+        if r in breaks.sections:
+            return None
+        return PageBreaks(breaks.sections | {r}, breaks.blocks)
+    return PageBreaks(breaks.sections, breaks.blocks | {(b, r)})
+
+
+def _first_blocks(worksheet: Worksheet) -> dict[int, int]:
+    """Block index of each section's first block -> the section's index."""
+    out, b = {}, 0
+    for s, section in enumerate(worksheet.sections):
+        if section.blocks:
+            out[b] = s
+        b += len(section.blocks)
+    return out
+
+
+def _known(breaks: PageBreaks, problem) -> bool:
+    _y, kind, (b, r) = problem
+    if kind == "section":
+        return r in breaks.sections
+    return (b, r) in breaks.blocks
+
+
+def worksheet_block(worksheet: Worksheet, index: int):
+    return list(worksheet.blocks())[index]
+
+
+def _has_rows(worksheet: Worksheet, index: int) -> bool:
+    return isinstance(worksheet_block(worksheet, index), Table | Facts)
+
+
+def _titled_blocks(worksheet: Worksheet) -> list[int]:
+    """Indexes of the blocks printed under an ``<h3>`` title, in order."""
+    return [
+        b
+        for b, block in enumerate(worksheet.blocks())
+        if isinstance(block, Table | Facts) and block.title
+    ]
 
 
 def plain_font(points: float, *, fixed_pixels: bool = False):
@@ -109,7 +286,7 @@ def paint_pages(worksheet: Worksheet, device, margins: PageMargins = PageMargins
     )
     if body.width() < 100 or body.height() < 100:
         raise ReportError("the page is too small for the margins")
-    doc = build_document(worksheet, text_width=body.width())
+    doc = build_document(worksheet, text_width=body.width(), page_height=body.height())
     doc.setPageSize(QSizeF(body.width(), body.height()))
     pages = doc.pageCount()
 

@@ -10,12 +10,34 @@ from __future__ import annotations
 
 import base64
 from collections.abc import Callable
+from dataclasses import dataclass, field
 from html import escape
 
 from .content import Facts, Figure, Notice, Paragraph, SignatureBlock, Table, Worksheet
 
 ImageSource = Callable[[int, Figure], str]
 """``(index, figure) -> src`` for the ``<img>`` of the figure at that index."""
+
+BREAK = ' style="page-break-before: always"'
+
+
+@dataclass(frozen=True)
+class PageBreaks:
+    """Extra page breaks chosen by a paged renderer (the PDF writer keeps rows and short
+    tables together with them); a browser needs none.
+
+    ``sections``: indexes of sections that start a page. ``blocks``: ``(block, row)``
+    pairs, ``block`` counting every block of the worksheet in order: row 0 breaks
+    before the block (its title included), row ``r`` of a table or facts list breaks
+    before its ``r``-th row (the table goes on under its header on the new page).
+    """
+
+    sections: frozenset[int] = field(default_factory=frozenset)
+    blocks: frozenset[tuple[int, int]] = field(default_factory=frozenset)
+
+    def rows_of(self, block: int) -> frozenset[int]:
+        return frozenset(r for b, r in self.blocks if b == block)
+
 
 STYLE = """
 body { font-family: 'DejaVu Sans', 'Helvetica', 'Arial', sans-serif; font-size: 9.5pt;
@@ -24,7 +46,7 @@ h1 { font-size: 16pt; margin-bottom: 2pt; }
 h2 { font-size: 12.5pt; margin-top: 14pt; margin-bottom: 4pt; color: #223355; }
 h3 { font-size: 10.5pt; margin-top: 8pt; margin-bottom: 3pt; }
 p.meta { color: #444444; margin-top: 0; }
-table.data { border-collapse: collapse; margin-bottom: 4pt; }
+table.data { border-collapse: collapse; margin-bottom: 4pt; font-size: 8.5pt; }
 table.data th { background-color: #e6ebf2; font-weight: bold; }
 table.facts td.label { color: #444444; }
 p.note { font-size: 8.5pt; color: #444444; }
@@ -43,6 +65,7 @@ def render_html(
     *,
     image_src: ImageSource = data_uri,
     image_width: int = 680,
+    breaks: PageBreaks | None = None,
 ) -> str:
     """The worksheet as an HTML document (a ``str``).
 
@@ -55,7 +78,10 @@ def render_html(
         writer passes resource names it registers with its document instead.
     image_width:
         Width of each figure in CSS pixels (the height keeps the aspect ratio).
+    breaks:
+        Extra page breaks (:class:`PageBreaks`), for print.
     """
+    breaks = breaks or PageBreaks()
     out: list[str] = [
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
@@ -74,15 +100,22 @@ def render_html(
         + "</p>",
     ]
     figure_index = 0
-    for section in worksheet.sections:
-        brk = ' style="page-break-before: always"' if section.new_page else ""
+    block_index = 0
+    for s, section in enumerate(worksheet.sections):
+        brk = BREAK if section.new_page or s in breaks.sections else ""
         out.append(f"<h2{brk}>{escape(section.title)}</h2>")
         for block in section.blocks:
+            rows = breaks.rows_of(block_index)
+            block_index += 1
             if isinstance(block, Figure):
-                out.append(_figure(block, image_src(figure_index, block), image_width))
+                fig = _figure(block, image_src(figure_index, block), image_width)
+                out.append(fig.replace("<p ", f"<p{BREAK} ", 1) if 0 in rows else fig)
                 figure_index += 1
+            elif isinstance(block, Table | Facts):
+                out.append(_table(block, rows) if isinstance(block, Table) else _facts(block, rows))
             else:
-                out.append(_block(block))
+                html = _block(block)
+                out.append(html.replace("<", f"<div{BREAK}></div><", 1) if 0 in rows else html)
     out.append("</body></html>")
     return "\n".join(out)
 
@@ -106,10 +139,14 @@ def _text(s: str) -> str:
     return escape(s).replace("\n", "<br>")
 
 
-def _facts(block: Facts) -> str:
-    parts = [f"<h3>{escape(block.title)}</h3>"] if block.title else []
-    parts.append('<table class="facts" cellspacing="0" cellpadding="2">')
-    for label, value in block.rows:
+def _facts(block: Facts, breaks: frozenset[int] = frozenset()) -> str:
+    first = BREAK if 0 in breaks else ""
+    parts = [f"<h3{first}>{escape(block.title)}</h3>"] if block.title else []
+    opening = '<table class="facts" cellspacing="0" cellpadding="2"{}>'
+    parts.append(opening.format("" if block.title else first))
+    for r, (label, value) in enumerate(block.rows):
+        if r and r in breaks:
+            parts.append("</table>" + opening.format(BREAK))
         parts.append(
             f'<tr><td class="label" style="padding-right: 14px">{_text(label)}</td>'
             f"<td>{_text(value)}</td></tr>"
@@ -118,22 +155,35 @@ def _facts(block: Facts) -> str:
     return "\n".join(parts)
 
 
-def _table(table: Table) -> str:
-    parts = [f"<h3>{escape(table.title)}</h3>"] if table.title else []
-    parts.append('<table class="data" border="1" cellspacing="0" cellpadding="3">')
+def _table(table: Table, breaks: frozenset[int] = frozenset()) -> str:
+    first = BREAK if 0 in breaks else ""
+    parts = [f"<h3{first}>{escape(table.title)}</h3>"] if table.title else []
+    opening = '<table class="data" border="1" cellspacing="0" cellpadding="3"{}>'
+    parts.append(opening.format("" if table.title else first))
     head = "".join(
         f'<th align="{_align(table, j)}">{escape(c)}</th>' for j, c in enumerate(table.columns)
     )
     parts.append(f"<thead><tr>{head}</tr></thead><tbody>")
-    for row in table.rows:
+    for r, row in enumerate(table.rows):
+        if r and r in breaks:  # the rest on a new page, under its header again
+            parts.append(
+                f"</tbody></table>{opening.format(BREAK)}<thead><tr>{head}</tr></thead><tbody>"
+            )
         cells = "".join(
-            f'<td align="{_align(table, j)}">{_text(c)}</td>' for j, c in enumerate(row)
+            f'<td align="{_align(table, j)}">{_cell(table, j, c)}</td>' for j, c in enumerate(row)
         )
         parts.append(f"<tr>{cells}</tr>")
     parts.append("</tbody></table>")
     if table.note:
         parts.append(f'<p class="note">{_text(table.note)}</p>')
     return "\n".join(parts)
+
+
+def _cell(table: Table, j: int, text: str) -> str:
+    """A cell's text; in a right-aligned (number) column the spaces do not break, so
+    ``< 0.0001`` or ``$1,200 (SE $80)`` never wraps inside itself."""
+    html = _text(text)
+    return html.replace(" ", "&nbsp;") if table.alignment(j) == "r" else html
 
 
 def _align(table: Table, j: int) -> str:

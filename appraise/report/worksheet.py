@@ -341,8 +341,8 @@ def _coefficient_table(fit: Any, currency: str = "$") -> Table:
                 number(t.se, 3) if estimable else MISSING,
                 fixed(t.t, 2) if estimable else MISSING,
                 pvalue(t.p) if estimable else MISSING,
-                number(t.ci_low, 4) if estimable else MISSING,
-                number(t.ci_high, 4) if estimable else MISSING,
+                number(t.ci_low, 3) if estimable else MISSING,
+                number(t.ci_high, 3) if estimable else MISSING,
                 effect.text if estimable else str(t.note),
             )
         )

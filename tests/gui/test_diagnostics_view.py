@@ -39,6 +39,7 @@ from statsmodels.stats.outliers_influence import (  # noqa: E402
 
 from appraise.engine.diagnostics import diagnose  # noqa: E402
 from appraise.gui.diagnostics_view import DiagnosticsView  # noqa: E402
+from appraise.report.labels import RATIO_MEASURE_LABELS
 
 
 def _reference(fit):
@@ -136,7 +137,7 @@ def test_ratio_figures_are_the_iaao_formulas_with_their_verdicts(loaded_view):
     assert tiles["cod"].value.text() == f"{iaao['cod']:.2f}"
     assert tiles["prd"].value.text() == f"{iaao['prd']:.3f}"
     lo, hi = iaao["prb_ci"]
-    assert tiles["prb"].value.text() == f"{iaao['prb']:.3f} [{lo:.3f}, {hi:.3f}]"
+    assert tiles["prb"].value.text() == f"{iaao['prb']:.3f} (95%: {lo:.3f} to {hi:.3f})"
     # IAAO Standard on Ratio Studies (2013), single-family residential ranges
     for key, value, low, high in (
         ("median", iaao["median"], 0.90, 1.10),
@@ -149,8 +150,8 @@ def test_ratio_figures_are_the_iaao_formulas_with_their_verdicts(loaded_view):
     # every measure's raw value in the ratio-study tab, to four decimals
     m = loaded_view.measures_model
     values = {m.index(k, 0).data(): m.index(k, 1).data() for k in range(m.rowCount())}
-    assert values["COD"] == f"{iaao['cod']:.4f}"
-    assert values["PRB"] == f"{iaao['prb']:.4f}"
+    assert values[RATIO_MEASURE_LABELS["cod"]] == f"{iaao['cod']:.4f}"
+    assert values[RATIO_MEASURE_LABELS["prb"]] == f"{iaao['prb']:.4f}"
     ppe10 = 100 * np.mean(np.abs(ref["loo_value"] / ref["price"] - 1) <= 0.10)
     assert tiles["ppe10"].value.text() == f"{ppe10:.1f}%"
 
