@@ -41,6 +41,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import cached_property
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -141,7 +142,7 @@ class AbsorbedFit:
     def df_resid(self) -> int:
         return self.n - self.p
 
-    @property
+    @cached_property
     def ssr(self) -> float:
         return float(self.resid @ self.resid)
 
@@ -150,7 +151,7 @@ class AbsorbedFit:
         """:math:`s^2 = e'e/(n-p)`."""
         return self.ssr / self.df_resid
 
-    @property
+    @cached_property
     def tss(self) -> float:
         """Centred total sum of squares with a constant, uncentred without (statsmodels)."""
         if self.k_constant:
@@ -195,15 +196,21 @@ class AbsorbedFit:
         return self.Z[lo:hi] / self._scale - self._means[self.codes[lo:hi]]
 
     def leverage(self) -> np.ndarray:
-        """Hat diagonal :math:`h_i = \\tilde z_i'S^{-1}\\tilde z_i + [g_i \\ne r]/c_{g_i}`."""
+        """Hat diagonal :math:`h_i = \\tilde z_i'S^{-1}\\tilde z_i + [g_i \\ne r]/c_{g_i}`
+        (computed once, read-only)."""
+        return self._leverage
+
+    @cached_property
+    def _leverage(self) -> np.ndarray:
         h = np.empty(self.n)
-        for lo in range(0, self.n, _CHUNK):
-            hi = min(lo + _CHUNK, self.n)
+        for lo, hi in _blocks(self.n):
             zt = self._within(lo, hi)
-            h[lo:hi] = np.einsum("ij,jk,ik->i", zt, self._s_inv, zt)
+            h[lo:hi] = np.einsum("ij,ij->i", zt @ self._s_inv, zt)
         inv_c = 1.0 / self.counts
         inv_c[self.reference] = 0.0
-        return h + inv_c[self.codes]
+        h += inv_c[self.codes]
+        h.setflags(write=False)
+        return h
 
     def cov(self, cov_type: str = "nonrobust") -> np.ndarray:
         """Coefficient covariance (p, p) of ``cov_type`` (one of :data:`COV_TYPES`).
@@ -229,17 +236,16 @@ class AbsorbedFit:
 
     def _sandwich(self, w: np.ndarray) -> np.ndarray:
         k, G = self.Z.shape[1], len(self.counts)
-        q = np.zeros((k, k))
-        t = np.zeros((G, k))
         wsum = np.bincount(self.codes, weights=w, minlength=G)
-        for lo in range(0, self.n, _CHUNK):
-            hi = min(lo + _CHUNK, self.n)
+        # T_g = sum_{i in g} w_i z~_i = (sum_{i in g} w_i z_i) / scale - M_g W_g
+        t = np.empty((G, k))
+        for j in range(k):
+            t[:, j] = np.bincount(self.codes, weights=w * self.Z[:, j], minlength=G)
+        t = t / self._scale - self._means * wsum[:, None]
+        q = np.zeros((k, k))
+        for lo, hi in _blocks(self.n):
             zt = self._within(lo, hi)
-            wz = zt * w[lo:hi, None]
-            q += wz.T @ zt
-            codes = self.codes[lo:hi]
-            for j in range(k):
-                t[:, j] += np.bincount(codes, weights=wz[:, j], minlength=G)
+            q += (zt * w[lo:hi, None]).T @ zt
         others = self.col_of_level >= 0
         c = self.counts[others].astype(float)
         m_s = self._means[others]  # (m, k)
@@ -368,13 +374,13 @@ def absorb_fit(
     y_means = np.bincount(codes, weights=y, minlength=n_levels) / safe
     y_means[reference] = 0.0
 
-    zt = means[codes]  # (n, k): becomes the absorbed, scaled block in place
-    for lo in range(0, n, _CHUNK):
-        block = zt[lo : lo + _CHUNK]
-        np.subtract(Z[lo : lo + _CHUNK] / scale, block, out=block)
-    yt = y - y_means[codes]
-    gram = zt.T @ zt
-    rhs = zt.T @ yt
+    # The small system, one block of rows at a time: no n x k copy of the design.
+    gram = np.zeros((k, k))
+    rhs = np.zeros(k)
+    for lo, hi in _blocks(n):
+        zt = Z[lo:hi] / scale - means[codes[lo:hi]]
+        gram += zt.T @ zt
+        rhs += zt.T @ (y[lo:hi] - y_means[codes[lo:hi]])
 
     use_cholesky = method == "cholesky"
     if method == "auto":
@@ -388,11 +394,23 @@ def absorb_fit(
         s_inv = linalg.cho_solve(factor, np.eye(k))
         used = "cholesky"
     else:
+        zt = Z / scale - means[codes]  # the ill-conditioned (or deficient) case only
+        yt = y - y_means[codes]
         beta_s, s_inv = _qr_solve(zt, yt, names, z_pos, d_pos, means, counts, others, n, p, file)
+        del zt, yt
         used = "qr"
     s_inv = (s_inv + s_inv.T) / 2.0
-    resid = yt - zt @ beta_s
-    del zt
+    # Residuals and the numeric part of the hat diagonal in one more pass.
+    resid = np.empty(n)
+    h = np.empty(n)
+    for lo, hi in _blocks(n):
+        zt = Z[lo:hi] / scale - means[codes[lo:hi]]
+        resid[lo:hi] = y[lo:hi] - y_means[codes[lo:hi]] - zt @ beta_s
+        h[lo:hi] = np.einsum("ij,ij->i", zt @ s_inv, zt)
+    inv_c = 1.0 / np.maximum(counts, 1)
+    inv_c[reference] = 0.0
+    h += inv_c[codes]
+    h.setflags(write=False)
 
     m_s = means[others]  # (m, k)
     params = np.empty(p)
@@ -425,7 +443,14 @@ def absorb_fit(
     )
     object.__setattr__(fit, "xtx_inv", fit._assemble(s_inv, v_zd, v_dd))
     object.__setattr__(fit, "k_constant", _k_constant(fit))
+    fit.__dict__["_leverage"] = h  # the cached hat diagonal, from the pass above
     return fit
+
+
+def _blocks(n: int):
+    """(lo, hi) bounds of consecutive blocks of :data:`_CHUNK` rows."""
+    for lo in range(0, n, _CHUNK):
+        yield lo, min(lo + _CHUNK, n)
 
 
 def _qr_solve(zt, yt, names, z_pos, d_pos, means, counts, others, n, p, file):
@@ -518,7 +543,9 @@ class AbsorbedResults:
 
     @classmethod
     def of(cls, fit: AbsorbedFit, cov_type: str = "nonrobust") -> AbsorbedResults:
-        from scipy import stats
+        # scipy.special's t distribution: the same functions scipy.stats.t calls, without
+        # the second it takes to import scipy.stats
+        from scipy.special import stdtr
 
         cov = fit.cov(cov_type)
         bse = np.sqrt(np.diag(cov))
@@ -530,7 +557,7 @@ class AbsorbedResults:
             params=fit.params,
             bse=bse,
             tvalues=tvalues,
-            pvalues=2.0 * stats.t.sf(np.abs(tvalues), fit.df_resid),
+            pvalues=2.0 * stdtr(fit.df_resid, -np.abs(tvalues)),
             resid=fit.resid,
             fittedvalues=fit.fitted,
             df_resid=fit.df_resid,
@@ -549,9 +576,9 @@ class AbsorbedResults:
 
     def conf_int(self, alpha: float = 0.05) -> np.ndarray:
         """(p, 2) bounds :math:`\\hat\\beta_j \\pm t_{1-\\alpha/2,\\,n-p}\\,se_j`."""
-        from scipy import stats
+        from scipy.special import stdtrit
 
-        q = stats.t.ppf(1 - alpha / 2, self.df_resid)
+        q = stdtrit(self.df_resid, 1 - alpha / 2)
         return np.column_stack([self.params - q * self.bse, self.params + q * self.bse])
 
 

@@ -242,7 +242,8 @@ def _model_exclusions(
             for i in hit:
                 keep[i] = False
                 out.append(Exclusion(int(rows[i]), e.sale_id, e.reason, None, "model"))
-    row_pos = {int(r): i for i, r in enumerate(rows)}
+    user_exclusions = tuple(user_exclusions)
+    row_pos = {int(r): i for i, r in enumerate(rows)} if user_exclusions else {}
     for e in user_exclusions:
         i = row_pos.get(int(e.row))
         if i is None or not keep[i]:
@@ -300,7 +301,7 @@ def fit_model(
     """
     target = resolve_target(sales, spec.target)
     keep, excluded, notes = _model_exclusions(sales, spec, user_exclusions)
-    frame = sales.frame.loc[keep].reset_index(drop=True)
+    frame = _rows(sales.frame, keep)
     id_col = sales.roles.column("sale_id")
 
     def sale_id(pos: int) -> str | None:
@@ -323,7 +324,7 @@ def fit_model(
                 "model",
             )
         )
-    frame = frame.loc[~bad_price].reset_index(drop=True)
+    frame = _rows(frame, ~bad_price)
 
     # learn_design learns category levels only from rows whose inputs are all usable, so
     # one learn and one build settle both the design and the rows it can use.
@@ -337,8 +338,9 @@ def fit_model(
             Exclusion(int(frame[ROW_COLUMN].iloc[pos]), sale_id(pos), reason, column, "model")
         )
     ok = np.asarray(built.row_ok, dtype=bool)
-    frame = frame.loc[ok].reset_index(drop=True)
-    X = np.ascontiguousarray(np.asarray(built.matrix, dtype=float)[ok])
+    frame = _rows(frame, ok)
+    X = np.asarray(built.matrix, dtype=float)
+    X = np.ascontiguousarray(X if ok.all() else X[ok])  # no copy when every row is used
     names = design.names
     n, p = len(X), design.p
     if n <= p:
@@ -347,7 +349,7 @@ def fit_model(
             "(drop terms or add sales)" + unusable_summary(built.problems),
             file=sales.source.path,
         )
-    scale = design_scale_problem(X, names)
+    scale = design_scale_problem(X, _matrix_names(names, group))
     if scale is not None:
         raise FitError(scale, file=sales.source.path)
     price = pd.to_numeric(frame[target]).to_numpy(dtype=float)
@@ -433,7 +435,7 @@ def fit_model(
         price=price,
         rows=frame[ROW_COLUMN].to_numpy(dtype=int),
         sale_ids=(
-            tuple(None if pd.isna(v) else str(v) for v in frame[id_col].tolist())
+            _id_texts(frame[id_col])
             if id_col is not None and id_col in frame.columns
             else (None,) * n
         ),
@@ -462,6 +464,29 @@ def fit_model(
         path="dense" if structure is None else "structured",
         structure=structure,
     )
+
+
+def _id_texts(column: pd.Series) -> tuple[str | None, ...]:
+    """Each sale id as text, None where missing (a text column without a Python loop)."""
+    if isinstance(column.dtype, pd.StringDtype):
+        return tuple(column.to_numpy(dtype=object, na_value=None))
+    return tuple(None if pd.isna(v) else str(v) for v in column.tolist())
+
+
+def _matrix_names(names: tuple[str, ...], group: TermGroup | None) -> tuple[str, ...]:
+    """The columns of the built matrix: all of them, or all but the absorbed term's."""
+    if group is None:
+        return names
+    absorbed = set(group.columns)
+    return tuple(c for c in names if c not in absorbed)
+
+
+def _rows(frame: pd.DataFrame, mask: np.ndarray) -> pd.DataFrame:
+    """The rows of ``mask``, renumbered; without a copy when all are kept (pandas
+    copy-on-write keeps the shared data safe)."""
+    if mask.all():
+        return frame.reset_index(drop=True)
+    return frame.loc[mask].reset_index(drop=True)
 
 
 FIT_PATHS = ("auto", "dense", "structured")
