@@ -12,7 +12,7 @@ edit only values again) or the whole of :func:`analyse`, which hands each result
 from __future__ import annotations
 
 from collections.abc import Callable, Iterable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -23,6 +23,7 @@ from .engine.errors import AppraiseError
 from .engine.fitting import FitResult, fit_model
 from .engine.importing import load_sales
 from .engine.modelspec import ModelSpec, load_model
+from .engine.plausibility import DEFAULT_RULES, PlausibilityRules
 from .engine.roles import RoleMap, load_role_map
 from .engine.sales import Exclusion, SalesTable
 from .engine.settings import ImportSettings
@@ -47,11 +48,13 @@ def load(
     settings: ImportSettings = ImportSettings(),  # noqa: B008 - frozen, safe as a default
     roles: RoleMap | str | Path | None = None,
     progress: Progress | None = None,
+    rules: PlausibilityRules = DEFAULT_RULES,
 ) -> SalesTable:
-    """Read a sales file; ``roles`` is a role map or the path of a saved one."""
+    """Read a sales file; ``roles`` is a role map or the path of a saved one; ``rules``
+    the importer's plausibility rules (give the effective date there when it is known)."""
     if isinstance(roles, str | Path):
         roles = load_role_map(roles)
-    return load_sales(path, settings, roles, progress=progress)
+    return load_sales(path, settings, roles, progress=progress, rules=rules)
 
 
 def read_model(path: str | Path) -> ModelSpec:
@@ -75,6 +78,19 @@ def subject_frame(
     return read_subject(source, sales, settings)
 
 
+ASSUMED_KEY = "assumed"
+"""Key of a subject mapping naming the attributes that were not given but set to the
+sales' medians (comma-separated field labels); the value then warns of them first."""
+
+
+def assumed_warning(assumed: str) -> str:
+    """The warning beside a value some of whose subject attributes are assumed."""
+    return (
+        f"assumed, not known: {assumed} set to the sales' medians; the value is only as "
+        "good as that guess, so enter the subject's own figures"
+    )
+
+
 def filled(subject: Mapping[str, Any]) -> dict[str, Any]:
     """The attributes of a subject mapping that hold a value (blank form fields dropped)."""
     return {k: v for k, v in subject.items() if v is not None and str(v).strip() != ""}
@@ -86,13 +102,22 @@ def value(
     settings: ImportSettings = ImportSettings(),  # noqa: B008
     level: float | None = None,
 ) -> Valuation | None:
-    """The subject's valuation; None for a mapping with no attribute filled in yet."""
+    """The subject's valuation; None for a mapping with no attribute filled in yet.
+
+    A mapping's :data:`ASSUMED_KEY` (attributes set to the sales' medians) is not an
+    attribute: it puts :func:`assumed_warning` first among the value's warnings.
+    """
+    assumed = ""
     if isinstance(subject, Mapping):
-        subject = filled(subject)
+        assumed = str(subject.get(ASSUMED_KEY) or "").strip()
+        subject = filled({k: v for k, v in subject.items() if k != ASSUMED_KEY})
         if not subject:
             return None
     frame = subject_frame(subject, fit.sales, settings)
-    return value_subject(fit, frame, level)
+    valuation = value_subject(fit, frame, level)
+    if assumed:
+        valuation = replace(valuation, warnings=(assumed_warning(assumed), *valuation.warnings))
+    return valuation
 
 
 def check(

@@ -111,7 +111,29 @@ def load_sales_from_args(args: argparse.Namespace):
     wf = workfile_from_args(args)
     if wf is not None:
         return wf[1].sales
-    return pipeline.load(args.sales, import_settings(args), getattr(args, "roles", None))
+    return pipeline.load(
+        args.sales, import_settings(args), getattr(args, "roles", None), rules=rules_from_args(args)
+    )
+
+
+def rules_from_args(args: argparse.Namespace):
+    """The plausibility rules with the model file's ``effective_date`` as the latest
+    plausible sale date (plus the margin), else today. (``--effective-date`` of ``grid``
+    and ``report`` only dates the sales comparison; it does not remove sales from the fit.)"""
+    import datetime as dt
+
+    from ..engine.plausibility import DEFAULT_RULES, PlausibilityRules
+
+    when = None
+    if getattr(args, "model", None) and isinstance(args.model, str):
+        when = load_model_from_args(args).effective_date
+    if not when:
+        return DEFAULT_RULES
+    try:
+        day = dt.date.fromisoformat(str(when)[:10])
+    except ValueError:
+        return DEFAULT_RULES  # the command reports a bad date where it reads it
+    return PlausibilityRules(reference_date=day)
 
 
 def add_model_argument(parser: argparse.ArgumentParser, *, multiple: bool = False) -> None:

@@ -206,3 +206,24 @@ def test_a_tampered_workfile_on_the_command_line(workfile, tmp_path, capsys):
     bad = tmp_path / "bad.appraise.json"
     bad.write_text(json.dumps(doc), encoding="utf-8")
     _fails(capsys, ["value", str(bad)], str(bad), "import_settings.decimal")
+
+
+def test_a_sale_after_the_effective_date_is_excluded(tmp_path, capsys):
+    rows = ["id,price,sale_date,living_area"]
+    rows += [f"t{i},{300_000 + 9_000 * i},2024-0{1 + i % 5}-15,{1_400 + 97 * i}" for i in range(8)]
+    rows.append("late,999000,2024-09-01,1500")
+    sales = tmp_path / "s.csv"
+    sales.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    model = tmp_path / "m.toml"
+    model.write_text(
+        'target = "price"\nfeatures = ["living_area"]\neffective_date = "2024-06-30"\n',
+        encoding="utf-8",
+    )
+    fit = _json(capsys, ["fit", str(sales), "-m", str(model), "--json"])
+    assert fit["n"] == 8
+    reasons = [e["reason"] for e in fit["excluded"]]
+    assert reasons == [
+        "sale date '2024-09-01' is after the effective date plus 31 days (2024-07-31)"
+    ]
+    data = _json(capsys, ["data", str(sales), "--json"])  # no model: today is the reference
+    assert data["rows_used"] == 9
