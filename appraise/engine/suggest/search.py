@@ -496,15 +496,15 @@ def _moves(
             record("drop", None, t.feature, "", state.score_drop(cols), rest)
         if t.key is None:
             continue
-        for f in problem.forms:
-            if f.key != t.key or f.extra or f.feature in feats or _same_encoding(t, f):
-                continue
+        swaps = [
+            f for f in problem.forms
+            if f.key == t.key and not f.extra and f.feature not in feats
+            and not _same_encoding(t, f) and not seen([*current[:i], f, *current[i + 1 :]])
+        ]  # fmt: skip
+        res = state.score_swaps(cols, [rows.block(f) for f in swaps])
+        for j, f in enumerate(swaps):
             after = [*current[:i], f, *current[i + 1 :]]
-            if seen(after):
-                continue
-            record(
-                "swap", f.feature, t.feature, f.why, state.score_swap(cols, rows.block(f)), after
-            )
+            record("swap", f.feature, t.feature, f.why, res[:, j], after)
     return out
 
 

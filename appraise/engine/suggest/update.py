@@ -40,11 +40,16 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
 RANK_TOL = 1e-10
-"""A singular value below ``RANK_TOL`` times the largest is treated as zero."""
+"""An eigenvalue of a Schur complement below ``RANK_TOL`` times the largest is zero."""
+
+EIGEN_TOL = 1e-12
+"""An eigenvalue of a training fold's cross-product below ``EIGEN_TOL`` times the largest
+(a singular value below a millionth of the largest) is treated as zero."""
 
 LEVERAGE_ONE = 1 - 1e-8
 """Leverage at or above this has no leave-one-out residual."""
@@ -69,28 +74,35 @@ def standardise(block: np.ndarray, centre: bool) -> np.ndarray:
     return out
 
 
-def _basis(Xt: np.ndarray, X: np.ndarray) -> tuple[np.ndarray, np.ndarray, int]:
-    """``T = X W`` with ``W = V_r S_r^{-1}`` (zero-padded to p columns) and the rank r.
+def _basis(gram: np.ndarray, X: np.ndarray) -> tuple[np.ndarray, np.ndarray, int]:
+    """``T = X W`` with ``W = V_r \\Lambda_r^{-1/2}`` (zero-padded to p columns), the rank r.
 
-    ``X_t = Q R`` (Householder QR), then the SVD of the small ``R = U S V'``: so
-    ``X_t = (Q U) S V'`` without an SVD of the tall matrix.
+    ``gram = X_t'X_t = V \\Lambda V'`` of the training rows (standardised columns keep it
+    well conditioned); ``T`` restricted to the training rows is then orthonormal, the
+    ``U_r`` of the thin SVD :math:`X_t = U_r S_r V_r'` with :math:`S_r^2 = \\Lambda_r`.
     """
     p = X.shape[1]
     if p == 0:
         return np.zeros((X.shape[0], 0)), np.zeros((0, 0)), 0
-    R = np.linalg.qr(Xt, mode="r")
-    _, s, vt = np.linalg.svd(R, full_matrices=False)
-    r = int(np.sum(s > RANK_TOL * s[0])) if s.size and s[0] > 0 else 0
+    lam, vec = np.linalg.eigh(gram)
+    top = float(lam[-1])
+    keep = lam > EIGEN_TOL * top if top > 0 else np.zeros(p, dtype=bool)
     w = np.zeros((p, p))
-    w[:, :r] = vt[:r].T / s[:r]
-    return X @ w, w, r
+    w[:, : int(keep.sum())] = vec[:, keep] / np.sqrt(lam[keep])
+    return X @ w, w, int(keep.sum())
 
 
-def _pinv_solve(S: np.ndarray, c: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Batched ``S^+ c``, ``S^+`` and whether S is of full rank, for symmetric PSD S (..., q, q)."""
+def _pinv_solve(
+    S: np.ndarray, c: np.ndarray, scale: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Batched ``S^+ c``, ``S^+`` and whether S is of full rank, for symmetric PSD S (..., q, q).
+
+    An eigenvalue below ``RANK_TOL * scale`` counts as zero; ``scale`` (...,) is the size
+    of the block before the current span was taken out (the largest diagonal of
+    :math:`Z_t'Z_t`), so a block lying in that span is seen as adding nothing.
+    """
     lam, vec = np.linalg.eigh(S)
-    top = np.max(np.abs(lam), axis=-1, keepdims=True)
-    keep = lam > RANK_TOL * np.maximum(top, 1e-300)
+    keep = lam > RANK_TOL * np.maximum(np.asarray(scale)[..., None], 1e-300)
     inv = np.where(keep, 1.0 / np.where(keep, lam, 1.0), 0.0)
     s_plus = np.einsum("...ij,...j,...kj->...ik", vec, inv, vec)
     return np.einsum("...ij,...j->...i", s_plus, c), s_plus, np.all(keep, axis=-1)
@@ -146,9 +158,25 @@ class CVState:
 
     def _beta_cov(self) -> tuple[np.ndarray, np.ndarray]:
         """Per fold: coefficients (K, p) and :math:`(X_t'X_t)^{-1}` (K, p, p) of the design."""
+        return self._coefficients
+
+    @cached_property
+    def _coefficients(self) -> tuple[np.ndarray, np.ndarray]:
         beta = np.einsum("kij,kj->ki", self._W, self._coef)
         cov = np.einsum("kij,klj->kil", self._W, self._W)
         return beta, cov
+
+    @cached_property
+    def _held_rows(self) -> tuple[np.ndarray, ...]:
+        """Row numbers held out of each training fold (none for leave-one-out)."""
+        if self.loo:
+            return (np.empty(0, dtype=int),)
+        return tuple(np.flatnonzero(self._fold_index == f) for f in range(self._T.shape[0]))
+
+    def _fold_cross(self, A: np.ndarray, Bm: np.ndarray) -> np.ndarray:
+        """:math:`A_t'B_t` for every training fold: (K, a, b)."""
+        full = A.T @ Bm
+        return np.stack([full - A[r].T @ Bm[r] if r.size else full for r in self._held_rows])
 
     def _finish(self, r_or_e: np.ndarray, h: np.ndarray | None) -> np.ndarray:
         return _loo(r_or_e, h) if self.loo else r_or_e
@@ -156,8 +184,13 @@ class CVState:
     # -- adding blocks ---------------------------------------------------------
     def _add_parts(self, Z: np.ndarray):
         """What every added column needs: ``B_f = T_t'Z_t``, ``Z_t'r_t`` and ``Z_h - T_h B``."""
-        T, train = self._T, self._train
-        B = np.matmul(np.transpose(T * train[:, :, None], (0, 2, 1)), Z)  # (K, p, Q)
+        T = self._T
+        # B_f = T_t'Z_t = W_f'(X'Z - X_h'Z_h): one pass over all rows, then a small product
+        XZ = self.X.T @ Z
+        B = np.empty((T.shape[0], self.p, Z.shape[1]))
+        for f in range(T.shape[0]):
+            rows = self._held_rows[f]
+            B[f] = self._W[f].T @ (XZ - self.X[rows].T @ Z[rows] if rows.size else XZ)
         if self.loo:
             Zh = Z - T[0] @ B[0]
             Zh -= T[0] @ (T[0].T @ Zh)  # re-orthogonalise once (Gram-Schmidt twice)
@@ -182,7 +215,25 @@ class CVState:
         B, C, Zh = self._add_parts(Z)
         out = np.empty((self.n, len(blocks)))
         fi = self._fold_index
-        for j in range(len(blocks)):
+        single = np.flatnonzero(np.diff(edges) == 1)
+        if single.size:  # one-column blocks all at once: S and gamma are scalars per fold
+            cols = edges[single]
+            Zs, Zhs = Z[:, cols], Zh[:, cols]
+            if self.loo:
+                S = np.sum(Zhs * Zhs, axis=0)[None]
+            else:
+                S = self._train @ (Zs * Zs) - np.einsum("kpq,kpq->kq", B[:, :, cols], B[:, :, cols])
+            ref = self._train @ (Zs * Zs)
+            ok = S > RANK_TOL * np.maximum(ref, 1e-300)
+            gamma = np.where(ok, C[:, cols] / np.where(ok, S, 1.0), 0.0)  # (K, m1)
+            e = self._base()[:, None] - Zhs * gamma[fi]
+            h = None
+            if self.loo:
+                h = self._leverage[:, None] + np.where(
+                    ok[0], Zhs * Zhs / np.where(ok[0], S[0], 1.0), 0.0
+                )
+            out[:, single] = _loo(e, h) if self.loo else e
+        for j in np.flatnonzero(np.diff(edges) != 1):
             sl = slice(edges[j], edges[j + 1])
             gamma, s_plus, _ = self._gamma(Z[:, sl], B[:, :, sl], C[:, sl], Zh[:, sl])
             e = self._base() - np.einsum("nq,nq->n", Zh[:, sl], gamma[fi])
@@ -197,12 +248,13 @@ class CVState:
         return self._resid[0] if self.loo else self.heldout
 
     def _gamma(self, Zj, Bj, Cj, Zhj):
+        ZZ = self._fold_cross(Zj, Zj)
+        scale = np.max(np.diagonal(ZZ, axis1=1, axis2=2), axis=-1)
         if self.loo:
             S = (Zhj.T @ Zhj)[None]
         else:
-            ZZ = np.einsum("kn,nq,nr->kqr", self._train, Zj, Zj)
             S = ZZ - np.einsum("kpq,kpr->kqr", Bj, Bj)
-        return _pinv_solve(S, Cj)
+        return _pinv_solve(S, Cj, scale)
 
     # -- dropping blocks --------------------------------------------------------
     def score_drop(self, columns: Sequence[int]) -> np.ndarray:
@@ -233,34 +285,71 @@ class CVState:
         return self._finish(e, h)
 
     def score_swap(self, columns: Sequence[int], block: np.ndarray) -> np.ndarray:
-        """Held-out residuals (n,) of the design without ``columns`` and with ``block``.
+        """Held-out residuals (n,) of the design without ``columns`` and with ``block``."""
+        return self.score_swaps(columns, [block])[:, 0]
 
-        Scored as "add the block, then drop the columns" on the augmented inverse
-        :math:`\\begin{pmatrix} C + A S^{-1} A' & -A S^{-1} \\\\ -S^{-1} A' & S^{-1}
-        \\end{pmatrix}` with :math:`A = C X_t'Z_t` and coefficients
-        :math:`(\\beta - A\\gamma, \\gamma)`. When the block does not add a full-rank
-        set of directions (it overlaps the dropped columns' span, as a pooled category
-        does its own levels), the design is decomposed again without the columns.
+    def score_swaps(self, columns: Sequence[int], blocks: Sequence[np.ndarray]) -> np.ndarray:
+        """Held-out residuals (n, m) of the design without ``columns``, plus each block.
+
+        Drop, then add, per training fold, from :math:`C = (X_t'X_t)^{-1}` and
+        :math:`\\beta`: with k the kept and J the dropped columns,
+        :math:`C_r = C_{kk} - C_{kJ} C_{JJ}^{-1} C_{Jk}`,
+        :math:`\\beta_r = \\beta_k - C_{kJ} C_{JJ}^{-1} \\beta_J`; then for the block,
+        :math:`G = X_{t,k}'Z_t`, :math:`A = C_r G`, :math:`S = Z_t'Z_t - G'A`,
+        :math:`\\gamma = S^{+}(Z_t'y_t - G'\\beta_r)` and the held-out residual
+        :math:`e_r - (Z_h - X_{h,k} A)\\gamma`. A fold of less than full rank is
+        decomposed again without the columns instead.
         """
         J = np.asarray(columns, dtype=int)
-        Z = np.asarray(block, dtype=float)
-        B, C, Zh = self._add_parts(Z)
-        gamma, s_plus, full = self._gamma(Z, B, C, Zh)
-        if not (self._full_rank and np.all(full)):
-            return self.without(J).score_add([Z])[:, 0]
-        fi = self._fold_index
-        e_aug = self._base() - np.einsum("nq,nq->n", Zh, gamma[fi])
-        h_aug = None
-        if self.loo:
-            h_aug = self._leverage + np.einsum("nq,qr,nr->n", Zh, s_plus[0], Zh)
+        if not blocks:
+            return np.empty((self.n, 0))
+        if not self._full_rank:
+            return self.without(J).score_add(blocks)
+        keep = np.setdiff1d(np.arange(self.p), J)
         beta, cov = self._beta_cov()
-        A = np.einsum("kij,kjq->kiq", self._W, B)  # C X_t'Z_t = W (T_t'Z_t)
-        AS = np.einsum("kiq,kqr->kir", A, s_plus)
-        top = np.concatenate([cov + np.einsum("kir,kjr->kij", AS, A), -AS], axis=2)
-        bottom = np.concatenate([-np.transpose(AS, (0, 2, 1)), s_plus], axis=2)
-        cov_aug = np.concatenate([top, bottom], axis=1)
-        beta_aug = np.concatenate([beta - np.einsum("kiq,kq->ki", A, gamma), gamma], axis=1)
-        return self._drop(np.hstack([self.X, Z]), beta_aug, cov_aug, J, e_aug, h_aug)
+        fi = self._fold_index
+        inv_jj = np.linalg.inv(cov[:, J][:, :, J])
+        D = cov[:, keep][:, :, J] @ inv_jj
+        cov_r = cov[:, keep][:, :, keep] - D @ cov[:, J][:, :, keep]
+        beta_r = beta[:, keep] - np.einsum("kij,kj->ki", D, beta[:, J])
+        v = np.einsum("kpj,kj->kp", cov[:, :, J], np.einsum("kij,kj->ki", inv_jj, beta[:, J]))
+        e_r = self._base() + np.einsum("np,np->n", self.X, v[fi])
+        h_r = None
+        if self.loo:
+            xc = self.X @ cov[0][:, J]
+            h_r = self._leverage - np.einsum("nj,jl,nl->n", xc, inv_jj[0], xc)
+        Xk = self.X[:, keep]
+        Z = np.hstack(blocks)
+        edges = np.concatenate([[0], np.cumsum([b.shape[1] for b in blocks])])
+        K = cov.shape[0]
+        G = np.repeat((Xk.T @ Z)[None], K, axis=0)  # X_t'Z_t per fold
+        Zy = np.repeat((Z.T @ self.y)[None], K, axis=0)
+        held = [] if self.loo else [fi == f for f in range(K)]
+        for f, rows in enumerate(held):
+            G[f] -= Xk[rows].T @ Z[rows]
+            Zy[f] -= Z[rows].T @ self.y[rows]
+        A = cov_r @ G
+        c = Zy - np.einsum("kiq,ki->kq", G, beta_r)
+        Zh = Z - Xk @ A[0] if self.loo else Z.copy()
+        for f, rows in enumerate(held):
+            Zh[rows] -= Xk[rows] @ A[f]
+        out = np.empty((self.n, len(blocks)))
+        for j in range(len(blocks)):
+            sl = slice(edges[j], edges[j + 1])
+            Zj = Z[:, sl]
+            ZZ = self._fold_cross(Zj, Zj)
+            S = ZZ - np.einsum("kpq,kpr->kqr", G[:, :, sl], A[:, :, sl])
+            scale = np.max(np.diagonal(ZZ, axis1=1, axis2=2), axis=-1)
+            gamma, s_plus, full = _pinv_solve(S, c[:, sl], scale)
+            if not np.all(full):  # the block repeats kept columns: decompose again
+                out[:, j] = self.without(J).score_add([Zj])[:, 0]
+                continue
+            e = e_r - np.einsum("nq,nq->n", Zh[:, sl], gamma[fi])
+            h = None
+            if self.loo:
+                h = h_r + np.einsum("nq,qr,nr->n", Zh[:, sl], s_plus[0], Zh[:, sl])
+            out[:, j] = self._finish(e, h)
+        return out
 
     # -- new states -------------------------------------------------------------
     def with_columns(self, block: np.ndarray) -> CVState:
@@ -291,8 +380,9 @@ def cv_state(X: np.ndarray, y: np.ndarray, folds: np.ndarray | None, *, centre: 
     X = np.ascontiguousarray(X, dtype=float)
     y = np.asarray(y, dtype=float)
     n, p = X.shape
+    gram = X.T @ X
     if folds is None:
-        T, w, r = _basis(X, X)
+        T, w, r = _basis(gram, X)
         coef = T.T @ y
         resid = y - T @ coef
         h = np.einsum("np,np->n", T, T)
@@ -312,7 +402,8 @@ def cv_state(X: np.ndarray, y: np.ndarray, folds: np.ndarray | None, *, centre: 
     for f in range(K):
         t = folds != f
         train[f, t] = 1.0
-        T[f], W[f], r = _basis(X[t], X)
+        held = X[~t]
+        T[f], W[f], r = _basis(gram - held.T @ held, X)
         full = full and r == p
         coef[f] = T[f][t].T @ y[t]
         fitted = T[f] @ coef[f]
