@@ -23,6 +23,10 @@ process's own maximum resident set, ``ru_maxrss`` from ``os.wait4``):
   dictionary-encoded), absorb the region means with ``bincount``, solve the small normal
   equations by Cholesky, classical standard errors of all coefficients and one interval.
 
+Every side gets the same number of BLAS threads (``--threads``, default 1): on a small
+shared machine extra BLAS threads mostly wait for each other (a 1,000,000 x 22 Gram
+matrix took 0.09 s on one thread and anywhere up to 12 s on two busy cores).
+
 This is a script, not a test: numbers depend on the machine and its load. Run it once,
 when the machine is quiet.
 """
@@ -31,6 +35,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import subprocess
 import sys
 import tempfile
@@ -40,6 +45,7 @@ from pathlib import Path
 N_NUMERIC = 21
 CASES = {"a": (100_000, 300, "fit"), "b": (1_000_000, 1_000, "value")}
 DENSE_LIMIT_BYTES = 4e9  # the statsmodels script is not started beyond this dense design
+THREADS = 1  # BLAS threads of every side (--threads)
 
 
 # --- data ----------------------------------------------------------------------------------
@@ -116,7 +122,7 @@ FLOOR = r"""
 import sys
 import numpy as np
 import pyarrow.parquet as pq
-from scipy import linalg, stats
+from scipy import linalg, special
 names = [f"x{j + 1:02d}" for j in range(21)]
 t = pq.read_table(sys.argv[1], columns=["price", *names, "region"], read_dictionary=["region"])
 codes = t.column("region").combine_chunks().indices.to_numpy().astype(np.intp)
@@ -151,15 +157,18 @@ d0 = z0 - M[g0]
 var = s2 * (d0 @ Sinv @ d0 + (1 / cnt[g0] if g0 != ref else 0.0))
 gamma = ym - M @ b
 fit0 = z0 @ b + (gamma[g0] if g0 != ref else 0.0)
-q = stats.t.ppf(0.95, n - p)
+q = special.stdtrit(n - p, 0.95)
 print(se_b[1], se_g[0], np.exp(fit0 - q * np.sqrt(var + s2)), np.exp(fit0 + q * np.sqrt(var + s2)))
 """
 
 
 def run_side(argv: list[str]) -> dict:
     """Run one side in a fresh process: wall seconds and its output."""
+    env = dict(os.environ)
+    for var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+        env[var] = str(THREADS)
     t0 = time.perf_counter()
-    proc = subprocess.run(argv, capture_output=True)
+    proc = subprocess.run(argv, capture_output=True, env=env)
     wall = time.perf_counter() - t0
     return {
         "ok": proc.returncode == 0,
@@ -284,7 +293,10 @@ def main() -> int:
     p.add_argument("--rows", type=int, help="override the sales count (a smoke run)")
     p.add_argument("--regions", type=int, help="override the region count")
     p.add_argument("--keep", action="store_true", help="keep the generated files")
+    p.add_argument("--threads", type=int, default=1, help="BLAS threads of every side (1)")
     args = p.parse_args()
+    global THREADS
+    THREADS = args.threads
     names = ["a", "b"] if args.case == "both" else [args.case]
     with tempfile.TemporaryDirectory(prefix="appraise-bench-fit-") as tmp:
         for name in names:

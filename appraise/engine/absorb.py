@@ -45,9 +45,8 @@ from functools import cached_property
 from typing import TYPE_CHECKING
 
 import numpy as np
-from scipy import linalg
 
-from .errors import CollinearityError
+from .errors import CollinearityError, FitError
 from .levels import LevelCount
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
@@ -58,6 +57,9 @@ ABSORB_MIN_COLUMNS = 40
 
 CHOLESKY_MAX_COND = 1e6
 """Largest condition number of the scaled Gram matrix solved by Cholesky (else QR)."""
+
+DENSE_LIMIT_BYTES = 2.0 * 2**30
+"""Largest dense design :meth:`AbsorbedFit.dense_design` builds for a consumer that asks."""
 
 COV_TYPES = ("nonrobust", "HC0", "HC1", "HC2", "HC3")
 """Covariance types offered, named as statsmodels names them."""
@@ -289,14 +291,28 @@ class AbsorbedFit:
         fitted[on] += self.params[dcol]
         out = []
         for V in (cov, self.xtx_inv):
-            q = np.einsum("ij,jk,ik->i", Z0, V[np.ix_(zp, zp)], Z0)
+            q = np.einsum("ij,ij->i", Z0 @ V[np.ix_(zp, zp)], Z0)
             cross = V[np.ix_(zp, dcol)]  # (k, rows in a level)
             q[on] += 2.0 * np.einsum("ij,ji->i", Z0[on], cross) + V[dcol, dcol]
             out.append(q)
         return fitted, out[0], out[1]
 
-    def dense_design(self) -> np.ndarray:
-        """The (n, p) dense design (only for consumers that need it; O(np) memory)."""
+    def dense_design(self, limit_bytes: float | None = None) -> np.ndarray:
+        """The (n, p) dense design (only for consumers that need it; O(np) memory).
+
+        Raises
+        ------
+        FitError
+            It would take more than ``limit_bytes`` (default :data:`DENSE_LIMIT_BYTES`).
+        """
+        limit = DENSE_LIMIT_BYTES if limit_bytes is None else limit_bytes
+        size = 8.0 * self.n * self.p
+        if size > limit:
+            raise FitError(
+                f"this needs the whole design ({self.n:,} sales x {self.p:,} columns, "
+                f"{size / 2**30:,.1f} GiB), more than the {limit / 2**30:,.1f} GiB allowed; "
+                f"the fit itself absorbed {self.term} and never built it"
+            )
         out = np.zeros((self.n, self.p))
         out[:, self.z_pos] = self.Z
         col = self.col_of_level[self.codes]
@@ -382,6 +398,8 @@ def absorb_fit(
         gram += zt.T @ zt
         rhs += zt.T @ (y[lo:hi] - y_means[codes[lo:hi]])
 
+    from scipy import linalg  # here, not at import: commands that never fit skip it
+
     use_cholesky = method == "cholesky"
     if method == "auto":
         ev = np.linalg.eigvalsh(gram)
@@ -462,6 +480,8 @@ def _qr_solve(zt, yt, names, z_pos, d_pos, means, counts, others, n, p, file):
     block extends to the whole design as :math:`[b;\\ -Mb]` (the level effects that undo
     it), scaled like the columns (indicator g by :math:`\\sqrt{c_g}`).
     """
+    from scipy import linalg
+
     q, r, perm = linalg.qr(zt, mode="economic", pivoting=True)
     k = r.shape[1]
     d = np.abs(np.diag(r))
@@ -616,6 +636,7 @@ __all__ = [
     "absorbed_level_counts",
     "CHOLESKY_MAX_COND",
     "COV_TYPES",
+    "DENSE_LIMIT_BYTES",
     "AbsorbedFit",
     "absorb_fit",
     "collinear_error",

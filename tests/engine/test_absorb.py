@@ -286,3 +286,23 @@ def test_structured_path_needs_a_onehot_term(hp2):
         _fit(hp2, 'target = "price"\nfeatures = ["rooms"]\n', path="structured")
     with pytest.raises(ValueError, match="path"):
         _fit(hp2, 'target = "price"\nfeatures = ["rooms"]\n', path="fast")
+
+
+def test_the_design_hands_over_the_absorbed_term_as_codes(hp2):
+    fit = _fit(hp2, HP2, path="structured")
+    new = hp2.iloc[[3, 4]].reset_index(drop=True)
+    new.loc[1, "tract"] = None  # missing: not ok, code -1
+    built = fit.design.build(new, unseen="flag", codes_for="onehot(tract, ref='t07')")
+    dense = fit.design.build(new, unseen="flag")
+    assert built.matrix.shape == (2, 6) and dense.matrix.shape == (2, 50)
+    levels = fit.design.groups[1].levels
+    assert levels[built.codes[0]] == hp2.loc[3, "tract"] and built.codes[1] == -1
+    assert_allclose(built.matrix[0], dense.matrix[0, fit.structure.z_pos], rtol=0, atol=0)
+    assert list(built.row_ok) == list(dense.row_ok) == [True, False]
+
+
+def test_the_whole_design_is_built_only_within_a_limit(hp2):
+    fit = _fit(hp2, HP2, path="structured")
+    with pytest.raises(FitError, match="GiB"):
+        fit.structure.dense_design(limit_bytes=8.0 * fit.n * fit.p - 1)
+    assert fit.structure.dense_design(limit_bytes=8.0 * fit.n * fit.p).shape == (506, 50)
