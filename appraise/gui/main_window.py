@@ -28,6 +28,7 @@ from PySide6.QtWidgets import (
 
 from appraise import __version__
 from appraise.report.cautions import FULL_CAUTIONS, STATUS_CAUTION
+from appraise.report.numbers import number
 
 from .actions import Actions
 from .comparables_view import ComparablesView
@@ -62,6 +63,7 @@ OPEN_FILTER = (
 SALES_FILTER = f"Sales files (*{' *'.join(SALES_SUFFIXES)})"
 WORKFILE_FILTER = f"Workfiles (*{WORKFILE_SUFFIX} *.json)"
 LOAD_DIALOG_DELAY_MS = 400
+NOT_VALUED = "Subject not valued"
 PREFERRED_SIZE = (1400, 860)
 DOCK_MIN_WIDTH = {"data": 300, "subject": 270}
 """The window's size on a screen large enough for it."""
@@ -303,11 +305,17 @@ class MainWindow(QMainWindow):
         s.workfileChanged.connect(lambda _p: self._update_title())
         s.notice.connect(lambda text: self.statusBar().showMessage(text, 15_000))
         s.valuationFailed.connect(
-            lambda m: self.statusBar().showMessage(f"Subject not valued: {m}", 10_000)
+            lambda m: self.statusBar().showMessage(f"{NOT_VALUED}: {m}", 10_000)
         )
+        s.valuationChanged.connect(self._valued)
 
     def update_actions(self) -> None:
         self.actions_.update_actions(self.session)
+
+    def _valued(self, valuation: object) -> None:
+        """A value is shown: an earlier "not valued" remark no longer holds."""
+        if valuation is not None and self.statusBar().currentMessage().startswith(NOT_VALUED):
+            self.statusBar().clearMessage()
 
     # --- status bar ---------------------------------------------------------------------
     def update_status(self) -> None:
@@ -325,7 +333,7 @@ class MainWindow(QMainWindow):
             self.fit_label.setText("fit failed")
         elif s.fit is not None:
             f = s.fit
-            self.fit_label.setText(f"n={f.n:,}  R²={f.r2:.3f}  σ={f.sigma:.4g}")
+            self.fit_label.setText(f"n={f.n:,}  R²={f.r2:.3f}  σ={number(f.sigma, 4)}")
         else:
             self.fit_label.setText("not fitted")
 

@@ -41,7 +41,7 @@ from PySide6.QtWidgets import (
 
 from appraise.engine.errors import AppraiseError
 from appraise.engine.sales import ROW_COLUMN, Exclusion
-from appraise.report.numbers import plain
+from appraise.report.numbers import column_format, plain
 from appraise.report.tables import write_exclusion_log
 
 from .session import Session
@@ -128,6 +128,7 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
         sales = self._session.sales
         if sales is None:
             self._headers, self._values = [], []
+            self._formats = []
             self._rows = np.zeros(0, dtype=int)
         else:
             frame = sales.frame
@@ -149,6 +150,8 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
             self._rows = np.concatenate(
                 [frame[ROW_COLUMN].to_numpy(dtype=int), [e.row for e in sales.excluded]]
             ).astype(int)
+            # one format per column: 8,822 beside 13,981, not 8822
+            self._formats = [column_format(v) for v in self._values]
         self._haystack = None
         self._refresh_reasons()
         self._apply_order()
@@ -248,7 +251,8 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
                 return str(self._rows[i])
             if col == 1:
                 return self._reasons[i]
-            return plain(self._values[col - 2][i]) if self._values[col - 2][i] is not None else ""
+            v = self._values[col - 2][i]
+            return self._formats[col - 2](v) if v is not None else ""
         if role == Qt.ItemDataRole.ForegroundRole and self._reasons[i]:
             return QBrush(GREY)
         if role == Qt.ItemDataRole.ToolTipRole and self._reasons[i]:

@@ -28,6 +28,7 @@ from appraise.gui.model_editor import (
 from appraise.gui.preferences import DEFAULTS, MAX_RECENT, Preferences
 from appraise.gui.results_view import effect_text
 from appraise.gui.settings_dialog import SettingsDialog
+from appraise.report.numbers import number
 
 
 def _workbook() -> pd.DataFrame:
@@ -305,7 +306,9 @@ def test_status_bar_names_counts_fit_and_caution(qtbot, window, sample_copy):
     open_and_wait(qtbot, window, sample_copy, companions=True)
     fit = window.session.fit
     assert window.rows_label.text() == "598 sales used · 8 left out"  # sample_data/README.md
-    assert window.fit_label.text() == f"n=598  R²={fit.r2:.3f}  σ={fit.sigma:.4g}"
+    # never "σ=7.521e+04": four significant digits written out
+    assert window.fit_label.text() == f"n=598  R²={fit.r2:.3f}  σ={number(fit.sigma, 4)}"
+    assert "e+" not in window.fit_label.text() and "e-" not in window.fit_label.text()
     assert window.caution_label.text() == "Statistical estimate — not an appraisal"
     assert np.isfinite(fit.r2)
 

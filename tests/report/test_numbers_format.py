@@ -130,3 +130,13 @@ def test_money_per_unit_keeps_cents_for_small_amounts():
     assert money_rate(123.456) == "$123"
     assert money_rate(12.345) == "$12.35"
     assert money_rate(-0.0123) == "-$0.012"
+
+
+def test_a_column_prints_its_whole_numbers_alike():
+    from appraise.report.numbers import column_format
+
+    prices = column_format([13981.0, 8822.0, None, 412500.5])
+    assert [prices(v) for v in (13981.0, 8822.0, 412500.5)] == ["13,981", "8,822", "412,500"]
+    years = column_format([1964.0, 2021.0])
+    assert years(1964.0) == "1964"  # a year never gets a separator
+    assert column_format(["Old Mill", "Heronmoor"])("Old Mill") == "Old Mill"
