@@ -308,3 +308,17 @@ def test_a_live_save_s_temporary_file_is_left_alone(tmp_path):
 def test_embedded_bytes_are_base64_in_the_file(tmp_path):
     path, doc = _doc(tmp_path)
     assert base64.b64decode(doc["sales"]["embedded"]["data"]) == CSV_TEXT.encode()
+
+
+def test_a_workfile_whose_model_doubles_40_times_reopens_and_fits(tmp_path):
+    from appraise.engine.fitting import fit_model
+
+    derived = {"b0": "living_area"} | {f"b{k}": f"b{k - 1} + b{k - 1}" for k in range(1, 41)}
+    spec = ModelSpec(target="price", features=("b40 / 1099511627776",), derived=derived)
+    path = tmp_path / "w.appraise.json"
+    save_workfile(path, _state(model=spec.to_dict(), user_exclusions=()))
+    restored = restore(load_workfile(path))
+    fit = fit_model(restored.sales, restored.spec)
+    # b40 / 2**40 is living_area exactly (powers of two are exact in binary floating point)
+    plain = fit_model(restored.sales, ModelSpec(target="price", features=("living_area",)))
+    assert fit.terms[1].coef == pytest.approx(plain.terms[1].coef, rel=1e-12)
