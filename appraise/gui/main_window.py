@@ -225,6 +225,7 @@ class MainWindow(QMainWindow):
             ("Insert &interaction…", self.model_editor.insert_interaction),
             ("Insert &ratio…", self.model_editor.insert_ratio),
             ("Insert region &indicators…", self.model_editor.insert_indicators),
+            ("&Suggest changes…", self.model_editor.open_suggest),
         ):
             model_menu.addAction(text, slot)
 

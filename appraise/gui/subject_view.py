@@ -8,16 +8,18 @@ which values the subject again on a worker.
 
 from __future__ import annotations
 
+import re
 from typing import Any
 
 import pandas as pd
-from PySide6.QtCore import Qt
+from PySide6.QtCore import Qt, QTimer
 from PySide6.QtWidgets import (
     QComboBox,
     QFormLayout,
     QFrame,
     QLabel,
     QLineEdit,
+    QPushButton,
     QScrollArea,
     QVBoxLayout,
     QWidget,
@@ -27,6 +29,7 @@ from appraise.engine.errors import AppraiseError
 from appraise.engine.expressions import expression_inputs
 from appraise.engine.sales import ROW_COLUMN, SalesTable
 from appraise.engine.valuation import Valuation
+from appraise.pipeline import ASSUMED_KEY
 from appraise.report.cautions import ONE_LINE_CAUTION
 from appraise.report.labels import field_label
 from appraise.report.numbers import fixed, money, percent, plain
@@ -62,7 +65,7 @@ def subject_fields(session: Session) -> list[str]:
                     fields.append(EFFECTIVE_DATE)
                 else:
                     fields.append(by_header.get(header, header))
-    fields += list(session.subject)
+    fields += [k for k in session.subject if k != ASSUMED_KEY]  # a mark, not an attribute
     return list(dict.fromkeys(fields))
 
 
@@ -117,6 +120,16 @@ class SubjectView(QWidget):
             label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.warnings = QLabel()
         self.warnings.setWordWrap(True)
+        self.stale = QLabel()
+        self.stale.setObjectName("subjectStale")
+        self.stale.setStyleSheet("color: #8a6d00;")
+        self.fill_button = QPushButton("Fill the rest with the sales' &medians")
+        self.fill_button.setObjectName("fillMedians")
+        self.fill_button.setToolTip(
+            "Set every empty number field to the median of the sales; the value then "
+            "warns that these figures are assumed"
+        )
+        self.fill_button.clicked.connect(self.fill_medians)
         self.caution = QLabel(ONE_LINE_CAUTION)
         self.caution.setWordWrap(True)
         self.caution.setStyleSheet("color: #555555; font-size: small;")
@@ -124,7 +137,9 @@ class SubjectView(QWidget):
         lay = QVBoxLayout(self)
         lay.addWidget(QLabel("<b>Subject property</b>"))
         lay.addWidget(scroll, 1)
+        lay.addWidget(self.fill_button)
         lay.addWidget(QLabel("<b>Estimated value</b>"))
+        lay.addWidget(self.stale)
         lay.addWidget(self.estimate)
         lay.addWidget(self.interval)
         lay.addWidget(self.details)
@@ -137,6 +152,11 @@ class SubjectView(QWidget):
         session.valuationChanged.connect(self.show_valuation)
         session.valuationFailed.connect(self._valuation_failed)
         session.fitFailed.connect(lambda _m: self._no_fit())
+        # an edit waits a moment before the refit: the value shown is out of date meanwhile
+        for sig in (session.modelChanged, session.subjectChanged, session.salesChanged):
+            sig.connect(lambda *_: self._mark_stale())
+        session.exclusionsChanged.connect(self._mark_stale)
+        session.fitStarted.connect(self._mark_stale)
         self.rebuild()
         self.show_valuation(session.valuation)
 
@@ -210,11 +230,90 @@ class SubjectView(QWidget):
                 out[name] = text
             else:
                 out.pop(name, None)
+            self._drop_assumed(out, name)  # typed by the user: no longer assumed
         return out
+
+    def _drop_assumed(self, subject: dict[str, Any], name: str) -> None:
+        assumed = [a.strip() for a in str(subject.get(ASSUMED_KEY) or "").split(",") if a.strip()]
+        kept = [a for a in assumed if a != field_label(name)]
+        if kept:
+            subject[ASSUMED_KEY] = ", ".join(kept)
+        else:
+            subject.pop(ASSUMED_KEY, None)
+
+    def median_hints(self) -> dict[str, float]:
+        """The empty number fields and the sales' median each would take."""
+        sales = self._session.sales
+        subject = self._session.subject
+        out: dict[str, float] = {}
+        if sales is None:
+            return out
+        for name, editor in self.editors.items():
+            if not isinstance(editor, QLineEdit) or editor.text().strip() or subject.get(name):
+                continue
+            header = _header_of(sales, name)
+            if header is None:
+                continue
+            column = sales.frame[header]
+            if pd.api.types.is_numeric_dtype(column) and column.notna().any():
+                out[name] = float(column.median())
+        return out
+
+    def fill_medians(self) -> dict[str, float]:
+        """Fill every empty number field with the sales' median, marked as assumed."""
+        hints = self.median_hints()
+        if not hints:
+            return hints
+        subject = self.values()
+        for name, median in hints.items():
+            subject[name] = int(median) if float(median).is_integer() else round(median, 6)
+        already = [a.strip() for a in str(subject.get(ASSUMED_KEY) or "").split(",") if a.strip()]
+        labels = already + [field_label(n) for n in hints if field_label(n) not in already]
+        subject[ASSUMED_KEY] = ", ".join(labels)
+        self._session.set_subject(subject)
+        return hints
+
+    def labelled(self, message: str) -> str:
+        """``message`` with the file's headers and role names replaced by the field labels
+        the form shows ("Bedrooms", not "beds" or "Beds")."""
+        sales = self._session.sales
+        if sales is None:
+            return message
+        pairs: list[tuple[str, str]] = []
+        for name in self._fields:
+            label = field_label(name)
+            header = _header_of(sales, name)
+            for word in {header, name} - {None, label}:
+                pairs.append((word, label))
+        for word, label in sorted(pairs, key=lambda p: -len(p[0])):
+            message = message.replace(f"'{word}'", label)
+            message = _replace_word(message, word, label)
+        return message
 
     def _edited(self) -> None:
         if not self._filling:
             self._session.set_subject(self.values())
+        self.fill_button.setEnabled(bool(self.median_hints()))
+
+    def _mark_stale(self) -> None:
+        """Say the value shown no longer matches the inputs until the refit reports.
+
+        Marked at once, and looked at again once the change has been handed over (the
+        session starts its refit after telling the views), hence the zero-delay timer.
+        """
+        if self._session.valuation is not None:
+            self.stale.setText("Out of date: recalculating…")
+            self.estimate.setStyleSheet("color: #888888;")
+        QTimer.singleShot(0, self, self._show_stale)
+
+    def _show_stale(self) -> None:
+        s = self._session
+        if s.valuation is not None and not s.results_current:
+            self.stale.setText("Out of date: recalculating…")
+            self.estimate.setStyleSheet("color: #888888;")
+        elif s.results_current or s.valuation is None:
+            self.stale.setText("")
+            self.estimate.setStyleSheet("")
 
     # --- the value ----------------------------------------------------------------------
     def show_valuation(self, val: Valuation | None) -> None:
@@ -231,6 +330,7 @@ class SubjectView(QWidget):
                 self.warnings.setText("")
             return
         c = self._currency
+        self.stale.setText("")
         self.estimate.setStyleSheet("")
         self.estimate.setText(money(val.estimate, c))
         level = percent(val.level, 1 if round(val.level * 100) != val.level * 100 else 0)
@@ -253,17 +353,23 @@ class SubjectView(QWidget):
         )
         self.details.setText("\n".join(lines))
         self.warnings.setStyleSheet("")
-        self.warnings.setText("\n".join(f"⚠ {w}" for w in val.warnings))
+        self.warnings.setText("\n".join(f"⚠ {self.labelled(w)}" for w in val.warnings))
 
     def _valuation_failed(self, message: str) -> None:
         self.estimate.setText("—")
         self.interval.setText("")
         self.details.setText("")
         self.warnings.setStyleSheet(ERROR_STYLE)
-        self.warnings.setText(f"The subject cannot be valued: {message}")
+        self.stale.setText("")
+        self.warnings.setText(f"The subject cannot be valued: {self.labelled(message)}")
 
     def _no_fit(self) -> None:
         self.estimate.setText("—")
         self.interval.setText("No value: the model could not be fitted (see the model panel).")
         self.details.setText("")
         self.warnings.setText("")
+
+
+def _replace_word(text: str, word: str, label: str) -> str:
+    """Replace ``word`` where it stands alone (not inside another word)."""
+    return re.sub(rf"(?<![\w`]){re.escape(word)}(?![\w`])", label, text)
