@@ -208,7 +208,7 @@ def _signature(block: SignatureBlock) -> str:
     parts.append('<table class="facts" cellspacing="0" cellpadding="6" width="100%">')
     for label in block.fields:
         parts.append(
-            f'<tr><td class="label" width="40%">{escape(label)}</td><td>{"_" * 48}</td></tr>'
+            f'<tr><td class="label" width="40%">{escape(label)}</td><td>{"_" * 34}</td></tr>'
         )
     parts.append("</table>")
     return "\n".join(parts)
