@@ -216,3 +216,20 @@ def test_another_onehot_term_can_be_named(capsys):
     for e in d["effects"]:
         if not e["reference"]:
             assert e["effect"]["low"] <= truth[e["level"]] <= e["effect"]["high"], e["level"]
+
+
+def test_location_effect_agrees_with_statsmodels_t_test(sample_json, reference):
+    treat, _ = reference
+    prem = sample_json["location_premium"]
+    assert prem["base"] == "subject" and prem["columns"] == ["dist_km", "living_area * dist_km"]
+    names = list(treat.params.index)
+    area = 1840.0  # the subject's living area (sample_data/subject.json)
+    for pt in prem["points"][1:]:
+        g = np.zeros(len(names))
+        g[names.index("dist")] = pt["km"]
+        g[names.index("I(la * dist)")] = area * pt["km"]
+        tt = treat.t_test(g)
+        assert pt["change"] == pytest.approx(float(np.squeeze(tt.effect)), rel=RTOL)
+        lo, hi = np.squeeze(tt.conf_int(alpha=0.05))
+        assert (pt["low"], pt["high"]) == pytest.approx((lo, hi), rel=RTOL)
+        assert pt["percent"]["value"] == pytest.approx(np.expm1(pt["change"]), rel=1e-12)
