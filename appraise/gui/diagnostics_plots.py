@@ -4,8 +4,9 @@
 * the leave-one-out ratio (value / price) against value, as the ratio study sees it.
 
 Flagged sales are vermillion diamonds on top of blue circles (colour and shape, so
-colour-blind readers tell them apart too); a point's size grows with the sale's Cook's
-distance. Like :mod:`appraise.gui.plots`, the builders are pure (results in, a
+colour-blind readers tell them apart too); every point has the same size (a sale that
+moves the coefficients is flagged, which says it more plainly than a bigger dot; its
+Cook's distance is in the tooltip and the tables). Like :mod:`appraise.gui.plots`, the builders are pure (results in, a
 :class:`~appraise.gui.plots.SalePlot` out) and the points are
 :class:`~appraise.gui.plot_items.SaleScatter` items that report clicks by file row.
 """
@@ -23,7 +24,6 @@ from appraise.report.numbers import MISSING, money, number
 from .plot_items import (
     EXCLUDED_COLOUR,
     OKABE_ITO,
-    POINT_SIZE,
     SINGLE_COLOUR,
     GroupedAxis,
     money_axis,
@@ -36,9 +36,6 @@ from .plots import SalePlot, new_plot
 
 FLAG_COLOUR = OKABE_ITO["vermillion"]
 FLAG_SYMBOL = "d"
-MIN_POINT_SIZE = POINT_SIZE - 2
-MAX_POINT_SIZE = 15
-"""Size of the point of the sale with the largest Cook's distance."""
 
 
 def positions_by_row(d: Diagnostics) -> Callable[[int], int | None]:
@@ -93,19 +90,6 @@ def _signed(x: float, fmt: str) -> str:
     return number_text(x, "+" + fmt)
 
 
-def cook_sizes(cooks: np.ndarray) -> np.ndarray:
-    """Point sizes growing with the square root of Cook's distance (area ~ distance).
-
-    Whole pixels only: pyqtgraph draws each distinct size from its own cached symbol,
-    so 50,000 distinct sizes would take seconds where a dozen take milliseconds.
-    """
-    d = np.asarray(cooks, dtype=float)
-    finite = d[np.isfinite(d)]
-    top = float(finite.max()) if finite.size and finite.max() > 0 else 1.0
-    share = np.sqrt(np.clip(np.nan_to_num(d, nan=0.0) / top, 0.0, 1.0))
-    return np.round(MIN_POINT_SIZE + (MAX_POINT_SIZE - MIN_POINT_SIZE) * share)
-
-
 def _draw_sales(
     sp: SalePlot,
     d: Diagnostics,
@@ -116,12 +100,11 @@ def _draw_sales(
     hollow: np.ndarray | None = None,
     hollow_name: str = "",
 ) -> None:
-    """Plain sales blue, flagged ones vermillion diamonds on top; sized by Cook's distance."""
+    """Plain sales blue, flagged ones vermillion diamonds on top, all of one size."""
     rows = np.asarray(d.rows, dtype=np.int64)
     flagged = np.zeros(d.n, dtype=bool)
     flagged[[f.position for f in d.flags]] = True
     finite = np.isfinite(x) & np.isfinite(y)
-    sizes = cook_sizes(d.influence.cooks_distance)
     hollow = np.zeros(d.n, dtype=bool) if hollow is None else hollow
     groups = (
         (finite & hollow, EXCLUDED_COLOUR, "o", True, hollow_name, -1),
@@ -140,7 +123,6 @@ def _draw_sales(
             hollow=empty,
             name=f"{name} ({int(mask.sum())})",
             tip=tip,
-            size=sizes[mask],
         )
         s.setZValue(z)
         sp.plot.addItem(s)
@@ -170,15 +152,20 @@ def influence_figure(
 
     A sale to the right of the dashed vertical line has unusual attributes (leverage
     above the limit); above or below the dashed horizontal lines its price is far
-    from what the others predict; a large point moves the coefficients (Cook's
-    distance). Sales with leverage 1 have no studentized residual and are not drawn.
+    from what the others predict; a diamond is flagged (by these limits or because it
+    moves the coefficients, Cook's distance). Sales with leverage 1 have no studentized
+    residual and are not drawn. The statistics keep their names in the axis titles and
+    the help; the titles say first what they mean.
     """
     plot = new_plot(
-        "Studentized residual against leverage", GroupedAxis("bottom"), GroupedAxis("left"), False
+        "Price gap against how unusual the sale is",
+        GroupedAxis("bottom"),
+        GroupedAxis("left"),
+        False,
     )
     sp = SalePlot(plot, "influence")
-    plot.setLabel("bottom", "Leverage")
-    plot.setLabel("left", "Externally studentized residual")
+    plot.setLabel("bottom", "How unusual its attributes are (leverage)")
+    plot.setLabel("left", "Price gap, in standard errors (studentized residual)")
     if d is None:
         show_message(plot, "No checks yet.")
         return sp
@@ -238,5 +225,5 @@ def legend_html() -> str:
         f'<span style="color:{SINGLE_COLOUR}">●</span>&nbsp;Sale&nbsp;&nbsp; '
         f'<span style="color:{FLAG_COLOUR}">◆</span>&nbsp;Flagged&nbsp;&nbsp; '
         f'<span style="color:{EXCLUDED_COLOUR}">○</span>&nbsp;Trimmed from the ratio '
-        "study&nbsp;&nbsp; larger point = larger Cook's distance; dashed lines = limits"
+        "study&nbsp;&nbsp; dashed lines = the limits that flag a sale"
     )

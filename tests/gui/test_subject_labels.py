@@ -32,3 +32,20 @@ def test_check_tables_use_the_tools_headings(qtbot, window, sample_copy):
     heads = [terms.headerData(j, Qt.Orientation.Horizontal) for j in range(terms.columnCount())]
     assert "GVIF^(1/(2 df))" not in heads and "Std. error inflation (×)" in heads
     assert "(G)VIF" not in heads and "Variance inflation" in heads
+
+
+def test_influence_plot_draws_every_sale_alike_with_plain_axis_titles(qtbot, window, sample_copy):
+    from appraise.gui.diagnostics_plots import influence_figure
+
+    open_and_wait(qtbot, window, sample_copy, companions=True)
+    s = window.session
+    qtbot.waitUntil(lambda: s.diagnostics is not None, timeout=30_000)
+    sp = influence_figure(s.diagnostics)
+    sizes = set()
+    for scatter in sp.scatters:
+        sizes.update(float(x) for x in scatter.data["size"])
+    assert len(sizes) == 1  # not sized by Cook's distance
+    bottom = sp.plot.getAxis("bottom").labelText
+    left = sp.plot.getAxis("left").labelText
+    assert bottom.startswith("How unusual") and "(leverage)" in bottom
+    assert left.startswith("Price gap") and "studentized residual" in left
