@@ -35,6 +35,7 @@ from .comparables_view import ComparablesView
 from .diagnostics_view import DiagnosticsView
 from .help_view import HelpView
 from .model_editor import ModelEditor
+from .model_file import ModelFileCommands
 from .plots import PlotsView
 from .preferences import Preferences
 from .regions_view import RegionsView
@@ -167,6 +168,7 @@ class MainWindow(QMainWindow):
 
         # undo and redo of every change to the model, roles, exclusions and subject
         self.history = SessionHistory(session, self)
+        self.model_file = ModelFileCommands(session, self, prefs.get("currency_symbol"))
         self.undo_action, self.redo_action = self.history.make_actions(self)
         self._build_menus()
         self._connect()
@@ -220,6 +222,15 @@ class MainWindow(QMainWindow):
 
         model_menu = bar.addMenu("&Model")
         model_menu.addAction(a.refit)
+        model_menu.addSeparator()
+        for act in (
+            self.model_file.open,
+            self.model_file.save,
+            self.model_file.save_as,
+            self.model_file.compare,
+        ):
+            model_menu.addAction(act)
+        model_menu.addSeparator()
         for text, slot in (
             ("Insert &polynomial…", self.model_editor.insert_polynomial),
             ("Insert &interaction…", self.model_editor.insert_interaction),
@@ -640,5 +651,6 @@ class MainWindow(QMainWindow):
                 event.ignore()
                 return
         self.prefs.save_window_geometry(self.saveGeometry())
+        self.model_file.wait()
         self.session.shutdown()
         event.accept()
