@@ -566,10 +566,16 @@ def group_regions(
     )
     method = (
         "regions sorted by effect; each group is a maximal run of consecutive regions in "
-        f"which no pair differs at Holm-adjusted p < {alpha:g}; regions sharing a letter "
+        f"which no pair differs at Holm-adjusted p < {alpha_text(alpha)}; regions sharing a letter "
         "cannot be told apart"
     )
     return RegionGroups(alpha, tuple(order), groups, letters, method)
+
+
+def alpha_text(alpha: float) -> str:
+    """A test level written out (0.05, 0.001, 0.0001), never in scientific notation."""
+    text = f"{alpha:.6f}".rstrip("0").rstrip(".")
+    return text or "0"
 
 
 def _letter(i: int) -> str:
@@ -1133,6 +1139,7 @@ __all__ = [
     "RegionTerm",
     "SlopeSet",
     "WaldTest",
+    "alpha_text",
     "analyse_regions",
     "area_prices",
     "combination",

@@ -27,6 +27,7 @@ from PySide6.QtWidgets import (
 
 from appraise.engine.regions import (
     RegionAnalysis,
+    alpha_text,
     analyse_regions,
     has_region_term,
     level_labels,
@@ -39,6 +40,7 @@ from appraise.report.regions_section import (
     area_price_table,
     effects_table,
     level_name,
+    level_text,
     pairwise_table,
     slope_tables,
     strata_table,
@@ -242,7 +244,7 @@ class RegionsView(QWidget):
             f"{len(ra.term.levels)} regions against {ra.term.reference} "
             f"({ra.term.expression}).{subject} All effects zero: F = {fixed(j.statistic, 2)} "
             f"on {j.df_num} and {j.df_den} df, p {pvalue(j.p_value)}. Regions that cannot be "
-            f"told apart at {1 - ra.level:.2f}: {groups}."
+            f"told apart at {alpha_text(1 - ra.level)}: {groups}."
             + (f" {len(ra.warnings)} warning(s), listed under Ratio study." if ra.warnings else "")
         )
         self.summary.setToolTip("\n".join(ra.warnings))
@@ -304,7 +306,9 @@ class RegionsView(QWidget):
         plot.addItem(self.forest_points)
         plot.getAxis("left").setTicks([[(float(i), r[0]) for i, r in enumerate(rows)]])
         unit = "% effect (e^b - 1)" if ra.response == "log" else "effect (price)"
-        plot.setLabel("bottom", f"{unit} against {ra.term.reference}, {ra.level:.0%} interval")
+        plot.setLabel(
+            "bottom", f"{unit} against {ra.term.reference}, {level_text(ra.level)} interval"
+        )
         plot.setTitle("Region effects: diamond = reference, hollow = thin, red edge = subject's")
 
     def _draw_area_prices(self, ra: RegionAnalysis) -> None:
@@ -330,7 +334,7 @@ class RegionsView(QWidget):
         ticks = [(float(i), level_name(ra, a.level)) for i, a in enumerate(rows)]
         plot.getAxis("left").setTicks([ticks])
         plot.setLabel("bottom", "price per unit of living area at the region's typical sale")
-        plot.setTitle(f"Price per unit of living area, {ra.level:.0%} interval")
+        plot.setTitle(f"Price per unit of living area, {level_text(ra.level)} interval")
 
     def _draw_slopes(self, ra: RegionAnalysis) -> None:
         plot = self.slope_plot
@@ -363,7 +367,7 @@ class RegionsView(QWidget):
             [[(float(i), level_name(ra, r.level)) for i, r in enumerate(rows)]]
         )
         plot.setLabel("bottom", f"slope of {s.factor} ({s.unit})")
-        plot.setTitle(f"Slope of {s.factor} in each region, {ra.level:.0%} interval")
+        plot.setTitle(f"Slope of {s.factor} in each region, {level_text(ra.level)} interval")
 
     def map_points(self, ra: RegionAnalysis) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
         """(east km, north km, region effect) of every sale used, or None without

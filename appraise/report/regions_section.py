@@ -13,6 +13,7 @@ from ..engine.regions import (
     Estimate,
     Percent,
     RegionAnalysis,
+    alpha_text,
     analyse_regions,
     has_region_term,
 )
@@ -30,6 +31,11 @@ EFFECT_NOTE = (
     "Effects hold every other feature of the model fixed: the same house, in another region. "
     "Intervals at {level}; p values and intervals use the fit's {cov} covariance."
 )
+
+
+def level_text(level: float) -> str:
+    """An interval level as a percentage with the decimals it needs: 95%, 99.9%."""
+    return alpha_text(100 * level) + "%"
 
 
 def level_name(ra: RegionAnalysis, level: str) -> str:
@@ -76,10 +82,17 @@ def effects_table(ra: RegionAnalysis, currency: str = "$") -> Table:
     """
     log = ra.response == "log"
     if log:
-        cols = ["Region", "Sales", "Effect (SE)", "p", "% effect", f"{ra.level:.0%} interval"]
+        cols = [
+            "Region",
+            "Sales",
+            "Effect (SE)",
+            "p",
+            "% effect",
+            f"{level_text(ra.level)} interval",
+        ]
         cols += ["Kennedy", "vs average", "Letters"]
     else:
-        cols = ["Region", "Sales", "Effect", "SE", f"{ra.level:.0%} interval", "p"]
+        cols = ["Region", "Sales", "Effect", "SE", f"{level_text(ra.level)} interval", "p"]
         cols += ["vs average", "Letters"]
     rows, values = [], []
     for e in ra.sorted_effects():
@@ -143,7 +156,7 @@ def effects_table(ra: RegionAnalysis, currency: str = "$") -> Table:
         tuple(rows),
         tuple(values),
         ("l",) + ("r",) * (len(cols) - 2) + ("l",),
-        note=EFFECT_NOTE.format(level=f"{ra.level:.0%}", cov=ra.cov_type)
+        note=EFFECT_NOTE.format(level=level_text(ra.level), cov=ra.cov_type)
         + (
             " Effect: the coefficient (log scale) with its SE; % effect = e^b - 1 with its "
             "interval; Kennedy (1981): e^(b - Var(b)/2) - 1."
@@ -162,7 +175,15 @@ def _pct_kennedy(p: Percent) -> str:
 def pairwise_table(ra: RegionAnalysis, currency: str = "$") -> Table:
     """Every pair of regions: difference, interval, raw and Holm-adjusted p."""
     log = ra.response == "log"
-    cols = ("First", "Second", "Difference", f"{ra.level:.0%} interval", "p", "p (Holm)", "Differ")
+    cols = (
+        "First",
+        "Second",
+        "Difference",
+        f"{level_text(ra.level)} interval",
+        "p",
+        "p (Holm)",
+        "Differ",
+    )
     rows, values = [], []
     for c in ra.pairwise:
         diff = _pct(c.percent) if log else money(c.difference.value, currency)
@@ -199,7 +220,7 @@ def pairwise_table(ra: RegionAnalysis, currency: str = "$") -> Table:
         note=(
             "Differences are first minus second"
             + (" as % of the second's price" if log else "")
-            + f"; 'Differ' when the Holm-adjusted p is below {1 - ra.level:.2f}."
+            + f"; 'Differ' when the Holm-adjusted p is below {alpha_text(1 - ra.level)}."
         ),
     )
 
@@ -209,7 +230,7 @@ def slope_tables(ra: RegionAnalysis, currency: str = "$") -> list[Table]:
     out = []
     log = ra.response == "log"
     for k, s in enumerate(ra.slopes):
-        cols = ["Region", "Sales", "Slope", "SE", f"{ra.level:.0%} interval"]
+        cols = ["Region", "Sales", "Slope", "SE", f"{level_text(ra.level)} interval"]
         has_ppu = log and any(r.price_per_unit is not None for r in s.slopes)
         if has_ppu:
             cols += ["Price per unit at median price", "interval"]
@@ -285,7 +306,7 @@ def area_price_table(ra: RegionAnalysis, currency: str = "$") -> Table | None:
             "Estimate",
             "Per unit",
             "SE",
-            f"{ra.level:.0%} interval",
+            f"{level_text(ra.level)} interval",
         ),
         tuple(rows),
         tuple(values),
@@ -391,7 +412,8 @@ def neighbourhood_blocks(fit, valuation=None, currency: str = "$") -> tuple[Bloc
 
 def _groups_text(ra: RegionAnalysis) -> str:
     return (
-        "; ".join("{" + ", ".join(g) + "}" for g in ra.groups.groups) + f" (at {1 - ra.level:.2f})"
+        "; ".join("{" + ", ".join(g) + "}" for g in ra.groups.groups)
+        + f" (at {alpha_text(1 - ra.level)})"
     )
 
 
@@ -443,7 +465,7 @@ def premium_table(ra: RegionAnalysis, currency: str = "$", rows_at_most: int = 1
     return Table(
         "location_effect",
         "Location: change from the centre with distance",
-        ("Distance (km)", "Change", f"{p.level:.0%} band"),
+        ("Distance (km)", "Change", f"{level_text(p.level)} band"),
         tuple(rows),
         align=("r", "r", "r"),
         note=f"For {'the subject' if p.base == 'subject' else p.base}, moved along a line from the centre "
@@ -459,6 +481,7 @@ __all__ = [
     "centroid_table",
     "effects_table",
     "level_name",
+    "level_text",
     "neighbourhood_blocks",
     "pairwise_table",
     "premium_table",

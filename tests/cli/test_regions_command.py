@@ -233,3 +233,10 @@ def test_location_effect_agrees_with_statsmodels_t_test(sample_json, reference):
         lo, hi = np.squeeze(tt.conf_int(alpha=0.05))
         assert (pt["low"], pt["high"]) == pytest.approx((lo, hi), rel=RTOL)
         assert pt["percent"]["value"] == pytest.approx(np.expm1(pt["change"]), rel=1e-12)
+
+
+def test_an_extreme_level_is_written_out(capsys):
+    code, out, _ = _run(capsys, "regions", SALES, "--model", MODEL, "--level", "0.9999")
+    assert code == 0
+    assert "99.99% interval" in out and "Holm-adjusted p < 0.0001" in out
+    assert "e-0" not in out and "100% interval" not in out
