@@ -297,6 +297,7 @@ class ModelEditor(QWidget):
             ("I&nteraction…", self.insert_interaction),
             ("Ra&tio…", self.insert_ratio),
             ("Re&gion indicators…", self.insert_indicators),
+            ("S&uggest…", self.open_suggest),
         ):
             b = QPushButton(text)
             b.clicked.connect(slot)
@@ -616,6 +617,18 @@ class ModelEditor(QWidget):
             [("&Reference level (the others are compared with it)", levels)],
             build=lambda v, _d: indicator_expression(category, v[0]),
         )
+
+    def open_suggest(self) -> None:
+        """The model assistant: ranked single changes with measured gains, the whole search."""
+        from .suggest_dialog import SuggestDialog
+
+        dialog = getattr(self, "suggest_dialog", None)
+        if dialog is None:
+            dialog = self.suggest_dialog = SuggestDialog(self._session, self)  # measures
+        else:
+            dialog.measure()
+        dialog.show()
+        dialog.raise_()
 
 
 def _check(expr: str, columns, derived, roles) -> str | None:

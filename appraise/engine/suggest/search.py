@@ -688,6 +688,29 @@ def proposed_spec(spec: ModelSpec, problem: Problem, features: Sequence[str]) ->
     return replace(spec, features=tuple(features), derived=MappingProxyType(derived))
 
 
+def features_after(features: Sequence[str], move: Move) -> tuple[str, ...]:
+    """The feature lines after ``move``: added lines appended, a dropped line removed, a
+    replaced line swapped in place."""
+    out = list(features)
+    if move.change == "add":
+        return (*out, *move.added.split(" and "))
+    i = out.index(move.dropped)
+    if move.change == "drop":
+        del out[i]
+    else:
+        out[i] = move.added
+    return tuple(out)
+
+
+def spec_after(spec: ModelSpec, problem: Problem, move: Move) -> ModelSpec:
+    """``spec`` with one ranked change made (lines as written in ``spec``, derived names
+    added where the new lines need them): what applying a suggestion hands to the fit."""
+    written = {t.feature: f for t, f in zip(problem.start, spec.features, strict=True)}
+    start = tuple(t.feature for t in problem.start)
+    features = tuple(written.get(f, f) for f in features_after(start, move))
+    return proposed_spec(spec, problem, features)
+
+
 def suggest(
     fit: FitResult,
     settings: SearchSettings = SearchSettings(),  # noqa: B008 - frozen, safe as a default
