@@ -13,6 +13,7 @@ from dataclasses import dataclass
 from appraise.engine.functions import FUNCTIONS
 from appraise.engine.roles import ROLES
 from appraise.report.cautions import FULL_CAUTIONS
+from appraise.report.labels import COLLINEARITY_COLUMNS, HELP
 
 SYNTAX_EXAMPLES: tuple[tuple[str, str], ...] = (
     ("living_area", "a column by its role name (works whatever the file calls the column)"),
@@ -82,6 +83,15 @@ GLOSSARY: tuple[tuple[str, str], ...] = (
         "Condition number",
         "How close the features come to repeating each other; a large number means small "
         "changes in the sales can swing the individual effects, though the value may hold.",
+    ),
+    # the checks' headings that replace statistics print-out names, with their formulas
+    *(
+        (name, HELP[name])
+        for name in (
+            COLLINEARITY_COLUMNS["gvif"],
+            COLLINEARITY_COLUMNS["gvif_root"],
+            "Studentized residual",
+        )
     ),
     (
         "Reference level",

@@ -153,6 +153,12 @@ HELP: Mapping[str, str] = MappingProxyType(
             "studentized form, LM = n R² of the squared residuals on the terms, does not "
             "assume normal errors; the original form, ESS / 2, does."
         ),
+        "Studentized residual": (
+            "A sale's price gap (sale minus model, on the model's scale) in standard errors "
+            "of a model fitted without that sale: e_i / (s_(i) sqrt(1 - h_i)), with h_i "
+            "its leverage; beyond about 3 either way the price is far from what the other "
+            "sales predict."
+        ),
         "Jarque-Bera": (
             "Tests whether the residuals are normal from their skewness S and kurtosis K: "
             "JB = n / 6 (S² + (K - 3)² / 4)."

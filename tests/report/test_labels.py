@@ -43,3 +43,11 @@ def test_every_renamed_heading_has_its_formula_in_the_help():
     assert "GVIF" not in COLLINEARITY_COLUMNS["gvif_root"]
     assert "GVIF^(1/(2 df))" in HELP[COLLINEARITY_COLUMNS["gvif_root"]]
     assert "1 / (1 - R²)" in HELP[COLLINEARITY_COLUMNS["gvif"]]
+
+
+def test_the_help_glossary_carries_the_renamed_headings_with_their_formulas():
+    from appraise.report.help_text import GLOSSARY
+
+    glossary = dict(GLOSSARY)
+    assert "GVIF^(1/(2 df))" in glossary[COLLINEARITY_COLUMNS["gvif_root"]]
+    assert "1 - h_i" in glossary["Studentized residual"]
