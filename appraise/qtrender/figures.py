@@ -74,6 +74,21 @@ def money_axis_class(currency: str):
     return MoneyAxis
 
 
+def plain_axis_class():
+    import pyqtgraph as pg
+
+    class PlainAxis(pg.AxisItem):
+        """Tick labels written out with thousands separators (``12,500``, ``0.0005``),
+        never pyqtgraph's ``%g`` (``1e+06``) for large or small values."""
+
+        def tickStrings(self, values, scale, spacing):  # noqa: N802 (pyqtgraph's name)
+            step = spacing * scale
+            places = max(0, math.ceil(-math.log10(step))) if step > 0 else 0
+            return [f"{v * scale:,.{places}f}" for v in values]
+
+    return PlainAxis
+
+
 def _short_money(v: float, currency: str, spacing: float) -> str:
     a = abs(v)
     sign = "-" if v < 0 else ""
@@ -107,11 +122,12 @@ def scatter_chart(
     import pyqtgraph.exporters  # noqa: F401  (registers ImageExporter)
     from PySide6.QtGui import QFont
 
-    axis_items = {}
-    if money_x:
-        axis_items["bottom"] = money_axis_class(currency)(orientation="bottom")
-    if money_y:
-        axis_items["left"] = money_axis_class(currency)(orientation="left")
+    axis_items = {
+        "bottom": (money_axis_class(currency) if money_x else plain_axis_class())(
+            orientation="bottom"
+        ),
+        "left": (money_axis_class(currency) if money_y else plain_axis_class())(orientation="left"),
+    }
     plot = pg.PlotItem(axisItems=axis_items)
     view = pg.GraphicsView(background="w")
     view.setCentralItem(plot)
