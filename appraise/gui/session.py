@@ -519,6 +519,8 @@ class Session(QObject):
         for note in restored.sales.notes:
             if "embedded" in note:
                 self.notice.emit(note)
+        for note in state.recovered:  # what an interrupted save left, and what became of it
+            self.notice.emit(note)
         self.refit_now()
 
     # --- saving ----------------------------------------------------------------------

@@ -58,3 +58,18 @@ def test_a_tampered_workfile_leaves_the_session_as_it_was(
     after = (session.sales, session.spec, dict(session.subject), session.sales_path)
     assert after[0] is before[0] and after[1] is before[1]
     assert after[2:] == before[2:]
+
+
+def test_opening_says_what_an_interrupted_save_left(qtbot, session, sample_copy, tmp_path):
+    _load(qtbot, session, sample_copy)
+    path = tmp_path / "w.appraise.json"
+    session.save_workfile(path, embed=True)
+    complete = tmp_path / f".{path.name}.999999999.x.tmp"  # a dead writer's finished file
+    complete.write_bytes(path.read_bytes())
+    notices: list[str] = []
+    session.notice.connect(notices.append)
+    with qtbot.waitSignal(session.fitFinished, timeout=WAIT_MS):
+        session.open_workfile(path)
+    qtbot.waitUntil(lambda: session.pending_tasks == 0, timeout=WAIT_MS)
+    assert any("kept as w.appraise.recovered-1.json" in n for n in notices), notices
+    assert (tmp_path / "w.appraise.recovered-1.json").is_file() and not complete.exists()
