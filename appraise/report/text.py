@@ -171,7 +171,8 @@ def _collinearity_lines(d: Diagnostics) -> list[str]:
         f"{number(cond.threshold)}; scaling: {cond.scaling}"
     )
     for dep in cond.dependences:
-        out.append(f"    near-dependence (index {fixed(dep.index, 1)}): {', '.join(dep.columns)}")
+        columns = ", ".join(term_label(c) for c in dep.columns)
+        out.append(f"    near-dependence (index {fixed(dep.index, 1)}): {columns}")
     return out
 
 

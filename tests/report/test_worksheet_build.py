@@ -25,6 +25,7 @@ from appraise.engine.sales import Exclusion
 from appraise.report.cautions import FULL_CAUTIONS, SHORT_CAUTION
 from appraise.report.content import Facts, Notice, Paragraph, SignatureBlock
 from appraise.report.html import render_html
+from appraise.report.labels import term_label
 from appraise.report.numbers import money
 from appraise.report.settings import ReportSettings
 from appraise.report.worksheet import build_worksheet
@@ -151,7 +152,8 @@ def test_model_section_shows_expansion_and_reference(csv_path):
     feats = {r[0]: r for r in ws.table("features").rows}
     expr, kind, columns, ref = feats["onehot(region, ref='Other')"]
     assert kind == "onehot" and ref == "Other"
-    assert columns == ", ".join(fit.design.groups[1].columns)
+    assert columns == ", ".join(term_label(c) for c in fit.design.groups[1].columns)
+    assert columns == "region: Colonial"  # the level without the print-out brackets
     assert ws.table("derived").rows == (("unused", "bdrms + 1"),)
     assert "HC1" in ws.table("coefficients").note
     # No effective date in the model: the worksheet says it used the date prepared.
