@@ -477,12 +477,18 @@ class ModelEditor(QWidget):
     def _show_levels(self, fit) -> None:
         """Sales per level beside the terms; a thin level in the warning colour."""
         lines = level_lines(fit) if fit is not None else []
+        from appraise.engine.suggest.guards import protected_columns  # added by hand: warn
+
+        warned = protected_columns(fit.design.inputs, fit.frame) if fit is not None else ()
         self.levels_label.setText(
             "<br>".join(
-                f"<span style='color:{ERROR_COLOUR}'>{_escape(x.text)}</span>"
-                if x.thin
-                else _escape(x.text)
-                for x in lines
+                [f"<span style='color:{ERROR_COLOUR}'>{_escape(w)}</span>" for w in warned]
+                + [
+                    f"<span style='color:{ERROR_COLOUR}'>{_escape(x.text)}</span>"
+                    if x.thin
+                    else _escape(x.text)
+                    for x in lines
+                ]
             )
         )
 

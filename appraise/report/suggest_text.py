@@ -5,7 +5,7 @@ what the guards refused; and the proposed model file with one comment per featur
 from __future__ import annotations
 
 from ..engine.modelspec import toml_string
-from ..engine.suggest.guards import FAIR_LENDING, LEAKAGE
+from ..engine.suggest.guards import FAIR_LENDING, LEAKAGE, protected_columns
 from ..engine.suggest.search import LineGain, Move, Suggestion
 from .cautions import FAIR_LENDING_CAUTION, ONE_LINE_CAUTION, SUGGESTION_CAUTION
 from .numbers import fixed, money
@@ -163,3 +163,12 @@ def proposed_model_text(s: Suggestion, source: str = "") -> str:
             line = f"{line}  # {comments[feature]}"
         body.append(line)
     return "\n".join(head + body) + "\n"
+
+
+def protected_model_columns(fit: object) -> tuple[str, ...]:
+    """The fair-lending guard's warning for each column the fitted model reads that the
+    assistant would never propose (a user may add one by hand; the worksheet repeats this)."""
+    design, frame = getattr(fit, "design", None), getattr(fit, "frame", None)
+    if design is None or frame is None:
+        return ()
+    return tuple(f"{w}. {FAIR_LENDING_CAUTION}" for w in protected_columns(design.inputs, frame))

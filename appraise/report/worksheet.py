@@ -30,6 +30,7 @@ from .effects import coefficient_effects
 from .labels import field_label, term_label
 from .numbers import MISSING, fixed, money, number, plain, pvalue
 from .settings import ReportSettings
+from .suggest_text import protected_model_columns
 
 COV_TYPE_TEXT: Mapping[str, str] = {
     "classical": "classical (assumes the same error variance for every sale)",
@@ -473,7 +474,8 @@ def _f(x: Any) -> float | None:
 
 def _warnings(fit: Any, valuation: Any) -> list[str]:
     seen: dict[str, None] = {}
-    for w in (*tuple(fit.warnings or ()), *tuple(valuation.warnings or ())):
+    protected = protected_model_columns(fit)  # a column the fair-lending guard refuses
+    for w in (*protected, *tuple(fit.warnings or ()), *tuple(valuation.warnings or ())):
         text = str(getattr(w, "message", w))
         seen.setdefault(text, None)
     return list(seen)

@@ -394,3 +394,32 @@ def test_ranked_single_changes_are_sorted_and_scored(sample_sales):
     assert gains == sorted(gains, reverse=True)
     assert {m.change for m in moves} == {"add", "drop", "swap"}
     assert all(np.isfinite(m.se) and m.se > 0 for m in moves)
+
+
+def test_worksheet_repeats_the_warning_for_a_hand_added_protected_column(hprice1_planted):
+    from appraise.engine.valuation import value_subject
+    from appraise.report.html import render_html
+    from appraise.report.worksheet import build_worksheet
+
+    fit = fit_model(sales_from_frame(hprice1_planted), _spec(["sqrft", "tract_minority_share"]))
+    valuation = value_subject(fit, fit.frame.iloc[[0]].reset_index(drop=True))
+    html = render_html(build_worksheet(fit, valuation))
+    assert "tract_minority_share" in html
+    assert "fair-lending guard would not propose" in html
+    assert "fair-housing" in html
+    plain = fit_model(sales_from_frame(hprice1_planted), _spec(["sqrft"]))
+    valuation = value_subject(plain, plain.frame.iloc[[0]].reset_index(drop=True))
+    assert "fair-lending guard" not in render_html(build_worksheet(plain, valuation))
+
+
+def test_thin_category_levels_are_pooled_in_the_candidate(hprice1_planted):
+    df = hprice1_planted[["price", "sqrft", "lotsize"]].copy()
+    rng = np.random.default_rng(8)
+    df["style"] = rng.choice(["ranch", "cape", "split"], len(df))
+    df.loc[:2, "style"] = ["rare_a", "rare_b", "rare_c"]
+    fit = fit_model(sales_from_frame(df), _spec(["sqrft"]))
+    pool = propose(fit, screen_columns(fit.frame, "price"))
+    style = next(f for f in pool.forms if f.key == "style")
+    assert style.feature == "onehot(style, min_count=5)" and "3 level(s)" in style.why
+    problem = build_problem(fit)
+    assert any(t.feature.startswith("onehot(style") for t in problem.forms)
