@@ -134,6 +134,30 @@ class FitResult:
         assert self.structure is not None
         return self.structure.dense_design()
 
+    def design_column(self, name: str) -> np.ndarray:
+        """One column of the design of the sales used, without building the whole design."""
+        j = self.names.index(name)
+        a = self.structure
+        if a is None:
+            return self.X[:, j]
+        hit = np.flatnonzero(a.z_pos == j)
+        if hit.size:
+            return a.Z[:, int(hit[0])]
+        col = int(np.flatnonzero(a.d_pos == j)[0])
+        return (a.col_of_level[a.codes] == col).astype(float)
+
+    def design_row(self, pos: int) -> np.ndarray:
+        """The design row (p,) of the sale at position ``pos``, without the whole design."""
+        a = self.structure
+        if a is None:
+            return self.X[pos]
+        out = np.zeros(self.p)
+        out[a.z_pos] = a.Z[pos]
+        col = a.col_of_level[a.codes[pos]]
+        if col >= 0:
+            out[a.d_pos[col]] = 1.0
+        return out
+
     @property
     def path_text(self) -> str:
         """One line saying how the model was fitted."""

@@ -192,7 +192,7 @@ def predict(
         fitted[ok] = Xo @ fit.params
         var_mean[ok] = np.einsum("ij,jk,ik->i", Xo, fit.cov_params, Xo)
         lev[ok] = np.einsum("ij,jk,ik->i", Xo, fit.xtx_inv, Xo)
-    _classical_for_lone_levels(fit, X, ok, var_mean, lev)
+    _classical_for_lone_levels(fit, X, ok, var_mean, lev, built.codes)
     err_var, spread_problems = error_variance(fit, frame, ok, fitted)
     for pos, reason, column in spread_problems:
         if ok[pos]:
@@ -215,7 +215,7 @@ def predict(
     )
 
 
-def _classical_for_lone_levels(fit, X, ok, var_mean, lev) -> None:
+def _classical_for_lone_levels(fit, X, ok, var_mean, lev, codes=None) -> None:
     """A robust (HC) covariance gives a direction fixed by a single sale zero variance
     (that sale's residual is 0), so a row in a level held by one sale would get an
     interval of no width for the mean. For such rows the classical variance
@@ -223,12 +223,18 @@ def _classical_for_lone_levels(fit, X, ok, var_mean, lev) -> None:
     if fit.cov_type == "classical" or not ok.any():
         return
     names = list(fit.design.names)
-    if X.shape[1] != len(names):
-        return  # structured fit: the absorbed term is not among the columns of X
+    structure = getattr(fit, "structure", None)
+    touched = np.zeros(len(ok), dtype=bool)
+    if structure is not None:  # X holds the numeric block; the absorbed term comes as codes
+        names = [names[j] for j in structure.z_pos]
+        lone_level = structure.counts == 1
+        lone_level[structure.reference] = False
+        if codes is not None and lone_level.any():
+            c = np.asarray(codes)
+            touched |= ok & (c >= 0) & lone_level[np.maximum(c, 0)]
     lone = [names.index(c.column) for c in fit.levels if c.count == 1 and c.column in names]
-    if not lone:
-        return
-    touched = ok & (np.abs(np.nan_to_num(X[:, lone])) > 0).any(axis=1)
+    if lone:
+        touched |= ok & (np.abs(np.nan_to_num(X[:, lone])) > 0).any(axis=1)
     var_mean[touched] = fit.sigma**2 * lev[touched]
 
 

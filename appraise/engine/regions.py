@@ -936,7 +936,7 @@ def area_prices(
             continue
         X2 = np.asarray(built.matrix, dtype=float)
         g = (X2[0] - X2[1]) / (2 * step)
-        x = fit.X[pos]
+        x = fit.design_row(pos)
         slope = float(g @ b)
         if fit.response == "log":
             price = float(np.exp(x @ b) * fit.smearing)

@@ -229,7 +229,7 @@ class _Reader:
             powers[int(m.group(2) or 1)] = c
         if column != powers.get(1):
             return Effect(column, f"with {base} (curvature)", None, "")
-        x = float(np.median(self.fit.X[:, self.names.index(column)]))
+        x = float(np.median(self.fit.design_column(column)))
         slope = sum(k * self.coef.get(c, 0.0) * x ** (k - 1) for k, c in powers.items())
         s = self.step(base)
         value, text = self.change(slope * s.size)

@@ -277,6 +277,14 @@ def test_a_level_held_by_one_sale(hp2):
     assert np.isnan(fit.terms[lone].se)
     assert_allclose(fit.leverage()[10], 1.0, rtol=1e-12)
     assert fit.levels == dense.levels
+    # Under a robust covariance a row in the one-sale level takes the classical variance
+    # of its mean on both paths.
+    hc1 = HP2 + 'cov_type = "HC1"\n'
+    rows = d.iloc[[10, 11]].reset_index(drop=True)
+    a = _fit(d, hc1, path="structured").predict(rows)
+    b = _fit(d, hc1, path="dense").predict(rows)
+    assert_allclose(a.se_mean, b.se_mean, rtol=RTOL)
+    assert_allclose(a.se_mean[0], fit.sigma * np.sqrt(a.leverage[0]), rtol=RTOL)
     with pytest.raises(FitError, match="leverage 1"):
         _fit(d, HP2 + 'cov_type = "HC3"\n', path="structured")
 
@@ -306,3 +314,14 @@ def test_the_whole_design_is_built_only_within_a_limit(hp2):
     with pytest.raises(FitError, match="GiB"):
         fit.structure.dense_design(limit_bytes=8.0 * fit.n * fit.p - 1)
     assert fit.structure.dense_design(limit_bytes=8.0 * fit.n * fit.p).shape == (506, 50)
+
+
+def test_design_rows_and_columns_without_the_whole_design(hp2):
+    fit = _fit(hp2, HP2, path="structured")
+    X = _hp2_design(hp2)
+    for name in ("Intercept", "tract[t00]", "tract[t44]", "rooms ** 2"):
+        j = fit.names.index(name)
+        assert_allclose(fit.design_column(name), X[:, j], rtol=0, atol=0)
+    for pos in (0, int(np.flatnonzero(hp2["tract"] == "t07")[0]), 505):
+        assert_allclose(fit.design_row(pos), X[pos], rtol=0, atol=0)
+    assert "X" not in fit.__dict__  # none of it built the dense design
