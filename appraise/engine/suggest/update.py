@@ -5,11 +5,12 @@ every training fold would cost ``folds x candidates`` least-squares fits per ste
 each training fold is decomposed once and a candidate block ``Z`` (one or more design
 columns) is scored by a block update of that decomposition.
 
-For one training fold with rows ``t`` and held-out rows ``h``: the current design's
-training rows are factorised by a thin SVD, :math:`X_t = U_r S_r V_r'` (rank r), giving
-the orthonormal basis :math:`T = X V_r S_r^{-1}` (on the training rows ``T_t = U_r``; on
-the held-out rows ``T_h`` carries the prediction), the training residual ``r_t`` and the
-held-out residual ``e_h`` of the current model. Adding ``Z`` (partitioned regression):
+For one training fold with rows ``t`` and held-out rows ``h``: the cross-product of the
+current design's training rows is decomposed, :math:`X_t'X_t = V \\Lambda V'` (rank r, from
+the full cross-product minus the held-out rows'), giving the basis
+:math:`T = X V_r \\Lambda_r^{-1/2}` (orthonormal on the training rows, the ``U_r`` of the
+thin SVD of :math:`X_t`; on the held-out rows ``T_h`` carries the prediction), the training
+residual ``r_t`` and the held-out residual ``e_h`` of the current model. Adding ``Z`` (partitioned regression):
 
 .. math::
 
@@ -31,8 +32,9 @@ adding Z gives :math:`r^{new} = r - \\tilde Z \\gamma` and
 
 Columns are standardised (centred when the design has an intercept, scaled to unit
 spread) before any of this: the model's span, and so every prediction, is unchanged,
-and the decompositions stay well conditioned. Dropping a block is scored by
-decomposing the smaller design again (a handful per step, against hundreds of adds).
+and the decompositions stay well conditioned. Dropping a block J is scored from
+:math:`C = (X_t'X_t)^{-1}` and the coefficients (:meth:`CVState.score_drop`); replacing
+one block by another as drop-then-add in closed form (:meth:`CVState.score_swaps`).
 Agreement with a refit of every fold by statsmodels is a test (1e-10 relative).
 """
 
