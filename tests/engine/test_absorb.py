@@ -325,3 +325,12 @@ def test_design_rows_and_columns_without_the_whole_design(hp2):
     for pos in (0, int(np.flatnonzero(hp2["tract"] == "t07")[0]), 505):
         assert_allclose(fit.design_row(pos), X[pos], rtol=0, atol=0)
     assert "X" not in fit.__dict__  # none of it built the dense design
+
+
+def test_the_model_checks_read_a_structured_fit_as_a_dense_one(hp2):
+    from appraise.engine.diagnostics import diagnose
+
+    a = diagnose(_fit(hp2, HP2, path="structured")).influence
+    b = diagnose(_fit(hp2, HP2, path="dense")).influence
+    for name in ("leverage", "student_external", "cooks_distance", "loo_error", "loo_sigma"):
+        assert_allclose(getattr(a, name), getattr(b, name), rtol=RTOL, atol=1e-12, err_msg=name)
