@@ -2,7 +2,7 @@
 and the whole search with progress and cancel.
 
 Everything is computed off the UI thread by a :class:`~appraise.gui.workers.Task` on the
-global pool; the dialog only shows what comes back. A change is applied by handing the
+dialog's own pool; the dialog only shows what comes back. A change is applied by handing the
 changed model to :meth:`Session.set_model`, the path every model edit takes, so the
 window's Undo takes it back like any other edit. After each new fit the ranking is
 measured again.
@@ -102,6 +102,10 @@ class SuggestDialog(QDialog):
         self._session = session
         self._generation = 0
         self._tasks: list[Task] = []
+        # the dialog's own pool, made before the signals: when the dialog goes, the pool is
+        # taken down first and waits for a running job, whose reports still have a receiver
+        self._pool = QThreadPool(self)
+        self._pool.setMaxThreadCount(2)
         self._signals = TaskSignals(self)
         self._signals.finished.connect(self._finished)
         self._signals.failed.connect(self._failed)
@@ -194,7 +198,7 @@ class SuggestDialog(QDialog):
         self._generation += 1
         task = Task(self._generation, job, self._signals)
         self._tasks = [t for t in self._tasks if t.generation >= self._generation - 1] + [task]
-        QThreadPool.globalInstance().start(task)
+        self._pool.start(task)
         return self._generation
 
     def measure(self) -> None:
@@ -333,3 +337,8 @@ class SuggestDialog(QDialog):
     def done(self, code: int) -> None:  # closing stops a running search
         self._stop.set()
         super().done(code)
+
+    def wait(self, timeout_ms: int = 10_000) -> bool:
+        """Stop a running search and wait for the dialog's jobs to end."""
+        self._stop.set()
+        return self._pool.waitForDone(timeout_ms)

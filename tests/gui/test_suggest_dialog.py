@@ -95,3 +95,21 @@ def test_cancel_stops_the_search_and_changes_nothing(qtbot, window, tmp_path):
     assert dialog.result is None
     assert "cancelled" in dialog.report.toPlainText()
     assert s.spec == before
+
+
+def test_editor_button_and_model_menu_open_the_assistant(qtbot, window, tmp_path):
+    from PySide6.QtWidgets import QPushButton
+
+    _naive_window(qtbot, window, tmp_path)
+    buttons = [b for b in window.model_editor.findChildren(QPushButton) if b.text() == "S&uggest…"]
+    assert len(buttons) == 1
+    menu_actions = [
+        a for m in window.menuBar().actions() for a in m.menu().actions() if m.menu() is not None
+    ]
+    action = next(a for a in menu_actions if a.text() == "&Suggest changes…")
+    action.trigger()
+    dialog = window.model_editor.suggest_dialog
+    assert dialog.isVisible()
+    qtbot.waitUntil(lambda: dialog.ranking is not None, timeout=WAIT_MS)
+    assert dialog.table.rowCount() > 0
+    assert dialog.wait()
