@@ -117,7 +117,7 @@ def main() -> None:
     rng = np.random.default_rng(1)
     share = max(1, int(round(args.refit_share * len(adds))))
     picked = [
-        np.hstack([rows.block(by_feature[f]) for f in adds[i].added.split(" and ")])
+        np.hstack([rows.block(by_feature[f]) for f in adds[i].lines])
         for i in rng.choice(len(adds), share, replace=False)
     ]
     state = cv_state(X, problem.y, folds, centre=True)

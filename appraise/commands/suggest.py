@@ -9,7 +9,7 @@ comment per feature line stating its measured gain.
 
 JSON keys (``--json``): ``caution``, ``fair_lending_caution``, ``n``, ``response``,
 ``criterion``, ``folds``, ``seed``, ``max_lines``, ``rule``; ``start`` {``features``,
-``cv_rmse``, ``cv_cod``}; ``steps`` (each ``{step, change, added, dropped, text, why,
+``cv_rmse``, ``cv_cod``}; ``steps`` (each ``{step, change, added, dropped, text, lines_added, why,
 cv_rmse_before, cv_rmse_after, gain_mse, se_mse, gain_rmse, se_rmse}``); ``stopped``;
 ``final`` {``features``, ``cv_rmse``, ``cv_cod``, ``lines`` (each ``{feature, origin,
 drop_cost_mse, drop_se_mse, cv_rmse_without}``), ``derived``}; ``honest`` (null with

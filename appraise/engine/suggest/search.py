@@ -140,6 +140,8 @@ class Move:
     """Design columns added (negative: removed) by the change."""
     key: str | None = None
     """The column (or derived name) the added term encodes, when it has one."""
+    lines: tuple[str, ...] = ()
+    """The feature lines added (two for an interaction that brings its main effect)."""
 
     @property
     def simplifies(self) -> bool:
@@ -171,6 +173,7 @@ class Move:
             "added": self.added,
             "dropped": self.dropped,
             "text": self.text(),
+            "lines_added": list(self.lines),
             "why": self.why,
             "cv_rmse_before": self.rmse_before,
             "cv_rmse_after": self.rmse_after,
@@ -452,17 +455,18 @@ def _moves(
 
     width0 = sum(t.block.shape[1] for t in current)
 
-    def record(kind, added, dropped, why, e, after) -> None:
+    def record(kind, added, dropped, why, e, after, lines=()) -> None:
         if not np.all(np.isfinite(e[ok])):
             return  # a sale lost its held-out residual (leverage 1): not comparable
         d = e[ok] ** 2 - base[ok] ** 2
         mse1 = mse0 + float(np.mean(d))
         se = float(np.std(d, ddof=1) / np.sqrt(n)) if n > 1 else float("inf")
-        last = added.split(" and ")[-1] if added else None
-        key = next((t.key for t in after if t.feature == last), None)
+        lines = tuple(lines) or ((added,) if added else ())
+        key = next((t.key for t in after if lines and t.feature == lines[-1]), None)
         width = sum(t.block.shape[1] for t in after) - width0
         rmse1 = float(np.sqrt(max(mse1, 0.0)))
-        move = Move(kind, added, dropped, why, rmse0, rmse1, -float(np.mean(d)), se, width, key)
+        gain = -float(np.mean(d))
+        move = Move(kind, added, dropped, why, rmse0, rmse1, gain, se, width, key, lines)
         out.append((move, tuple(after)))
 
     room = settings.max_lines - len(current)
@@ -483,7 +487,8 @@ def _moves(
         res = state.score_add([np.hstack([rows.block(t) for t in g]) for g in adds])
         for j, g in enumerate(adds):
             text = " and ".join(t.feature for t in g)
-            record("add", text, None, g[-1].why, res[:, j], [*current, *g])
+            lines = tuple(t.feature for t in g)
+            record("add", text, None, g[-1].why, res[:, j], [*current, *g], lines)
     for i, t in enumerate(current):
         cols = _columns_of(current, i, problem.intercept)
         rest = [*current[:i], *current[i + 1 :]]
@@ -693,7 +698,7 @@ def features_after(features: Sequence[str], move: Move) -> tuple[str, ...]:
     replaced line swapped in place."""
     out = list(features)
     if move.change == "add":
-        return (*out, *move.added.split(" and "))
+        return (*out, *(move.lines or (move.added,)))
     i = out.index(move.dropped)
     if move.change == "drop":
         del out[i]
