@@ -197,8 +197,10 @@ def ratio_figure(
         False,
     )  # fmt: skip
     sp = SalePlot(plot, "ratio")
-    plot.setLabel("bottom", f"Value, ½(LOO value / median ratio + price) ({currency})")
-    plot.setLabel("left", "LOO value / sale price")
+    plot.setLabel(
+        "bottom", f"Value level: mean of the price and the model value ÷ median ratio ({currency})"
+    )
+    plot.setLabel("left", "Model value ÷ sale price (model fitted without the sale)")
     if d is None:
         show_message(plot, "No checks yet.")
         return sp

@@ -141,7 +141,8 @@ def summary_items(d: Diagnostics, currency: str = "$") -> tuple[SummaryItem, ...
             "uneven" if rt.heteroskedastic else "even",
             f"Breusch-Pagan (Koenker), {p_phrase(rt.koenker.p_value)}",
             "outside" if rt.heteroskedastic else "within",
-            "\n".join(rt.suggestions) or "studentized Breusch-Pagan test finds no uneven spread",
+            "\n".join(window_wording(x) for x in rt.suggestions)
+            or "studentized Breusch-Pagan test finds no uneven spread",
         )
     )
     return tuple(items)
@@ -152,7 +153,23 @@ def spread_advice(d: Diagnostics) -> str:
     rt = d.residual_tests
     if not rt.heteroskedastic:
         return ""
-    return "Uneven spread: " + "; ".join(rt.suggestions[1:] or rt.suggestions) + "."
+    tips = rt.suggestions[1:] or rt.suggestions
+    return "Uneven spread: " + "; ".join(window_wording(t) for t in tips) + "."
+
+
+WINDOW_CONTROLS: tuple[tuple[str, str], ...] = (
+    ('cov_type = "HC3" in the model file', "choose HC3 in Standard errors (Model tab)"),
+    ('cov_type = "HC1" in the model file', "choose HC1 in Standard errors (Model tab)"),
+    ('response = "log"', "choose log price in Response (Model tab)"),
+)
+"""Advice written for the model file, and the control in the window that does the same."""
+
+
+def window_wording(text: str) -> str:
+    """Advice that names the window's control rather than a model-file line."""
+    for file_words, window_words in WINDOW_CONTROLS:
+        text = text.replace(file_words, window_words)
+    return text
 
 
 def _pct(x: float) -> str:
@@ -271,7 +288,11 @@ def tests_html(d: Diagnostics, currency: str = "$") -> str:
         "errors; a test without evidence at this alpha is marked as passed.</p>",
     ]  # fmt: skip
     if rt.suggestions:
-        out.append("<ul>" + "".join(f"<li>{escape(s)}</li>" for s in rt.suggestions) + "</ul>")
+        out.append(
+            "<ul>"
+            + "".join(f"<li>{escape(window_wording(s))}</li>" for s in rt.suggestions)
+            + "</ul>"
+        )
     out += [
         "<h3>Accuracy on sales left out of the fit</h3>",
         '<table border="1" cellspacing="0" cellpadding="3">',
@@ -322,6 +343,19 @@ def ratio_note(d: Diagnostics) -> str:
     return text + ". Ranges: IAAO Standard on Ratio Studies (2013), single-family residential."
 
 
+def condition_meaning(exceeds: bool) -> str:
+    """What the condition number means for the value, and what would help."""
+    if not exceeds:
+        return "The features are distinct enough for each effect to be read on its own."
+    return (
+        "Some features nearly repeat one another: their separate effects (and their "
+        "adjustments in a grid) are uncertain and can swing with a few sales, while the "
+        "value of a subject like the sales usually holds; its interval already carries the "
+        "uncertainty. What helps: drop or merge one of the near-duplicate terms named here, "
+        "centre a number before squaring it (age minus a typical age), or add sales."
+    )
+
+
 def condition_text(d: Diagnostics) -> str:
     cond = d.collinearity.condition
     verdict = "above" if cond.exceeds else "below"
@@ -331,6 +365,7 @@ def condition_text(d: Diagnostics) -> str:
     )
     for dep in cond.dependences:
         text += f" Near-dependence (index {dep.index:.1f}): {', '.join(dep.columns)}."
+    text += " " + condition_meaning(cond.exceeds)
     return text + (
         " Variance inflation: the VIF of a one-column term, the generalized VIF of a group "
         "(Fox and Monette 1992); standard-error inflation: how many times wider the term's "

@@ -84,6 +84,9 @@ from .session import Session
 
 REFRESH_DELAY_MS = 0
 SETTINGS_DELAY_MS = 400
+TABLES_MIN_HEIGHT = 300
+"""The tables under the plots keep room for about ten rows of sales."""
+PLOTS_MIN_HEIGHT = 320
 """Edits of folds and seed within this many milliseconds lead to one new check."""
 TILE_WIDTH = 138
 """Width a tile of the strip is given when the strip decides how many fit in a row."""
@@ -303,7 +306,7 @@ class DiagnosticsView(QWidget):
         self.flagged_table.customContextMenuRequested.connect(self._flag_menu)
         self.exclude_button = QPushButton("Exclu&de…")
         self.exclude_button.setToolTip(
-            "Leave the selected sale out of the model, with the flag's reason to edit"
+            "Leave the selected sale out of the model, giving the cause found as the reason"
         )
         self.exclude_button.clicked.connect(self.exclude_current_flag)
         self.copy_line_button = QPushButton("Copy model-f&ile line")
@@ -368,11 +371,19 @@ class DiagnosticsView(QWidget):
         self.tabs.addTab(self.tests_text, "Tests and accuracy")
         self.tabs.addTab(ratio, "Ratio study")
 
+        # a movable split between the plots and the tables; neither may be squeezed shut:
+        # the tables keep room for about ten rows, and on a small screen the tab scrolls
         split = QSplitter(Qt.Orientation.Vertical)
+        split.setObjectName("checksSplit")
         split.addWidget(plots)
         split.addWidget(self.tabs)
+        split.setChildrenCollapsible(False)
+        split.setHandleWidth(7)
         split.setStretchFactor(0, 3)
         split.setStretchFactor(1, 2)
+        plots.setMinimumHeight(PLOTS_MIN_HEIGHT)
+        self.tabs.setMinimumHeight(TABLES_MIN_HEIGHT)
+        self.split = split
         caution = QLabel(ONE_LINE_CAUTION)
         caution.setWordWrap(True)
         caution.setStyleSheet("color: #555555;")
@@ -607,11 +618,13 @@ class DiagnosticsView(QWidget):
 
     # --- actions ---
     def exclude_current_flag(self) -> bool:
-        """Ask why (the flag's reason offered) and exclude the selected flagged sale."""
+        """Ask why and exclude the selected flagged sale. The box starts empty: a flag
+        is a reason to look again, not a reason for removal (the reason must be the cause
+        found, typed or chosen by the user)."""
         flag = self.current_flag()
         if flag is None or self.session.sale_record(flag.row) is None:
             return False
-        return exclude_with_reason(self, self.session, flag.row, flag.reason)
+        return exclude_with_reason(self, self.session, flag.row)
 
     def copy_model_file_line(self) -> str:
         """Put the selected flag's ``[[exclude]]`` block on the clipboard; returns it."""
@@ -634,11 +647,9 @@ class DiagnosticsView(QWidget):
         return text
 
     def open_sale_menu(self, row: int, screen_pos: QPoint) -> None:
-        """Right click on a sale in a plot: exclude it with its flag's reason offered."""
+        """Right click on a sale in a plot: exclude it (asking why, not offering the flag)."""
         self.session.select_sale(row)
-        d = self.diagnostics
-        flag = d.flag_for_row(row) if d is not None else None
-        menu = sale_menu(self, self.session, row, flag.reason if flag is not None else "")
+        menu = sale_menu(self, self.session, row, "")
         menu.exec(screen_pos)
         menu.deleteLater()
 
@@ -649,7 +660,7 @@ class DiagnosticsView(QWidget):
             return
         row = d.flags[index.row()].row
         self.session.select_sale(row)
-        menu = sale_menu(self, self.session, row, d.flags[index.row()].reason)
+        menu = sale_menu(self, self.session, row, "")
         menu.addAction("Copy model-file line", self.copy_model_file_line)
         menu.exec(self.flagged_table.viewport().mapToGlobal(pos))
         menu.deleteLater()

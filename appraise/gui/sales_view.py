@@ -67,6 +67,8 @@ def ask_exclusion_reason(parent: QWidget, label: str, current: str = "") -> str 
     items = list(COMMON_REASONS)
     if current and current not in items:
         items.insert(0, current)
+    if not current:
+        items.insert(0, "")  # nothing chosen for the user: the reason is theirs to give
     text, ok = QInputDialog.getItem(
         parent,
         "Exclude sale",

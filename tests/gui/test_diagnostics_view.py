@@ -156,7 +156,7 @@ def test_ratio_figures_are_the_iaao_formulas_with_their_verdicts(loaded_view):
     assert tiles["ppe10"].value.text() == f"{ppe10:.1f}%"
 
 
-def test_exclude_button_uses_the_flags_reason_and_the_sale_leaves_the_list(qtbot, loaded_view):
+def test_exclude_button_asks_for_the_cause_and_the_sale_leaves_the_list(qtbot, loaded_view):
     s = loaded_view.session
     first = s.diagnostics.flags[0]  # the most influential sale
     n_before = s.fit.n
@@ -164,13 +164,15 @@ def test_exclude_button_uses_the_flags_reason_and_the_sale_leaves_the_list(qtbot
     assert s.selection == first.row  # choosing a flagged row selects the sale
     assert loaded_view.exclude_button.isEnabled()
     seen: list[str] = []
-    _answer_reason(seen)
+    cause = "recording error (price or area checked and wrong)"
+    _answer_reason(seen, cause)
     with qtbot.waitSignal(s.diagnosticsChanged, timeout=WAIT_MS):
         qtbot.mouseClick(loaded_view.exclude_button, Qt.MouseButton.LeftButton)
         # until the refit lands, the excluded sale stays listed, drawn grey
         assert loaded_view.flagged_model.muted == {0}
-    assert seen == [first.reason]  # the dialog offered the flag's ready-made reason
-    assert [(e.row, e.reason) for e in s.user_exclusions] == [(first.row, first.reason)]
+    # a flag is not a reason for removal: the box starts empty, the user gives the cause
+    assert seen == [""]
+    assert [(e.row, e.reason) for e in s.user_exclusions] == [(first.row, cause)]
     qtbot.waitUntil(lambda: loaded_view.diagnostics is s.diagnostics, timeout=WAIT_MS)
     assert s.fit.n == n_before - 1
     assert first.row not in _flagged_rows(loaded_view)
