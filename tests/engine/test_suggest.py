@@ -423,3 +423,9 @@ def test_thin_category_levels_are_pooled_in_the_candidate(hprice1_planted):
     assert style.feature == "onehot(style, min_count=5)" and "3 level(s)" in style.why
     problem = build_problem(fit)
     assert any(t.feature.startswith("onehot(style") for t in problem.forms)
+
+
+def test_a_start_model_reading_a_price_derived_column_is_warned(hprice1_planted):
+    fit = fit_model(sales_from_frame(hprice1_planted), _spec(["sqrft", "price_sqft"]))
+    s = suggest(fit, SearchSettings(honest=False, max_steps=0))
+    assert any("price_sqft" in w and "leakage guard" in w for w in s.warnings)

@@ -47,8 +47,9 @@ from ..diagnostics.crossval import assign_folds
 from ..errors import AppraiseError, FitError
 from ..fitting import FitResult
 from ..modelspec import ModelSpec
+from ..sales import column_kind
 from .candidates import CandidatePool, mentions, propose
-from .guards import Refusal, Screen, protected_columns, screen_columns
+from .guards import LEAKAGE, Refusal, Screen, protected_columns, screen_columns
 from .update import CVState, cv_state, standardise
 
 Progress = Callable[[float, str], None]
@@ -315,6 +316,22 @@ def _term_key(
     return None
 
 
+def leaky_inputs(fit: FitResult, screen: Screen) -> tuple[str, ...]:
+    """Warnings for columns the start model reads that the leakage guard refuses (a date
+    read through the time functions is fine)."""
+    out = []
+    for r in screen.refused:
+        if r.guard != LEAKAGE or r.column not in fit.design.inputs:
+            continue
+        if column_kind(fit.frame[r.column]) == "date":
+            continue
+        out.append(
+            f"the start model reads '{r.column}', which the leakage guard refuses ({r.reason}); "
+            "drop that line: an estimate must not be computed from the price"
+        )
+    return tuple(out)
+
+
 def build_problem(fit: FitResult, screen: Screen | None = None) -> Problem:
     """Screen the columns, propose candidates and build every candidate's columns.
 
@@ -377,7 +394,7 @@ def build_problem(fit: FitResult, screen: Screen | None = None) -> Problem:
             )
         )
     forms = [replace(t, pair=built_as.get(t.pair)) if t.pair else t for t in forms]
-    warnings = protected_columns(fit.design.inputs, frame)
+    warnings = protected_columns(fit.design.inputs, frame) + leaky_inputs(fit, screen)
     keep = np.setdiff1d(np.arange(fit.n), left_out)
     forms = [replace(t, block=t.block[keep]) for t in forms]
     start = [replace(t, block=t.block[keep]) for t in start]
