@@ -24,7 +24,15 @@ from appraise.engine.diagnostics.coverage import OUTSIDE_POINTS, THIN_SEGMENT
 from appraise.engine.spread import SPREAD_METHOD_TEXT
 from appraise.report.diagnostics_section import PRB_CI_LEVEL
 from appraise.report.labels import RATIO_MEASURE_LABELS, term_label, without_source_tags
-from appraise.report.numbers import MISSING, money, number, p_phrase, percent, pvalue
+from appraise.report.numbers import (
+    MISSING,
+    money,
+    number,
+    p_phrase,
+    percent,
+    pvalue,
+    unscientific,
+)
 
 from .diagnostics_plots import FLAG_COLOUR, number_text, positions_by_row
 from .plot_items import OKABE_ITO
@@ -182,7 +190,11 @@ def _pct(x: float) -> str:
 def flagged_cells(d: Diagnostics) -> list[tuple[str, str, str]]:
     """Row, sale id and findings of each flagged sale, most influential first."""
     return [
-        (str(f.row), f.sale_id or "", "; ".join(without_source_tags(x.text) for x in f.findings))
+        (
+            str(f.row),
+            f.sale_id or "",
+            unscientific("; ".join(without_source_tags(x.text) for x in f.findings)),
+        )
         for f in d.flags
     ]
 

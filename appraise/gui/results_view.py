@@ -17,7 +17,7 @@ from PySide6.QtWidgets import (
 from appraise.engine.fitting import COEF_CI_LEVEL, FitResult
 from appraise.report.effects import coefficient_effects
 from appraise.report.labels import term_label
-from appraise.report.numbers import fixed, number, percent, pvalue
+from appraise.report.numbers import fixed, number, percent, pvalue, unscientific
 from appraise.report.text import coefficient_count
 
 from .session import Session
@@ -145,4 +145,4 @@ class ResultsView(QWidget):
                     )
                 items.append(item)
             self.model.appendRow(items)
-        self.warnings.setText("\n".join(f"⚠ {w}" for w in fit.warnings))
+        self.warnings.setText("\n".join(f"⚠ {unscientific(w)}" for w in fit.warnings))

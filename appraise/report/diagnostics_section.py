@@ -22,7 +22,7 @@ from .labels import (
     term_label,
     without_source_tags,
 )
-from .numbers import MISSING, fixed, money, number, p_phrase, percent, plain
+from .numbers import MISSING, fixed, money, number, p_phrase, percent, plain, unscientific
 
 PRB_CI_LEVEL: float = float(inspect.signature(prb).parameters["level"].default)
 """The level the ratio study's PRB interval is computed at (the engine's default)."""
@@ -43,7 +43,7 @@ def diagnostics_blocks(diagnostics: Any, currency: str = "$") -> tuple[Block, ..
 
 def diagnostics_warnings(diagnostics: Any) -> tuple[str, ...]:
     d = diagnostics.to_dict() if hasattr(diagnostics, "to_dict") else dict(diagnostics)
-    return tuple(str(w) for w in d.get("warnings", ()) or ())
+    return tuple(unscientific(str(w)) for w in d.get("warnings", ()) or ())
 
 
 def _flagged(d: Mapping) -> list[Block]:
@@ -53,14 +53,15 @@ def _flagged(d: Mapping) -> list[Block]:
     rows, values = [], []
     for f in flagged:
         texts = "; ".join(
-            without_source_tags(str(x.get("text", ""))) for x in f.get("findings", ()) or ()
+            unscientific(without_source_tags(str(x.get("text", ""))))
+            for x in f.get("findings", ()) or ()
         )
         sid = "" if f.get("sale_id") is None else str(f.get("sale_id"))
         rows.append((plain(f.get("row")), sid, texts))
         values.append((f.get("row"), sid, texts))
     rules = d.get("thresholds") or {}
     note = "; ".join(
-        without_source_tags(str(t.get("rule")))
+        unscientific(without_source_tags(str(t.get("rule"))))
         for t in rules.values()
         if isinstance(t, Mapping) and t.get("rule")
     )

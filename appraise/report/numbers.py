@@ -11,6 +11,7 @@ below 0.0001 as ``< 0.0001``.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable, Iterable
 from decimal import Decimal
 from numbers import Real
@@ -203,3 +204,21 @@ def column_format(values: Iterable[object]) -> Callable[[object], str]:
         return plain(v)
 
     return text
+
+
+_SCIENTIFIC = re.compile(r"(?<![\w.])(-?)(\d+)(?:\.(\d+))?[eE]([+-]\d{2,3})(?!\w)(?!\.\d)")
+"""Python's exponent form as ``format(x, "g")`` writes it (``4e-05``, ``1.2e+04``): the
+exponent always has a sign and two digits, so ids such as ``AV-1e5`` are left alone."""
+
+
+def unscientific(text: str) -> str:
+    """Rewrite any number in scientific notation inside a sentence positionally, with
+    the significant digits it had: ``"Cook's distance 0.0156 > 4e-05"`` ->
+    ``"... > 0.00004"``. For messages built elsewhere (the engine's warnings and
+    findings) before a person reads them."""
+
+    def positional_text(m: re.Match) -> str:
+        digits = len((m.group(2) + (m.group(3) or "")).lstrip("0")) or 1
+        return number(float(m.group(0)), max(digits, 1))
+
+    return _SCIENTIFIC.sub(positional_text, str(text))

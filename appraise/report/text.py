@@ -10,7 +10,7 @@ from ..engine.valuation import Valuation
 from .diagnostics_section import PRB_CI_LEVEL
 from .effects import coefficient_effects
 from .labels import BREUSCH_PAGAN_FORMS, RATIO_MEASURE_LABELS, term_label, without_source_tags
-from .numbers import MISSING, fixed, money, number, p_phrase, percent, pvalue
+from .numbers import MISSING, fixed, money, number, p_phrase, percent, pvalue, unscientific
 
 
 def coefficient_count(fit: FitResult) -> str:
@@ -71,7 +71,7 @@ def format_fit(fit: FitResult) -> str:
             col = f" [{e.column}]" if e.column else ""
             lines.append(f"  row {e.row}{sid}: {e.reason}{col} <{e.source}>")
     for wmsg in fit.warnings:
-        lines.append(f"warning: {wmsg}")
+        lines.append(f"warning: {unscientific(wmsg)}")
     return "\n".join(lines)
 
 
@@ -98,7 +98,7 @@ def format_valuation(v: Valuation, symbol: str = "$") -> str:
     )
     for w in v.warnings:
         if w not in first:
-            lines.append(f"warning: {w}")
+            lines.append(f"warning: {unscientific(w)}")
     return "\n".join(lines)
 
 
@@ -129,7 +129,7 @@ def _flag_lines(d: Diagnostics) -> list[str]:
         return out
     for f in d.flags:
         sid = f" ({f.sale_id})" if f.sale_id else ""
-        out.append(f"  row {f.row}{sid}: " + "; ".join(x.text for x in f.findings))
+        out.append(f"  row {f.row}{sid}: " + unscientific("; ".join(x.text for x in f.findings)))
     out.append("")
     out.append("A flag asks for a second look, not for removal. To leave a sale out once its")
     out.append("cause is known, paste its block into the model file:")
@@ -277,5 +277,5 @@ def format_diagnostics(d: Diagnostics, title: str = "") -> str:
     for section in (_flag_lines, _collinearity_lines, _tests_lines, _accuracy_lines, _ratio_lines):
         lines.extend(section(d))
         lines.append("")
-    lines.extend(f"warning: {w}" for w in d.warnings)
+    lines.extend(f"warning: {unscientific(w)}" for w in d.warnings)
     return "\n".join(lines).rstrip("\n")

@@ -28,7 +28,7 @@ from .content import Facts, Figure, Notice, Paragraph, Section, SignatureBlock, 
 from .diagnostics_section import diagnostics_blocks, diagnostics_warnings
 from .effects import coefficient_effects
 from .labels import field_label, term_label
-from .numbers import MISSING, fixed, money, number, plain, pvalue
+from .numbers import MISSING, fixed, money, number, plain, pvalue, unscientific
 from .settings import ReportSettings
 from .suggest_text import protected_model_columns
 
@@ -476,7 +476,7 @@ def _warnings(fit: Any, valuation: Any) -> list[str]:
     seen: dict[str, None] = {}
     protected = protected_model_columns(fit)  # a column the fair-lending guard refuses
     for w in (*protected, *tuple(fit.warnings or ()), *tuple(valuation.warnings or ())):
-        text = str(getattr(w, "message", w))
+        text = unscientific(str(getattr(w, "message", w)))
         seen.setdefault(text, None)
     return list(seen)
 

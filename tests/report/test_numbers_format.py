@@ -140,3 +140,14 @@ def test_a_column_prints_its_whole_numbers_alike():
     years = column_format([1964.0, 2021.0])
     assert years(1964.0) == "1964"  # a year never gets a separator
     assert column_format(["Old Mill", "Heronmoor"])("Old Mill") == "Old Mill"
+
+
+def test_messages_built_elsewhere_lose_their_scientific_notation():
+    from appraise.report.numbers import unscientific
+
+    # format(4 / 100_000, ".3g") is "4e-05" (Python's format spec): a Cook's limit at n = 100,000
+    assert format(4 / 100_000, ".3g") == "4e-05"
+    assert unscientific("Cook's distance 0.0156 > 4e-05") == "Cook's distance 0.0156 > 0.00004"
+    assert unscientific("VIF 1.2e+04 > 10; 3.5E+06.") == "VIF 12,000 > 10; 3,500,000."
+    assert unscientific("(-1.5e-06)") == "(-0.0000015)"
+    assert unscientific("sale AV-1e5 and hash 3dd249c2e7") == "sale AV-1e5 and hash 3dd249c2e7"
