@@ -210,7 +210,11 @@ def test_a_tampered_workfile_on_the_command_line(workfile, tmp_path, capsys):
 
 def test_a_sale_after_the_effective_date_is_excluded(tmp_path, capsys):
     rows = ["id,price,sale_date,living_area"]
-    rows += [f"t{i},{300_000 + 9_000 * i},2024-0{1 + i % 5}-15,{1_400 + 97 * i}" for i in range(8)]
+    noise = [3, -5, 8, 0, -2, 6, -7, 1]  # thousands: the fit must not be exact
+    rows += [
+        f"t{i},{300_000 + 9_000 * i + 1_000 * noise[i]},2024-0{1 + i % 5}-15,{1_400 + 97 * i}"
+        for i in range(8)
+    ]
     rows.append("late,999000,2024-09-01,1500")
     sales = tmp_path / "s.csv"
     sales.write_text("\n".join(rows) + "\n", encoding="utf-8")
