@@ -13,12 +13,16 @@ For a change from model A to model B the per-sale differences
 :math:`d_i = e_{B,i}^2 - e_{A,i}^2` of squared held-out residuals give the change in
 CV error :math:`\\bar d` and its standard error :math:`s_d / \\sqrt{n}`. Each step:
 
-1. *backward*: the current term whose removal raises the CV error least is dropped
-   when the rise is below one standard error (:math:`\\bar d < 1 \\cdot SE`): a simpler
-   model that is not measurably worse is preferred;
+1. *backward*: the simplifying change (dropping a term, or a form with fewer columns)
+   that raises the CV error least is made when the rise is below one standard error
+   (:math:`\\bar d < 1 \\cdot SE`), against the current model and against the best model
+   met so far; a main effect is never dropped while an interaction of it is in the model:
+   a simpler model that is not measurably worse is preferred;
 2. otherwise *forward*: the best addition, or replacement of a term by another form of
-   the same column, is taken only when it lowers the CV error by more than one
-   standard error (:math:`-\\bar d > 1 \\cdot SE`);
+   the same column, is taken only when it lowers the CV error by more than
+   :math:`\\max(1, \\sqrt{2 \\ln m})` standard errors, m the number of distinct columns
+   tried in the step (:func:`chance_multiple`: about the largest of m chance gains), and of
+   the forms of that column the one with fewest columns within one SE of the best;
 3. otherwise the search stops.
 
 A model already visited is never visited again (no cycles), an addition is refused
@@ -94,6 +98,10 @@ class Term:
     requires: str | None = None
     pair: str | None = None
     """Feature of the required key added with this term when the model lacks that key."""
+    inputs: tuple[str, ...] = ()
+    """The sales' columns the term reads."""
+    interaction: bool = False
+    """A product of two inputs (``a * b``, ``x * onehot(c)``)."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -316,6 +324,20 @@ def _term_key(
     return None
 
 
+def _is_interaction(expression: str, kind: str) -> bool:
+    return kind == "onehot_product" or (kind == "plain" and "*" in expression.replace("**", ""))
+
+
+def _main_effect_of(t: Term, others: Sequence[Term]) -> bool:
+    """``t`` reads only inputs that an interaction among ``others`` multiplies: dropping it
+    would leave the interaction without its main effect."""
+    return (
+        bool(t.inputs)
+        and not t.interaction
+        and any(u.interaction and set(t.inputs) <= set(u.inputs) for u in others)
+    )
+
+
 def leaky_inputs(fit: FitResult, screen: Screen) -> tuple[str, ...]:
     """Warnings for columns the start model reads that the leakage guard refuses (a date
     read through the time functions is fine)."""
@@ -355,6 +377,8 @@ def build_problem(fit: FitResult, screen: Screen | None = None) -> Problem:
                 _term_key(g.expression, g.inputs, g.kind, derived),
                 np.asarray(fit.X[:, cols], dtype=float),
                 onehot=g.kind == "onehot",
+                inputs=tuple(g.inputs),
+                interaction=_is_interaction(g.expression, g.kind),
             )
         )
     skipped: list[tuple[str, str]] = list(pool.skipped)
@@ -391,6 +415,8 @@ def build_problem(fit: FitResult, screen: Screen | None = None) -> Problem:
                 d.groups[0].kind == "onehot",
                 f.requires,
                 f.pair,
+                tuple(d.inputs),
+                _is_interaction(d.groups[0].expression, d.groups[0].kind),
             )
         )
     forms = [replace(t, pair=built_as.get(t.pair)) if t.pair else t for t in forms]
@@ -456,8 +482,8 @@ def _moves(
     rows: _Rows,
     settings: SearchSettings,
     visited: set[frozenset[str]] | None = None,
-) -> list[tuple[Move, tuple[Term, ...]]]:
-    """Every single change of ``current`` scored: (move, model after it)."""
+) -> list[tuple[Move, tuple[Term, ...], np.ndarray]]:
+    """Every single change of ``current`` scored: (move, model after it, held-out residuals)."""
     base = state.heldout
     ok = np.isfinite(base)
     mse0 = float(np.mean(base[ok] ** 2))
@@ -465,7 +491,7 @@ def _moves(
     n = int(ok.sum())
     feats = {t.feature for t in current}
     keys = {t.key for t in current if t.key is not None}
-    out: list[tuple[Move, tuple[Term, ...]]] = []
+    out: list[tuple[Move, tuple[Term, ...], np.ndarray]] = []
 
     def seen(terms: Sequence[Term]) -> bool:
         return visited is not None and frozenset(t.feature for t in terms) in visited
@@ -484,7 +510,7 @@ def _moves(
         rmse1 = float(np.sqrt(max(mse1, 0.0)))
         gain = -float(np.mean(d))
         move = Move(kind, added, dropped, why, rmse0, rmse1, gain, se, width, key, lines)
-        out.append((move, tuple(after)))
+        out.append((move, tuple(after), e))
 
     room = settings.max_lines - len(current)
     by_feature = {f.feature: f for f in problem.forms}
@@ -513,7 +539,7 @@ def _moves(
             t.key is not None
             and any(u.requires == t.key for u in rest)
             and not any(u.key == t.key and not u.extra for u in rest)
-        )
+        ) or _main_effect_of(t, rest)
         if rest and not needed and not seen(rest):
             record("drop", None, t.feature, "", state.score_drop(cols), rest)
         if t.key is None:
@@ -531,13 +557,31 @@ def _moves(
 
 
 def _pick(
-    scored: list[tuple[Move, tuple[Term, ...]]], settings: SearchSettings
+    scored: list[tuple[Move, tuple[Term, ...], np.ndarray]],
+    settings: SearchSettings,
+    best_heldout: np.ndarray | None = None,
 ) -> tuple[Move, tuple[Term, ...]] | None:
-    """The change to make, by the one-standard-error rule (see the module text)."""
+    """The change to make, by the one-standard-error rule (see the module text).
+
+    A simplifying change must also stay within one SE of the best model met so far
+    (``best_heldout``, its held-out residuals), so that small losses cannot pile up.
+    """
     k = settings.se_multiple
-    simpler = [m for m in scored if m[0].simplifies and m[0].gain > -k * m[0].se]
+
+    def near_best(e: np.ndarray) -> bool:
+        if best_heldout is None:
+            return True
+        ok = np.isfinite(best_heldout)
+        d = e[ok] ** 2 - best_heldout[ok] ** 2
+        se = float(np.std(d, ddof=1) / np.sqrt(d.size)) if d.size > 1 else float("inf")
+        return float(np.mean(d)) < k * se
+
+    simpler = [
+        m for m in scored if m[0].simplifies and m[0].gain > -k * m[0].se and near_best(m[2])
+    ]
     if simpler:
-        return max(simpler, key=lambda m: m[0].gain)
+        m = max(simpler, key=lambda m: m[0].gain)
+        return m[0], m[1]
     grow = [m for m in scored if not m[0].simplifies]
     k_up = k * chance_multiple(len({m[0].key or m[0].added for m in grow}))
     ups = [m for m in grow if m[0].gain > k_up * m[0].se]
@@ -549,7 +593,8 @@ def _pick(
         m for m in ups
         if m[0].key == best.key and m[0].gain >= best.gain - k * best.se
     ]  # fmt: skip
-    return min(near, key=lambda m: (m[0].width, -m[0].gain))
+    m = min(near, key=lambda m: (m[0].width, -m[0].gain))
+    return m[0], m[1]
 
 
 def chance_multiple(m: int) -> float:
@@ -578,19 +623,22 @@ def run_path(
     state = cv_state(r.design(current), y, folds, centre=problem.intercept)
     start_state = state
     visited = {frozenset(t.feature for t in current)}
+    best_heldout, best_mse = state.heldout, state.mse
     steps: list[Move] = []
     stopped = "no single change gains more than one standard error"
     lo, hi = span
     for k in range(settings.max_steps):
         if progress is not None:
             progress(lo + (hi - lo) * min(0.95, k / (settings.max_lines + 4)), f"step {k + 1}")
-        best = _pick(_moves(state, current, problem, r, settings, visited), settings)
+        best = _pick(_moves(state, current, problem, r, settings, visited), settings, best_heldout)
         if best is None:
             break
         move, current = best
         visited.add(frozenset(t.feature for t in current))
         steps.append(move)
         state = cv_state(r.design(current), y, folds, centre=problem.intercept)
+        if state.mse < best_mse:
+            best_heldout, best_mse = state.heldout, state.mse
     else:
         stopped = f"the step limit ({settings.max_steps})"
     if len(current) >= settings.max_lines and stopped.startswith("no single"):
@@ -619,7 +667,7 @@ def rank_moves(
         r.design(terms), problem.y, _folds(problem.n, settings), centre=problem.intercept
     )
     scored = _moves(state, terms, problem, r, settings)
-    return tuple(sorted((m for m, _ in scored), key=lambda m: -m.gain))
+    return tuple(sorted((m for m, _, _ in scored), key=lambda m: -m.gain))
 
 
 def _terms_named(problem: Problem, features: Sequence[str]) -> tuple[Term, ...]:
