@@ -133,9 +133,11 @@ class FeaturePicker(QDialog):
         self.table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.table.verticalHeader().hide()
-        self.table.horizontalHeader().setSectionResizeMode(
-            0, QHeaderView.ResizeMode.ResizeToContents
-        )
+        self.table.setWordWrap(False)
+        for col in (0, 1, 2):
+            self.table.horizontalHeader().setSectionResizeMode(
+                col, QHeaderView.ResizeMode.ResizeToContents
+            )
         self.table.horizontalHeader().setStretchLastSection(True)
         self.table.itemActivated.connect(lambda _i: self.insert_current())
         note = QLabel(
@@ -153,7 +155,7 @@ class FeaturePicker(QDialog):
         lay.addWidget(self.table, 1)
         lay.addWidget(note)
         lay.addWidget(buttons)
-        self.resize(620, 460)
+        self.resize(720, 460)
 
     def set_entries(self, entries: list[PickerEntry]) -> None:
         self.entries = list(entries)

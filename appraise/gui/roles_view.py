@@ -193,6 +193,17 @@ class RolesView(QWidget):
         pending = sales is not None and dict(chosen.columns) != dict(sales.roles.columns)
         if pending and not lines:
             lines.append("Changed: Apply to read the file again with these roles.")
+        unsure = [
+            r
+            for r, g in self._guesses.items()
+            if g.confidence != "high" and chosen.column(r) == g.column
+        ]
+        if unsure and not missing and not twice:
+            lines.append(
+                "Guessed from the file: check "
+                + ", ".join(unsure)
+                + " (hover over the mark for why); choose another column and Apply if wrong."
+            )
         self.note.setText(" ".join(lines))
         self._show_confidence()
         self.apply_button.setEnabled(pending and not missing and not twice)

@@ -122,3 +122,17 @@ def test_roles_view_shows_names_to_type_confidence_and_the_files_words(qtbot, wi
     view.suggest()
     assert view.role_map() == window.session.sales.roles  # the guess agrees with the import
     assert "high" in view.confidence["arms_length"].text()
+
+
+def test_the_roles_list_scrolls_instead_of_squeezing(qtbot, window, sample_copy):
+    from PySide6.QtWidgets import QScrollArea
+
+    open_and_wait(qtbot, window, sample_copy, companions=True)
+    window.resize(1000, 560)
+    window.data_tabs.setCurrentWidget(window.roles_view)
+    qtbot.wait(50)
+    area = window.roles_view.findChild(QScrollArea)
+    assert area is not None and area.widget().isAncestorOf(window.roles_view.combos["sale_id"])
+    combo = window.roles_view.combos["price"]
+    assert combo.height() >= combo.sizeHint().height()  # rows keep their height
+    assert area.verticalScrollBar().maximum() > 0  # the rest is a scroll away
