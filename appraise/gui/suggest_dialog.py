@@ -14,6 +14,7 @@ import threading
 from dataclasses import dataclass
 
 from PySide6.QtCore import Qt, QThreadPool
+from PySide6.QtGui import QPalette
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QDialog,
@@ -277,8 +278,12 @@ class SuggestDialog(QDialog):
                 fixed(m.gain_in_se, 1),
                 m.why or ("a simpler model" if m.change == "drop" else ""),
             )
+            faint = not self._measurable(m)
             for j, text in enumerate(cells):
                 item = QTableWidgetItem(text)
+                if faint:  # below the search's threshold: shown, but greyed
+                    item.setForeground(self.palette().color(QPalette.ColorRole.PlaceholderText))
+                    item.setToolTip("Gains less than the search's threshold")
                 if j in (1, 2, 3, 4):
                     item.setTextAlignment(
                         Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
