@@ -16,6 +16,7 @@ from ..engine.exclusions import (
 from ..engine.importing import UNIT_TEXT
 from ..engine.roles import ROLES, save_role_map
 from ..engine.sales import ColumnSummary, SalesTable
+from ..report.numbers import number
 from ..report.tables import write_exclusion_log
 from .common import add_json_argument, add_sales_arguments, load_sales_from_args, print_json
 
@@ -77,7 +78,8 @@ def _cell(v: object, kind: str) -> str:
     if kind == "date":
         return str(v)[:10] if str(v).endswith("00:00:00") else str(v)
     if isinstance(v, float):
-        return f"{v:.6g}" if abs(v) < 1e4 else f"{v:,.0f}"  # years stay 1987, prices 412,500
+        # years stay 1987, prices 412,500, a tiny value 0.00001 (never 1e-05)
+        return number(v, 6).replace(",", "") if abs(v) < 1e4 else f"{v:,.0f}"
     return str(v)
 
 
