@@ -118,6 +118,8 @@ def _tables_of(worksheet: Worksheet, breaks: PageBreaks) -> list[tuple[int, int,
     """For each top-level table Qt builds, in order: (block index, first row, rows)."""
     out = []
     for b, block in enumerate(worksheet.blocks()):
+        if isinstance(block, Facts) and not block.rows:
+            continue  # an empty list: Qt builds no table for it
         if isinstance(block, Table | Facts):
             cuts = sorted(r for r in breaks.rows_of(b) if 0 < r < len(block.rows))
             starts = [0, *cuts]

@@ -69,7 +69,11 @@ def _worksheet() -> Worksheet:
         sections=(
             Section("a", "Long table", (Table("long", "", ("Term", "Text"), long_rows),)),
             Section("b", "Short table", (*filler, Table("short", "Short", ("A", "B"), short))),
-            Section("c", "Facts", (*filler, Facts(tuple((f"label {i}", "v") for i in range(10))))),
+            Section(
+                "c",
+                "Facts",
+                (Facts(()), *filler, Facts(tuple((f"label {i}", "v") for i in range(10)))),
+            ),
         ),
     )
 
