@@ -334,7 +334,10 @@ def _generator():
 
 
 SAMPLE_MODEL = (ROOT / "sample_data" / "ashcombe_model.toml").read_text()
-ROLES = {"region": "region", "latitude": "latitude", "longitude": "longitude"}
+ROLES = {
+    "region": "region", "latitude": "latitude", "longitude": "longitude",
+    "living_area": "living_area",
+}  # fmt: skip
 
 
 def _sample_fit(frame):
@@ -375,16 +378,29 @@ def test_no_distance_term_means_no_location_effect(kielmc):
 
 
 # --- the truth: intervals cover the generator's effects at about the nominal rate -----------
-@pytest.mark.slow  # about 6 s: 40 fits of 600 sales
+def _true_price_per_area(gen, fit, a) -> float:
+    """dP/dA of the generator's true model at the sale ``a`` is evaluated at: the mean price
+    e^(mu + sigma^2/2) times d(log price)/dA = 0.62 / A - 0.000012 dist."""
+    pos = int(np.flatnonzero(fit.rows == int(a.base.split()[1]))[0])
+    sale = fit.frame.iloc[[pos]].reset_index(drop=True)
+    mu = float(np.asarray(gen.true_log_price(sale))[0])
+    dist = gen.distance_km(sale["latitude"].to_numpy(), sale["longitude"].to_numpy(),
+                           gen.CENTRE_LAT, gen.CENTRE_LON)[0]  # fmt: skip
+    area = float(sale["living_area"].iloc[0])
+    return float(np.exp(mu + gen.NOISE_SD**2 / 2) * (0.62 / area - 0.000012 * dist))
+
+
+@pytest.mark.slow  # about 5 to 8 s: 40 fits of 600 sales
 def test_region_intervals_cover_the_true_effects_over_regenerated_towns(generated):
     """40 regenerated towns x 5 effects = 200 intervals at 95%. The binomial SE of the rate
     is about 0.015 (ignoring correlation within a town); accept 0.90 to 0.99, about three
-    SEs either side. Effect-coded intervals (6 per town) against the truth minus its mean."""
+    SEs either side. Effect-coded intervals (6 per town) against the truth minus its mean;
+    the price per unit of living area (6 per town) against the true model's derivative."""
     gen, _ = generated
     truth = {h.name: h.effect for h in gen.NEIGHBOURHOODS}
     mean_truth = np.mean(list(truth.values()))
     rng = np.random.default_rng(20261203)
-    hits = coded_hits = total = 0
+    hits = coded_hits = total = area_hits = area_total = 0
     for _ in range(40):
         fit = _sample_fit(gen.simulate_sales(rng))
         ra = analyse_regions(fit, strata=False, location=False)
@@ -395,7 +411,11 @@ def test_region_intervals_cover_the_true_effects_over_regenerated_towns(generate
                 continue
             total += 1
             hits += e.effect.low <= truth[e.level] <= e.effect.high
-    assert total == 200
+        for a in ra.area_prices:
+            area_hits += a.per_unit.low <= _true_price_per_area(gen, fit, a) <= a.per_unit.high
+            area_total += 1
+    assert total == 200 and area_total == 240
+    assert 0.90 <= area_hits / area_total <= 0.99
     assert 0.90 <= hits / total <= 0.99
     assert 0.90 <= coded_hits / 240 <= 0.99
 
