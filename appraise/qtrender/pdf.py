@@ -133,7 +133,8 @@ def _tables_of(worksheet: Worksheet, breaks: PageBreaks) -> list[tuple[int, int,
 def next_break(doc, worksheet: Worksheet, page_height: float, breaks: PageBreaks):
     """The breaks with one more: the first place (top to bottom) where a table row
     spans two pages, a short table is split, a split table leaves fewer than
-    :data:`KEEP_ROWS` rows on a page, or a heading ends a page; None when there is none.
+    :data:`KEEP_ROWS` rows on a page, a figure is parted from its caption, or a heading
+    ends a page; None when there is none.
     """
     from PySide6.QtGui import QTextTable
 
@@ -178,8 +179,16 @@ def next_break(doc, worksheet: Worksheet, page_height: float, breaks: PageBreaks
                 break
     section, titled = -1, _titled_blocks(worksheet)
     h3 = -1
+    figures = [b for b, x in enumerate(worksheet.blocks()) if isinstance(x, Figure)]
+    figure = -1
     block = doc.begin()
     while block.isValid():
+        if "\ufffc" in block.text() and block.next().isValid():  # an image, then its caption
+            figure += 1
+            top = layout.blockBoundingRect(block).top()
+            caption_bottom = layout.blockBoundingRect(block.next()).bottom()
+            if figure < len(figures) and page(top) != page(caption_bottom - 1):
+                problems.append((top, "figure", (figures[figure], 0)))
         level = block.blockFormat().headingLevel()
         if level in (2, 3):
             if level == 2:

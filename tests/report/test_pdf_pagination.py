@@ -137,3 +137,46 @@ def test_sample_pdf_prints_every_term_whole_on_one_page(sample_pdf):
     for w in words:
         if len(w) > 3 and w.isalpha():
             assert w in text, w  # never broken inside a word
+
+
+def test_a_figure_keeps_its_caption():
+    from worksheet_samples import solid_png
+
+    from appraise.report.content import Figure
+
+    filler = tuple(Paragraph("Filler text to move the figure down. " * 8) for _ in range(6))
+    ws = Worksheet(
+        title="Figures",
+        effective_date="2026-06-30",
+        workfile_id="test",
+        sections=(
+            Section(
+                "f",
+                "Figures",
+                (*filler, Figure(solid_png(800, 500), "The caption of the figure. " * 4)),
+            ),
+        ),
+    )
+
+    def pages_of_figure_and_caption(doc):
+        lay = doc.documentLayout()
+        block = doc.begin()
+        while block.isValid():
+            if "\ufffc" in block.text():  # the image's object character
+                caption = block.next()
+                assert caption.text().startswith("The caption")
+                return (
+                    _page(lay.blockBoundingRect(block).top()),
+                    _page(lay.blockBoundingRect(caption).bottom() - 1),
+                )
+            block = block.next()
+        raise AssertionError("no figure in the document")
+
+    naive = build_document(ws, text_width=WIDTH)
+    naive.setPageSize(QSizeF(WIDTH, HEIGHT))
+    first, second = pages_of_figure_and_caption(naive)
+    assert first != second  # left alone, the caption would open the next page
+    first, second = pages_of_figure_and_caption(
+        build_document(ws, text_width=WIDTH, page_height=HEIGHT)
+    )
+    assert first == second
