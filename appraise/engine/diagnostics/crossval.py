@@ -29,11 +29,19 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 from .decomposition import QRDecomposition, decompose
 from .influence import Influence
 from .plain import plain
+
+
+def _stats():
+    """scipy.stats, imported on first use: it takes about a second to import, and commands
+    that never run the checks (appraise fit, value) should not pay for it."""
+    from scipy import stats
+
+    return stats
+
 
 RANK_TOL = 1e-9
 """Eigenvalue of :math:`Q_{train}'Q_{train}` below which the training folds are taken
@@ -128,7 +136,7 @@ def leave_one_out(
     """
     price = np.asarray(price, dtype=float)
     ok = infl.has_loo
-    t_crit = float(stats.t.ppf(0.5 + level / 2, infl.n - infl.p - 1))
+    t_crit = float(_stats().t.ppf(0.5 + level / 2, infl.n - infl.p - 1))
     if spread is None:
         half = t_crit * infl.loo_sigma / np.sqrt(1.0 - infl.leverage)
     else:

@@ -33,9 +33,17 @@ from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from scipy import stats
 
 from .plain import plain
+
+
+def _stats():
+    """scipy.stats, imported on first use: it takes about a second to import, and commands
+    that never run the checks (appraise fit, value) should not pay for it."""
+    from scipy import stats
+
+    return stats
+
 
 NAN = float("nan")
 
@@ -98,7 +106,7 @@ def prb(pred: np.ndarray, price: np.ndarray, level: float = 0.95) -> MeasureValu
     slope = float(xc @ (z - z.mean())) / sxx
     resid = z - z.mean() - slope * xc
     se = np.sqrt(float(resid @ resid) / (n - 2) / sxx)
-    half = float(stats.t.ppf(0.5 + level / 2, n - 2)) * se
+    half = float(_stats().t.ppf(0.5 + level / 2, n - 2)) * se
     return MeasureValue(slope, slope - half, slope + half)
 
 

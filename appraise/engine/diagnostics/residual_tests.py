@@ -22,11 +22,18 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from scipy import stats
 
 from .collinearity import constant_columns
 from .decomposition import QRDecomposition, decompose
 from .plain import plain
+
+
+def _stats():
+    """scipy.stats, imported on first use: it takes about a second to import, and commands
+    that never run the checks (appraise fit, value) should not pay for it."""
+    from scipy import stats
+
+    return stats
 
 
 @dataclass(frozen=True)
@@ -107,11 +114,11 @@ def breusch_pagan(
     r2 = ess / tss if tss > 0 else 0.0
     lm = n * r2
     f = (r2 / df) / ((1 - r2) / (n - df - 1)) if r2 < 1 else float("inf")
-    f_p = float(stats.f.sf(f, df, n - df - 1))
-    koenker = BreuschPagan("koenker", lm, df, float(stats.chi2.sf(lm, df)), f, f_p)
+    f_p = float(_stats().f.sf(f, df, n - df - 1))
+    koenker = BreuschPagan("koenker", lm, df, float(_stats().chi2.sf(lm, df)), f, f_p)
     sigma2_ml = float(e @ e) / n
     lm_orig = ess / sigma2_ml**2 / 2.0
-    original = BreuschPagan("original", lm_orig, df, float(stats.chi2.sf(lm_orig, df)), f, f_p)
+    original = BreuschPagan("original", lm_orig, df, float(_stats().chi2.sf(lm_orig, df)), f, f_p)
     return koenker, original
 
 
@@ -123,7 +130,7 @@ def jarque_bera(resid: np.ndarray) -> JarqueBera:
     skew = float(np.mean(d**3)) / m2**1.5
     kurt = float(np.mean(d**4)) / m2**2
     jb = e.size / 6.0 * (skew**2 + (kurt - 3.0) ** 2 / 4.0)
-    return JarqueBera(jb, float(stats.chi2.sf(jb, 2)), skew, kurt)
+    return JarqueBera(jb, float(_stats().chi2.sf(jb, 2)), skew, kurt)
 
 
 def residual_tests(
