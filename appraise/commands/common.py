@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from dataclasses import replace
+from pathlib import Path
 
 from ..engine.jsonable import to_jsonable
 from ..engine.modelspec import ModelSpec
@@ -43,6 +45,12 @@ def add_sales_arguments(parser: argparse.ArgumentParser) -> None:
     )
     g.add_argument("--sheet", default="0", help="worksheet name or 0-based index for .xlsx")
     g.add_argument("--roles", metavar="ROLEMAP.json", help="a saved column-role map to use")
+    g.add_argument(
+        "--plausibility",
+        metavar="RULES.toml",
+        help="plausibility rules replacing the defaults (min_price, max_price, earliest_sale, "
+        "reference_date, future_margin_days, max_living_area, max_lot_area, year_built_margin)",
+    )
     g.add_argument(
         "--read-recorded-path",
         action="store_true",
@@ -122,18 +130,31 @@ def rules_from_args(args: argparse.Namespace):
     and ``report`` only dates the sales comparison; it does not remove sales from the fit.)"""
     import datetime as dt
 
-    from ..engine.plausibility import DEFAULT_RULES, PlausibilityRules
+    from ..engine.plausibility import DEFAULT_RULES, rules_from_mapping
 
+    base = DEFAULT_RULES
+    given = getattr(args, "plausibility", None)
+    if given:
+        from ..engine.errors import DataError
+        from ..engine.importing import read_file_bytes
+        from ..engine.limits import decode_utf8, load_toml_text
+
+        data = read_file_bytes(Path(given))
+        text = decode_utf8(data, source=given, error=DataError, what="the rules file")
+        table = load_toml_text(text, source=given, error=DataError, what="the rules file")
+        base = rules_from_mapping(table, source=given)
+        if base.reference_date is not None:
+            return base
     when = None
     if getattr(args, "model", None) and isinstance(args.model, str):
         when = load_model_from_args(args).effective_date
     if not when:
-        return DEFAULT_RULES
+        return base
     try:
         day = dt.date.fromisoformat(str(when)[:10])
     except ValueError:
-        return DEFAULT_RULES  # the command reports a bad date where it reads it
-    return PlausibilityRules(reference_date=day)
+        return base  # the command reports a bad date where it reads it
+    return replace(base, reference_date=day)
 
 
 def add_model_argument(parser: argparse.ArgumentParser, *, multiple: bool = False) -> None:

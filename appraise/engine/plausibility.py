@@ -16,8 +16,10 @@ sale date after reference + margin     today (or the effective       row exclude
 price above ``max_price``              1,000,000,000                 row excluded
 price below ``min_price``              1,000                         row excluded, unless
                                                                      the file's median is
-                                                                     below it too (prices
-                                                                     in thousands): note
+                                                                     below 1,000 too
+                                                                     (``thousands_median``:
+                                                                     prices in thousands):
+                                                                     note
 price below ``min_price_absolute``     0.01                          row excluded, always
 living or lot area not positive        --                            row excluded
 living area above ``max_living_area``  100,000 (file's unit)         row excluded
@@ -73,6 +75,10 @@ class PlausibilityRules:
     year_built_margin:
         Years a building's year built may lie after its sale year (sold before
         completion) before the row is excluded; within the margin a note counts them.
+    thousands_median:
+        A file whose median price is below both this and ``min_price`` is taken to
+        state prices in thousands (or another unit): its low prices are noted, not
+        excluded.
     """
 
     earliest_sale: _dt.date = _dt.date(1900, 1, 1)
@@ -84,6 +90,7 @@ class PlausibilityRules:
     max_living_area: float = 100_000.0
     max_lot_area: float = 1_000_000_000.0
     year_built_margin: int = 1
+    thousands_median: float = 1_000.0
 
     def latest_sale(self, today: _dt.date | None = None) -> _dt.date:
         """The last plausible sale date: reference (or today) plus the margin."""
@@ -146,7 +153,7 @@ class RowChecks:
         ]  # fmt: skip
         kept = open_rows & finite & (price > 0) & ~high & ~tiny
         median = float(np.median(price[kept])) if kept.any() else np.nan
-        if np.isfinite(median) and median < r.min_price:
+        if np.isfinite(median) and median < min(r.min_price, r.thousands_median):
             k = int(np.count_nonzero(low & kept))
             if k:
                 self.notes.append(
@@ -353,3 +360,48 @@ def _reads(text: str, mark: str, currency_symbol: str) -> bool:
     except ValueError:
         return False
     return True
+
+
+# --- reading the rules from a file -----------------------------------------------------------
+def rules_from_mapping(data: Mapping[str, object], *, source: str = "<rules>") -> PlausibilityRules:
+    """Rules from a mapping of field -> value (a TOML table); unknown keys and wrong types
+    are a :class:`~appraise.engine.errors.DataError` naming the key.
+
+    Example (``rules.toml``)::
+
+        min_price = 50_000
+        max_price = 5_000_000
+        earliest_sale = 2015-01-01
+        future_margin_days = 0
+    """
+    import dataclasses
+
+    from .errors import DataError
+
+    fields = {f.name: f for f in dataclasses.fields(PlausibilityRules)}
+    out: dict[str, object] = {}
+    for key, value in data.items():
+        if key not in fields:
+            raise DataError(
+                f"'{key}' is not a plausibility rule (rules: {', '.join(fields)})", file=source
+            )
+        if key in ("earliest_sale", "reference_date"):
+            if isinstance(value, str):
+                try:
+                    value = _dt.date.fromisoformat(value)
+                except ValueError:
+                    value = None
+            if not isinstance(value, _dt.date) or isinstance(value, _dt.datetime):
+                raise DataError(f"'{key}' must be a date written YYYY-MM-DD", file=source)
+        elif key in ("future_margin_days", "year_built_margin"):
+            if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value <= 36_500:
+                raise DataError(f"'{key}' must be a whole number from 0 to 36,500", file=source)
+        else:
+            if isinstance(value, bool) or not isinstance(value, int | float) or not value >= 0:
+                raise DataError(f"'{key}' must be a number, 0 or more", file=source)
+            value = float(value)
+        out[key] = value
+    rules = dataclasses.replace(DEFAULT_RULES, **out)  # type: ignore[arg-type]
+    if rules.min_price > rules.max_price:
+        raise DataError("'min_price' is above 'max_price'", file=source)
+    return rules
