@@ -334,3 +334,17 @@ def test_the_model_checks_read_a_structured_fit_as_a_dense_one(hp2):
     b = diagnose(_fit(hp2, HP2, path="dense")).influence
     for name in ("leverage", "student_external", "cooks_distance", "loo_error", "loo_sigma"):
         assert_allclose(getattr(a, name), getattr(b, name), rtol=RTOL, atol=1e-12, err_msg=name)
+
+
+def test_an_ill_conditioned_block_is_solved_by_qr_by_itself(hp2):
+    # A near copy of rooms (noise of 0.002 rooms): the scaled Gram matrix's condition number
+    # passes the Cholesky limit, so the pivoted QR solves it; still statsmodels to 1e-8.
+    rng = np.random.default_rng(5)
+    d = hp2.assign(rooms_b=hp2["rooms"] + rng.normal(0, 0.002, len(hp2)))
+    fit = _fit(d, HP2.replace('"stratio"]', '"stratio", "rooms_b"]'), path="structured")
+    assert fit.structure.method == "qr"
+    X = np.column_stack([_hp2_design(d), d["rooms_b"]])
+    ref = sm.OLS(np.log(d["price"].to_numpy(float)), X).fit()
+    assert_allclose(_col(fit, "coef"), ref.params, rtol=RTOL)
+    assert_allclose(_col(fit, "se"), ref.bse, rtol=RTOL)
+    assert_allclose(fit.leverage(), OLSInfluence(ref).hat_matrix_diag, rtol=RTOL)
