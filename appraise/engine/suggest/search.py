@@ -625,7 +625,10 @@ def run_path(
     visited = {frozenset(t.feature for t in current)}
     best_heldout, best_mse = state.heldout, state.mse
     steps: list[Move] = []
-    stopped = "no single change gains more than one standard error"
+    stopped = (
+        "no addition or replacement gains more than the threshold, and no simplification "
+        "costs less than one standard error"
+    )
     lo, hi = span
     for k in range(settings.max_steps):
         if progress is not None:
@@ -641,7 +644,7 @@ def run_path(
             best_heldout, best_mse = state.heldout, state.mse
     else:
         stopped = f"the step limit ({settings.max_steps})"
-    if len(current) >= settings.max_lines and stopped.startswith("no single"):
+    if len(current) >= settings.max_lines and stopped.startswith("no addition"):
         stopped += f" (additions stopped at the {settings.max_lines}-line cap)"
     return Path(
         start=tuple(t.feature for t in problem.start),
