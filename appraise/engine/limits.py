@@ -78,15 +78,23 @@ def nesting_depth(text: str, *, toml: bool = False) -> int:
 
     Counted without parsing: strings (and TOML comments) are cut out, then the running
     sum of ``[``/``{`` (+1) and ``]``/``}`` (-1) is taken with numpy, so a 50 MB text is
-    measured in a fraction of a second. A malformed text may be measured roughly; the
-    parser then refuses it.
+    measured in a fraction of a second. In TOML a dotted key (``a.b.c = 1``, ``[a.b.c]``)
+    nests a table per dot, so the dots of one line outside strings and numbers count too.
+    A malformed text may be measured roughly; the parser then refuses it.
     """
     bare = (_TOML_SKIP if toml else _JSON_STRING).sub("", text)
     codes = np.frombuffer(bare.encode("utf-8", "replace"), dtype=np.uint8)
     if codes.size == 0:
         return 0
     step = np.isin(codes, (0x5B, 0x7B)).astype(np.int64) - np.isin(codes, (0x5D, 0x7D))
-    return int(max(0, np.cumsum(step).max()))
+    depth = int(max(0, np.cumsum(step).max()))
+    if toml:  # a dotted key a.b.c nests one table per dot (and costs tomllib n**2 for n dots)
+        dots = max((len(_KEY_DOT.findall(line)) for line in bare.splitlines()), default=0)
+        depth = max(depth, dots + 1 if dots else 0)
+    return depth
+
+
+_KEY_DOT = re.compile(r"(?<!\d)\.|\.(?!\d)")  # a dot that is not inside a number
 
 
 def limited_int(text: str) -> int:

@@ -491,3 +491,15 @@ def test_random_role_maps_load_or_fail_clearly(doc):
 def test_the_audit_watcher_sees_code_run_from_text_and_files_opened(act):
     with pytest.raises(AssertionError):
         _watched(lambda _text: act(), "probe")
+
+
+def test_dotted_keys_100000_deep_are_refused_before_parsing():
+    # tomllib spends time and memory quadratic in the dots of one key: 100,000 would exhaust
+    # memory; the pre-parse count refuses it at once
+    with pytest.raises(ModelFileError, match="nested 100,001 levels deep; the limit is 64"):
+        parse_model("a" + ".a" * 100_000 + ' = 1\ntarget = "p"\nfeatures = ["x"]\n')
+    with pytest.raises(ModelFileError, match="nested 50,001 levels deep"):
+        parse_model("[" + "a." * 50_000 + "a]\nx = 1\n")
+    # dots inside numbers are not nesting
+    with pytest.raises(ModelFileError, match="unknown setting"):
+        parse_model('target = "p"\nfeatures = ["x"]\ny = [' + ", ".join(["1.5"] * 500) + "]\n")
