@@ -58,6 +58,7 @@ from .expressions import (
     to_text,
 )
 from .functions import DATE, DATE_OR_ISO, FUNCTIONS
+from .limits import design_size_problem
 from .roles import RoleMap
 from .sales import ROW_COLUMN
 
@@ -314,6 +315,9 @@ def learn_design(
         else t
         for t, v in zip(terms, ev.values, strict=True)
     ]
+    size = design_size_problem({t.feature: len(t.columns) for t in terms}, len(frame))
+    if size is not None:
+        raise DesignError(size)
     names = [INTERCEPT] if intercept else []
     origin: dict[str, str] = {INTERCEPT: "the intercept"} if intercept else {}
     for t in terms:

@@ -316,3 +316,30 @@ def unusable_summary(problems: tuple[tuple[int, str, str | None], ...]) -> str:
     top = sorted(counts.items(), key=lambda kv: -kv[1])[:2]
     listed = "; ".join(f"{r} ({k:,})" for r, k in top)
     return f"; {len(problems):,} sales left out by the model: {listed}"
+
+
+MAX_DESIGN_COLUMNS = 2_000
+"""Most design columns one model may expand to (``onehot`` levels and ``poly`` terms included)."""
+
+MAX_DESIGN_CELLS = 40_000_000
+"""Most cells (sales x design columns) of the design matrix: 320 MB of float64, which the
+least-squares fit needs a few times over; beyond it a model would exhaust memory."""
+
+
+def design_size_problem(columns: dict[str, int], rows: int) -> str | None:
+    """A message when a design would be too large; ``columns`` maps each feature to the
+    number of design columns it expands to."""
+    total = sum(columns.values()) + 1
+    widest = max(columns, key=columns.get) if columns else ""
+    if total > MAX_DESIGN_COLUMNS:
+        return (
+            f"the model expands to {total:,} design columns ('{widest}' alone gives "
+            f"{columns[widest]:,}); the limit is {MAX_DESIGN_COLUMNS:,} "
+            "(a onehot of a column with a value per sale, such as an id?)"
+        )
+    if total * rows > MAX_DESIGN_CELLS:
+        return (
+            f"{rows:,} sales x {total:,} design columns = {total * rows:,} cells; the limit is "
+            f"{MAX_DESIGN_CELLS:,} ('{widest}' gives {columns[widest]:,} columns)"
+        )
+    return None

@@ -503,3 +503,14 @@ def test_dotted_keys_100000_deep_are_refused_before_parsing():
     # dots inside numbers are not nesting
     with pytest.raises(ModelFileError, match="unknown setting"):
         parse_model('target = "p"\nfeatures = ["x"]\ny = [' + ", ".join(["1.5"] * 500) + "]\n")
+
+
+def test_a_design_too_wide_or_too_large_is_refused_before_it_is_built(monkeypatch):
+    from appraise.engine.errors import DesignError
+
+    frame = pd.DataFrame({"id": [f"s{i}" for i in range(3000)], "x": np.arange(3000.0)})
+    with pytest.raises(DesignError, match="3,001 design columns .* the limit is 2,000"):
+        learn_design(["x", "onehot(id)"], frame)  # a level per sale: 2,999 columns
+    monkeypatch.setattr(limits, "MAX_DESIGN_CELLS", 5_000)  # 3,000 sales x 2 columns
+    with pytest.raises(DesignError, match="3,000 sales x 2 design columns = 6,000 cells"):
+        learn_design(["x"], frame)
