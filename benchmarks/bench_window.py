@@ -1,0 +1,188 @@
+"""The desktop window with a county-size sales file: does the UI thread keep turning?
+
+    python benchmarks/bench_window.py [--rows 1000000]
+
+A sales file of ``--rows`` invented sales (the sample's columns: price, date, areas,
+year built, baths, position, neighbourhood, condition) is written to Parquet with a
+model file like the sample's. The window (offscreen Qt) opens it, fits, values and
+checks; then the first keystrokes go into the sales filter; then the model is edited
+(one feature dropped) and refitted. A 10 ms timer on the UI thread records the longest
+gap between its ticks in each phase: the longest time the window could not repaint or
+answer a click. This is a script, not a test.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+REGIONS = ("Old Mill", "Heronmoor", "Copper Hill", "Saltmarsh End", "Tanners Row", "Fenwick")
+MODEL = """target = "price"
+response = "log"
+level = 0.90
+effective_date = "2026-06-30"
+features = [
+    "log(living_area)",
+    "dist_km",
+    "living_area * dist_km",
+    "poly(age, degree=2)",
+    "log(lot_area)",
+    "bathrooms",
+    "onehot(condition, ref='average')",
+    "onehot(region, ref='Old Mill')",
+    "months",
+]
+
+[derived]
+dist_km = "distance_km(latitude, longitude, 44.0412, -71.3021)"
+age = "2026 - year_built"
+months = "months_between(sale_date, '2026-06-30')"
+"""
+
+
+def make_sales(path: Path, rows: int, seed: int = 5) -> None:
+    import numpy as np
+    import pandas as pd
+
+    rng = np.random.default_rng(seed)
+    area = rng.uniform(700, 4000, rows).round()
+    region = rng.integers(0, len(REGIONS), rows)
+    cond = rng.choice(["poor", "average", "good"], rows, p=[0.2, 0.5, 0.3])
+    built = rng.integers(1880, 2025, rows)
+    lat = 44.0412 + rng.normal(0, 0.03, rows)
+    lon = -71.3021 + rng.normal(0, 0.04, rows)
+    days = rng.integers(0, 1095, rows)
+    log_price = (
+        11.2
+        + 0.55 * np.log(area)
+        + 0.03 * region
+        - 0.002 * (2026 - built)
+        + 0.0004 * days
+        + rng.normal(0, 0.15, rows)
+    )
+    frame = pd.DataFrame(
+        {
+            "Sale ID": [f"W-{i:07d}" for i in range(rows)],
+            "Sale Price": np.round(np.exp(log_price), -2),
+            "Sale Date": pd.Timestamp("2023-07-01") + pd.to_timedelta(days, unit="D"),
+            "Living Area (sq ft)": area,
+            "Lot Size (sq ft)": rng.uniform(2000, 40000, rows).round(),
+            "Year Built": built,
+            "Baths": rng.integers(2, 9, rows) / 2,
+            "Latitude": lat.round(6),
+            "Longitude": lon.round(6),
+            "Neighbourhood": np.array(REGIONS, dtype=object)[region],
+            "Condition": cond,
+        }
+    )
+    frame.to_parquet(path, index=False)
+
+
+class StallMeter:
+    """The longest gap between ticks of a 10 ms timer on the UI thread, per phase."""
+
+    def __init__(self) -> None:
+        from PySide6.QtCore import QTimer
+
+        self.longest = 0.0
+        self.last = time.perf_counter()
+        self.timer = QTimer()
+        self.timer.setInterval(10)
+        self.timer.timeout.connect(self._tick)
+        self.timer.start()
+
+    def _tick(self) -> None:
+        now = time.perf_counter()
+        self.longest = max(self.longest, now - self.last)
+        self.last = now
+
+    def reset(self) -> None:
+        self.longest, self.last = 0.0, time.perf_counter()
+
+
+def wait_until(app, done, timeout: float) -> float:
+    t0 = time.perf_counter()
+    while not done():
+        app.processEvents()
+        time.sleep(0.002)
+        if time.perf_counter() - t0 > timeout:
+            raise SystemExit("timed out")
+    return time.perf_counter() - t0
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--rows", type=int, default=1_000_000)
+    ap.add_argument("--timeout", type=float, default=900.0)
+    args = ap.parse_args(argv)
+
+    from PySide6.QtCore import QSettings
+
+    from appraise.engine.modelspec import parse_model
+    from appraise.gui.main_window import MainWindow
+    from appraise.gui.preferences import Preferences
+    from appraise.gui.session import Session
+    from appraise.qtrender.qtapp import ensure_app
+
+    app = ensure_app()
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp)
+        sales_path = folder / "county_sales.parquet"
+        make_sales(sales_path, args.rows)
+        model_path = folder / "county_model.toml"
+        model_path.write_text(MODEL, encoding="utf-8")
+        prefs = Preferences(QSettings(str(folder / "prefs.ini"), QSettings.Format.IniFormat))
+        session = Session()
+        window = MainWindow(session, prefs)
+        window.show()
+        meter = StallMeter()
+        app.processEvents()
+        print(f"window with {args.rows:,} sales (offscreen Qt); longest UI-thread gap per phase")
+        print(f"{'phase':<52}{'seconds':>9}{'longest gap ms':>16}")
+
+        def phase(name: str, start, done) -> None:
+            meter.reset()
+            start()
+            took = wait_until(app, done, args.timeout)
+            print(f"{name:<52}{took:>9.1f}{1e3 * meter.longest:>16.0f}")
+
+        phase(
+            "open, read, fit, value, checks",
+            lambda: session.load_sales(sales_path, model_path=model_path),
+            lambda: (
+                session.sales is not None and session.fit is not None and session.pending_tasks == 0
+            ),
+        )
+        view = window.sales_view
+        phase(
+            "first filter keystrokes ('heron') until filtered",
+            lambda: view.filter_edit.setText("heron"),
+            lambda: view.model.rowCount() < args.rows and session.pending_tasks == 0,
+        )
+        phase(
+            "clear the filter",
+            lambda: view.filter_edit.setText(""),
+            lambda: view.model.rowCount() == session.sales.n_used,
+        )
+        spec = parse_model(MODEL.replace('    "bathrooms",\n', ""))
+        fit_before = session.fit
+        phase(
+            "edit the model (drop a feature): refit, value, checks",
+            lambda: (session.set_model(spec), session.refit_now()),
+            lambda: session.fit is not fit_before and session.pending_tasks == 0,
+        )
+        meter.timer.stop()
+        window.close()
+        session.shutdown()
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
