@@ -42,7 +42,7 @@ from .cells import (
     parse_number,
 )
 from .errors import DataError, RoleError
-from .limits import check_xlsx
+from .limits import check_parquet, check_xlsx
 from .plausibility import DEFAULT_RULES, PlausibilityRules, RowChecks, decide_decimal_mark
 from .roles import AREA_ROLES, ROLE_KINDS, RoleMap, guess_roles, list_headers, resolve_roles
 from .sales import ROW_COLUMN, Exclusion, SalesTable, SourceInfo
@@ -313,6 +313,7 @@ def _read_parquet(path: Path) -> RawTable:
     import pyarrow as pa
     import pyarrow.parquet as pq
 
+    check_parquet(path)  # declared rows x columns, from the footer, before decoding
     try:
         table = pq.read_table(path)
     except (pa.ArrowException, OSError) as exc:

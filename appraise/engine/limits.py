@@ -343,3 +343,28 @@ def design_size_problem(columns: dict[str, int], rows: int) -> str | None:
             f"{MAX_DESIGN_CELLS:,} ('{widest}' gives {columns[widest]:,} columns)"
         )
     return None
+
+
+# --- Parquet ---------------------------------------------------------------------------------
+MAX_PARQUET_CELLS = MAX_XLSX_CELLS
+"""Most cells (rows x columns) a Parquet file may declare: run-length encoding lets a file of
+a few kilobytes declare hundreds of millions of rows."""
+
+
+def check_parquet(path: Path) -> None:
+    """Refuse a Parquet file whose declared rows x columns pass :data:`MAX_PARQUET_CELLS`,
+    from its footer alone (nothing is decoded)."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        meta = pq.ParquetFile(path).metadata
+    except (pa.ArrowException, OSError, ValueError) as exc:
+        raise DataError(f"cannot be read as a Parquet file ({exc})", file=str(path)) from None
+    rows, cols = int(meta.num_rows), int(meta.num_columns)
+    if rows * cols > MAX_PARQUET_CELLS:
+        raise DataError(
+            f"the file declares {rows:,} rows x {cols:,} columns = {rows * cols:,} cells; "
+            f"the limit is {MAX_PARQUET_CELLS:,} cells",
+            file=str(path),
+        )

@@ -514,3 +514,17 @@ def test_a_design_too_wide_or_too_large_is_refused_before_it_is_built(monkeypatc
     monkeypatch.setattr(limits, "MAX_DESIGN_CELLS", 5_000)  # 3,000 sales x 2 columns
     with pytest.raises(DesignError, match="3,000 sales x 2 design columns = 6,000 cells"):
         learn_design(["x"], frame)
+
+
+def test_a_parquet_file_declaring_too_many_cells_is_refused_from_its_footer(tmp_path, monkeypatch):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    # 2,000,000 equal prices compress to a few kilobytes; against a 1,000,000-cell limit
+    # (the real one is 30,000,000) the footer alone refuses it
+    p = tmp_path / "bomb.parquet"
+    pq.write_table(pa.table({"price": pa.array(np.full(2_000_000, 300_000.0))}), p)
+    assert p.stat().st_size < 100_000
+    monkeypatch.setattr(limits, "MAX_PARQUET_CELLS", 1_000_000)
+    with pytest.raises(DataError, match="2,000,000 rows x 1 columns .* the limit is 1,000,000"):
+        load_sales(p)
