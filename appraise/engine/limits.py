@@ -11,6 +11,7 @@ The numbers are far above anything a real valuation needs:
 limit                            value        why this size
 ===============================  ===========  =================================================
 JSON / TOML nesting depth        64           a workfile nests 6 deep; a model file 3
+                                              (a TOML dotted key nests once per dot)
 JSON integer digits              100          a sale price has at most 12
 derived variables per model      500          a rich model has 20
 derived-variable chain depth     64           ``a`` uses ``b`` uses ``c`` ... 64 deep
@@ -19,6 +20,10 @@ XLSX uncompressed size           512 MiB      100,000 sales x 30 columns is abou
 XLSX rows of one sheet           1,048,576    the most a spreadsheet program writes
 XLSX columns of one sheet        16,384       the same (column XFD)
 XLSX cells (rows x columns)      30,000,000   what fits in memory as a table of cells
+Parquet declared cells           30,000,000   the same, read from the footer
+design columns                   2,000        a onehot of a sale id would give one per sale
+design cells (sales x columns)   40,000,000   320 MB of float64, needed a few times by OLS
+design value magnitude           1e100        sums of squares overflow near 1e154
 ===============================  ===========  =================================================
 
 Expression text length and nesting live beside the parser
