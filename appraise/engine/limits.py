@@ -13,6 +13,7 @@ limit                            value        why this size
 JSON / TOML nesting depth        64           a workfile nests 6 deep; a model file 3
                                               (a TOML dotted key nests once per dot)
 JSON integer digits              100          a sale price has at most 12
+workfile size                    256 MiB      one embedding 100,000 sales is about 10 MiB
 derived variables per model      500          a rich model has 20
 derived-variable chain depth     64           ``a`` uses ``b`` uses ``c`` ... 64 deep
 nodes of one resolved feature    20,000       derived variables are shared, not copied
@@ -48,6 +49,9 @@ MAX_NESTING = 64
 
 MAX_INT_DIGITS = 100
 """Longest integer literal accepted in a JSON file."""
+
+MAX_WORKFILE_BYTES = 256 * 1024 * 1024
+"""Largest workfile opened (it is read whole; embedded sales are base64 text in it)."""
 
 MAX_DERIVED = 500
 """Most derived variables one model may define."""
@@ -331,9 +335,10 @@ MAX_DESIGN_CELLS = 40_000_000
 least-squares fit needs a few times over; beyond it a model would exhaust memory."""
 
 
-def design_size_problem(columns: dict[str, int], rows: int) -> str | None:
+def design_size_problem(columns: dict[str, int], rows: int, absorbed: int = 0) -> str | None:
     """A message when a design would be too large; ``columns`` maps each feature to the
-    number of design columns it expands to."""
+    number of design columns it expands to; ``absorbed`` columns (a large ``onehot`` the
+    structured fit takes as level codes, :mod:`.absorb`) count as columns but build no cells."""
     total = sum(columns.values()) + 1
     widest = max(columns, key=columns.get) if columns else ""
     if total > MAX_DESIGN_COLUMNS:
@@ -342,7 +347,8 @@ def design_size_problem(columns: dict[str, int], rows: int) -> str | None:
             f"{columns[widest]:,}); the limit is {MAX_DESIGN_COLUMNS:,} "
             "(a onehot of a column with a value per sale, such as an id?)"
         )
-    if total * rows > MAX_DESIGN_CELLS:
+    if (total - absorbed) * rows > MAX_DESIGN_CELLS:
+        total -= absorbed
         return (
             f"{rows:,} sales x {total:,} design columns = {total * rows:,} cells; the limit is "
             f"{MAX_DESIGN_CELLS:,} ('{widest}' gives {columns[widest]:,} columns)"

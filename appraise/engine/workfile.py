@@ -60,7 +60,7 @@ from .. import __version__
 from .errors import AppraiseError, WorkfileError
 from .importing import load_sales
 from .jsonable import to_jsonable
-from .limits import MAX_NESTING, limited_int, nesting_depth
+from .limits import MAX_NESTING, MAX_WORKFILE_BYTES, limited_int, nesting_depth
 from .modelspec import ModelSpec, model_from_dict
 from .roles import RoleMap
 from .sales import ROW_COLUMN, Exclusion, SalesTable
@@ -486,6 +486,13 @@ def load_workfile(path: str | Path) -> WorkfileState:
     p = Path(path).expanduser()
     src = str(p)
     try:
+        size = p.stat().st_size
+        if size > MAX_WORKFILE_BYTES:
+            raise WorkfileError(
+                f"the workfile is {size:,} bytes; the limit is {MAX_WORKFILE_BYTES:,} "
+                "(a workfile with embedded sales is rarely a tenth of that)",
+                file=src,
+            )
         raw = p.read_bytes()
     except FileNotFoundError:
         raise WorkfileError("workfile not found", file=src) from None

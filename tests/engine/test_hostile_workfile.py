@@ -322,3 +322,13 @@ def test_a_workfile_whose_model_doubles_40_times_reopens_and_fits(tmp_path):
     # b40 / 2**40 is living_area exactly (powers of two are exact in binary floating point)
     plain = fit_model(restored.sales, ModelSpec(target="price", features=("living_area",)))
     assert fit.terms[1].coef == pytest.approx(plain.terms[1].coef, rel=1e-12)
+
+
+def test_an_oversized_workfile_is_refused_before_it_is_read(tmp_path, monkeypatch):
+    from appraise.engine import workfile
+
+    path = tmp_path / "w.appraise.json"
+    save_workfile(path, _state())
+    monkeypatch.setattr(workfile, "MAX_WORKFILE_BYTES", 100)  # the real limit is 256 MiB
+    with pytest.raises(WorkfileError, match="bytes; the limit is 100"):
+        load_workfile(path)
