@@ -315,7 +315,14 @@ def learn_design(
         else t
         for t, v in zip(terms, ev.values, strict=True)
     ]
-    size = design_size_problem({t.feature: len(t.columns) for t in terms}, len(frame))
+    from .absorb import ABSORB_MIN_COLUMNS  # here: absorb reads levels, which reads modelspec
+
+    widest = max((len(t.columns) for t in terms if t.kind == "onehot"), default=0)
+    size = design_size_problem(
+        {t.feature: len(t.columns) for t in terms},
+        len(frame),
+        absorbed=widest if widest >= ABSORB_MIN_COLUMNS else 0,
+    )
     if size is not None:
         raise DesignError(size)
     names = [INTERCEPT] if intercept else []

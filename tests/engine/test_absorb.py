@@ -19,7 +19,7 @@ from sales_factory import sales_from_frame
 from statsmodels.stats.outliers_influence import OLSInfluence
 
 from appraise.engine.absorb import COV_TYPES, absorb_fit
-from appraise.engine.errors import CollinearityError, FitError
+from appraise.engine.errors import CollinearityError, DesignError, FitError
 from appraise.engine.fitting import LONE_NOTE, fit_model
 from appraise.engine.modelspec import parse_model
 from appraise.report.text import format_fit
@@ -348,3 +348,15 @@ def test_an_ill_conditioned_block_is_solved_by_qr_by_itself(hp2):
     assert_allclose(_col(fit, "coef"), ref.params, rtol=RTOL)
     assert_allclose(_col(fit, "se"), ref.bse, rtol=RTOL)
     assert_allclose(fit.leverage(), OLSInfluence(ref).hat_matrix_diag, rtol=RTOL)
+
+
+def test_the_design_size_limit_counts_the_cells_the_fit_builds(hp2, monkeypatch):
+    from appraise.engine import limits
+
+    # 506 sales x 50 columns = 25,300 cells dense; absorbed, 506 x 6 = 3,036 are built.
+    monkeypatch.setattr(limits, "MAX_DESIGN_CELLS", 10_000)
+    assert _fit(hp2, HP2).path == "structured"
+    few = hp2.assign(tract=hp2["tract"].str[:2])  # 5 levels: dense, 506 x 10 cells
+    monkeypatch.setattr(limits, "MAX_DESIGN_CELLS", 5_000)
+    with pytest.raises(DesignError, match="limit is 5,000"):
+        _fit(few, HP2.replace("t07", "t0"))
