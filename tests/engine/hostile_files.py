@@ -57,8 +57,7 @@ def many_rows_xlsx(path: Path, rows: int) -> Path:
 
     def pieces() -> Iterator[bytes]:
         yield (
-            _HEAD + b"<sheetData>"
-            b'<row r="1"><c r="A1" t="inlineStr"><is><t>price</t></is></c></row>'
+            _HEAD + b'<sheetData><row r="1"><c r="A1" t="inlineStr"><is><t>price</t></is></c></row>'
         )
         block = b"<row/>" * 100_000
         for _ in range(rows // 100_000):
