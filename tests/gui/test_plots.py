@@ -77,8 +77,12 @@ def _drawn(fig, *, excluded: bool = False) -> dict[int, tuple[float, float]]:
     return out
 
 
-LINEAR = 'target = "price"\nfeatures = ["lotsize", "sqrft", "bdrms"]'
-LOG = 'target = "price"\nresponse = "log"\nfeatures = ["log(lotsize)", "log(sqrft)", "bdrms"]'
+# the even spread: the intervals are then statsmodels' (the reference of these tests)
+LINEAR = 'spread = "constant"\ntarget = "price"\nfeatures = ["lotsize", "sqrft", "bdrms"]'
+LOG = (
+    'spread = "constant"\ntarget = "price"\nresponse = "log"\n'
+    'features = ["log(lotsize)", "log(sqrft)", "bdrms"]'
+)
 
 
 def test_model_value_and_residual_plots_match_statsmodels(qapp, hprice1):

@@ -106,6 +106,11 @@ def test_edit_model_refits_and_matches_statsmodels(qtbot, window, sample_copy):
     assert window.results_view.stats["r2"].text() == f"{ref.rsquared:,.4f}"
     assert window.results_view.model.rowCount() == 3
 
+    # the even-spread interval is the one statsmodels computes: choose it in the editor
+    with qtbot.waitSignal(s.fitFinished, timeout=WAIT_MS):
+        editor.spread.setCurrentIndex(editor.spread.findData("constant"))
+    assert s.spec.spread == "constant"
+
     # value a subject typed into the form
     subj = window.subject_view
     with qtbot.waitSignal(
