@@ -23,7 +23,12 @@ from appraise.engine.diagnostics import Diagnostics
 from appraise.engine.diagnostics.coverage import OUTSIDE_POINTS, THIN_SEGMENT
 from appraise.engine.spread import SPREAD_METHOD_TEXT
 from appraise.report.diagnostics_section import PRB_CI_LEVEL
-from appraise.report.labels import RATIO_MEASURE_LABELS, term_label, without_source_tags
+from appraise.report.labels import (
+    RATIO_MEASURE_LABELS,
+    RATIO_MEASURE_SHORT,
+    term_label,
+    without_source_tags,
+)
 from appraise.report.numbers import (
     MISSING,
     money,
@@ -95,8 +100,9 @@ def summary_items(d: Diagnostics, currency: str = "$") -> tuple[SummaryItem, ...
             )
         verdict = m.verdict if m.verdict in ("within", "outside") else "info"
         reference = f"range {m.range_text()}" if m.range_text() else "no range in the standard"
-        detail = "; ".join(without_source_tags(t) for t in (m.source, m.note) if t)
-        label = RATIO_MEASURE_LABELS.get(m.name, m.label)
+        long_name = RATIO_MEASURE_LABELS.get(m.name, m.label)
+        detail = "; ".join(without_source_tags(t) for t in (long_name, m.source, m.note) if t)
+        label = RATIO_MEASURE_SHORT.get(m.name, m.label)
         items.append(SummaryItem(m.name, label, value, reference, verdict, detail))
     loo, kf = d.loo, d.kfold
     items.append(

@@ -119,6 +119,19 @@ RATIO_MEASURE_LABELS: Mapping[str, str] = MappingProxyType(
 )
 """Ratio-study measures by their JSON name."""
 
+RATIO_MEASURE_SHORT: Mapping[str, str] = MappingProxyType(
+    {
+        "median": "Median ratio",
+        "mean": "Mean ratio",
+        "weighted_mean": "Weighted mean ratio",
+        "cod": "COD",
+        "prd": "PRD",
+        "prb": "PRB",
+        "ppe10": "PPE10",
+    }
+)
+"""The same, short enough for a tile of the checks' summary (the long name goes in its tip)."""
+
 BREUSCH_PAGAN_FORMS: Mapping[str, str] = MappingProxyType(
     {
         "koenker": "Koenker's studentized form",
