@@ -115,7 +115,7 @@ import statsmodels.formula.api as smf
 df = pd.read_parquet(sys.argv[1])
 rhs = " + ".join([c for c in df.columns if c.startswith("x")] + ["C(region)"])
 res = smf.ols("np.log(price) ~ " + rhs, data=df).fit()
-print(float(res.params.iloc[1]), float(res.bse.iloc[1]), res.df_resid)
+print(float(res.params["x01"]), float(res.bse["x01"]), res.df_resid)
 """
 
 FLOOR = r"""
