@@ -357,7 +357,7 @@ def _coefficient_table(fit: Any, currency: str = "$") -> Table:
                 float(t.p),
                 float(t.ci_low),
                 float(t.ci_high),
-                effect.value,
+                effect.text,  # with its unit: a bare 0.40 would not say "% per month"
             )
         )
     note = f"Standard errors: {COV_TYPE_TEXT.get(fit.cov_type, str(fit.cov_type))}."

@@ -92,7 +92,7 @@ def test_coefficient_table_has_plain_effects_and_reader_labels(sample):
     for row, values, t, e in zip(coef.rows, coef.values, run.fit.terms, effects, strict=True):
         assert row[0] == term_label(t.name)
         assert values[0] == t.name  # exports keep the model's own names
-        assert row[-1] == e.text and values[-1] == e.value
+        assert row[-1] == e.text and values[-1] == e.text  # exported with its unit
     shown = {r[0]: r[-1] for r in coef.rows}
     assert shown["months"] == "+0.40% per month"
     assert shown["region: Heronmoor"].endswith("% vs Old Mill")
