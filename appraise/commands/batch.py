@@ -16,7 +16,13 @@ import sys
 import time
 from pathlib import Path
 
-from ..engine.batch import DEFAULT_CHUNK_ROWS, count_rows, summarise, value_file
+from ..engine.batch import (
+    DEFAULT_CHUNK_ROWS,
+    BatchSummary,
+    count_rows,
+    summarise,
+    value_file,
+)
 from ..engine.errors import DataError
 from ..report.cautions import FULL_CAUTIONS, ONE_LINE_CAUTION
 from ..report.numbers import integer as fmt_int
@@ -162,11 +168,11 @@ def run(args: argparse.Namespace) -> int:
         progress=progress,
     )
     writer = _Writer(out, fmt, {"caution": ONE_LINE_CAUTION, "model": str(args.model)})
-    counts = []
+    parts = []  # one small summary per chunk: memory stays flat however long the roll
     try:
         for chunk in results:
             writer.write(chunk)
-            counts.append(chunk[["reason", "warnings"]])
+            parts.append(summarise(chunk, fit))
         if not writer.started:
             raise DataError("the subjects file has a header but no rows", file=args.subjects)
         writer.close()
@@ -176,7 +182,13 @@ def run(args: argparse.Namespace) -> int:
     finally:
         if bar is not None:
             bar.close()
-    summary = summarise(counts, fit)
+    summary = BatchSummary(
+        sum(p.rows for p in parts),
+        sum(p.valued for p in parts),
+        sum(p.not_valued for p in parts),
+        sum(p.with_warnings for p in parts),
+        tuple(fit.warnings),
+    )
     about = out.with_name(out.name + ".about.txt")
     about.write_text(about_text(args, summary, level, fit), encoding="utf-8")
     seconds = time.perf_counter() - started
