@@ -186,7 +186,7 @@ def test_per_sale_table_has_every_sale_and_sorts_like_statsmodels(loaded_view):
     assert model.rowCount() == fit.n
     ref = _reference(fit)
     headers = [model.headerData(c, Qt.Orientation.Horizontal) for c in range(model.columnCount())]
-    col = headers.index("Cook's D")
+    col = headers.index("Cook's distance")
     model.sort(col, Qt.SortOrder.DescendingOrder)
     top = np.argsort(-ref["cooks"], kind="stable")[:5]
     assert [model.row_at(k) for k in range(5)] == np.asarray(fit.rows)[top].tolist()
@@ -194,7 +194,7 @@ def test_per_sale_table_has_every_sale_and_sorts_like_statsmodels(loaded_view):
     lev = headers.index("Leverage")
     i = int(top[0])
     assert_allclose(float(model.index(0, lev).data()), ref["h"][i], rtol=0, atol=5e-5)
-    value = headers.index("LOO value")
+    value = headers.index("Leave-one-out value")
     assert model.index(0, value).data() == f"${ref['loo_value'][i]:,.0f}"
     # the selection follows the sale wherever the sort put it
     row = model.row_at(3)
