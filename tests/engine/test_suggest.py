@@ -444,3 +444,12 @@ def test_a_derived_name_reading_the_price_is_never_proposed(hprice1_planted):
     assert ("per_area", "derived from a column the guards refused") in problem.skipped
     assert any(t.feature == "lot_k" for t in problem.forms)
     assert not any("per_area" in t.feature for t in problem.forms)
+
+
+def test_a_start_model_over_the_cap_is_cut_to_it(sample_sales):
+    fit = fit_model(sample_sales, pipeline.read_model(sample_dir() / "ashcombe_model.toml"))
+    assert len(fit.spec.features) == 10
+    s = suggest(fit, SearchSettings(max_lines=6, honest=False))
+    assert len(s.proposed.features) <= 6
+    forced = [m for m in s.steps if "cap" in m.why]
+    assert len(forced) >= 4 and all(m.change == "drop" for m in forced)

@@ -633,7 +633,15 @@ def run_path(
     for k in range(settings.max_steps):
         if progress is not None:
             progress(lo + (hi - lo) * min(0.95, k / (settings.max_lines + 4)), f"step {k + 1}")
-        best = _pick(_moves(state, current, problem, r, settings, visited), settings, best_heldout)
+        scored = _moves(state, current, problem, r, settings, visited)
+        if len(current) > settings.max_lines:  # over the cap: the cheapest drop, whatever it costs
+            drops = [m for m in scored if m[0].change == "drop"]
+            best = max(drops, key=lambda m: m[0].gain) if drops else None
+            if best is not None:
+                why = f"over the {settings.max_lines}-line cap: the cheapest line to drop"
+                best = (replace(best[0], why=why), best[1])
+        else:
+            best = _pick(scored, settings, best_heldout)
         if best is None:
             break
         move, current = best
