@@ -136,3 +136,17 @@ def test_polynomial_slope_agrees_with_the_prediction_path(sample_fit):
     assert x + 0.5 < 90
     np.testing.assert_allclose(effect.value, 100 * math.expm1(slope), rtol=1e-8)
     assert _by_term(fit)["age^2"].value is None
+
+
+def test_a_slope_per_level_reads_per_unit_in_that_level():
+    from dataclasses import replace
+
+    d = sample_dir()
+    spec = pipeline.read_model(d / "ashcombe_model_simple.toml")  # a linear response
+    spec = replace(spec, features=(*spec.features, "living_area * onehot(region, ref='Old Mill')"))
+    fit = pipeline.fit(pipeline.load(d / "ashcombe_sales.csv"), spec)
+    effects = _by_term(fit)
+    coef = {t.name: t.coef for t in fit.terms}
+    name = "living_area * region[Heronmoor]"
+    np.testing.assert_allclose(effects[name].value, coef[name], rtol=1e-12)  # $ per sq ft
+    assert effects[name].text.endswith(" per sq ft in Heronmoor vs Old Mill")
