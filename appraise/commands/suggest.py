@@ -14,7 +14,7 @@ cv_rmse_before, cv_rmse_after, gain_mse, se_mse, gain_rmse, se_rmse}``); ``stopp
 ``final`` {``features``, ``cv_rmse``, ``cv_cod``, ``lines`` (each ``{feature, origin,
 drop_cost_mse, drop_se_mse, cv_rmse_without}``), ``derived``}; ``honest`` (null with
 ``--no-holdout``, else ``{share, seed, n_search, n_holdout, features, in_search_cv_rmse,
-holdout_rmse, start_holdout_rmse}``); ``candidates``; ``refused`` (each ``{column, guard,
+holdout_rmse, start_holdout_rmse, holdout_cod, start_holdout_cod}``); ``candidates``; ``refused`` (each ``{column, guard,
 reason}``, guard "leakage" or "fair lending"); ``skipped`` (each ``{what, reason}``);
 ``notes``; ``warnings``; ``left_out_rows``; ``proposed_file`` (the path written, or null).
 CV errors are on the response scale (log price for a log response).

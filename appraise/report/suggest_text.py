@@ -100,8 +100,9 @@ def format_suggestion(s: Suggestion) -> str:
         )
         out.append(f"      its in-search figure {error_text(h.in_search_rmse, r)}")
         out.append(
-            f"      on the held-out sales it never saw {error_text(h.holdout_rmse, r)} "
-            f"(start model: {error_text(h.start_holdout_rmse, r)})"
+            f"      on the held-out sales it never saw {error_text(h.holdout_rmse, r)}, "
+            f"COD {fixed(h.holdout_cod, 1)} (start model: {error_text(h.start_holdout_rmse, r)}, "
+            f"COD {fixed(h.start_holdout_cod, 1)})"
         )
     out += ["", *guard_lines(s)]
     if s.notes:

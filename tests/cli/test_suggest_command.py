@@ -73,6 +73,7 @@ def test_json_keys_steps_and_honest_estimate(suggested):
     h = d["honest"]
     assert h["n_search"] + h["n_holdout"] == d["n"]
     assert h["holdout_rmse"] < h["start_holdout_rmse"]
+    assert 0 < h["holdout_cod"] < h["start_holdout_cod"]
     refused = {r["column"]: r["guard"] for r in d["refused"]}
     assert refused["Sale Price"] == "leakage" and refused["Sale ID"] == "leakage"
 

@@ -240,6 +240,9 @@ class HonestEstimate:
     in_search_rmse: float
     holdout_rmse: float
     start_holdout_rmse: float
+    holdout_cod: float = float("nan")
+    """COD (percent) of the chosen model's values of the held-out sales."""
+    start_holdout_cod: float = float("nan")
 
     def to_dict(self) -> dict:
         return {
@@ -251,6 +254,8 @@ class HonestEstimate:
             "in_search_cv_rmse": self.in_search_rmse,
             "holdout_rmse": self.holdout_rmse,
             "start_holdout_rmse": self.start_holdout_rmse,
+            "holdout_cod": self.holdout_cod,
+            "start_holdout_cod": self.start_holdout_cod,
         }
 
 
@@ -734,6 +739,12 @@ def honest_estimate(
     chosen = _terms_named(problem, path.features)
     e = _fit_predict(problem, chosen, search_rows, hold)
     e0 = _fit_predict(problem, problem.start, search_rows, hold)
+
+    def cod_of(residuals: np.ndarray) -> float:
+        full = np.full(n, np.nan)
+        full[hold] = residuals
+        return cv_cod(problem, full)
+
     return HonestEstimate(
         share=settings.holdout_share,
         seed=settings.seed,
@@ -743,6 +754,8 @@ def honest_estimate(
         in_search_rmse=path.final_rmse,
         holdout_rmse=float(np.sqrt(np.mean(e * e))),
         start_holdout_rmse=float(np.sqrt(np.mean(e0 * e0))),
+        holdout_cod=cod_of(e),
+        start_holdout_cod=cod_of(e0),
     )
 
 
