@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .cell_columns import fast_iso_dates, fast_numbers, missing_mask, parse_rest
+from .cell_columns import fast_iso_dates, fast_numbers, missing_mask, parse_rest, strip_texts
 from .cells import clean_text, parse_date, parse_flag, parse_number
 from .design import level_label
 from .errors import DataError, SubjectError
@@ -155,11 +155,17 @@ class _Reasons:
     """The first reason each row cannot be valued (None: none yet)."""
 
     text: np.ndarray
+    has: np.ndarray  # the row has a reason already
 
     def add(self, mask: np.ndarray, texts: np.ndarray | str) -> None:
-        open_ = mask & pd.isna(self.text)
+        open_ = mask & ~self.has
         if open_.any():
             self.text[open_] = texts if isinstance(texts, str) else texts[open_]
+            self.has |= open_
+
+
+_Why = tuple[np.ndarray, np.ndarray] | None
+"""Reasons of unreadable cells: ``(codes into the distinct cells, reason of each)``."""
 
 
 def _as_objects(values: pd.Series) -> np.ndarray:
@@ -177,8 +183,9 @@ def _spread(per_unique: np.ndarray, codes: np.ndarray, fill: object) -> np.ndarr
 
 def _clean_column(
     values: np.ndarray, kind: str, settings: ImportSettings, header: str
-) -> tuple[np.ndarray, np.ndarray]:
-    """One subjects column read as ``kind``: per-row values and per-row reason (or None)."""
+) -> tuple[np.ndarray, _Why]:
+    """One subjects column read as ``kind``: per-row values, and the reasons of the cells
+    that could not be read as ``(codes, reason per distinct cell)`` (None: no reasons)."""
     codes, uniques = _per_unique(values)
     k = len(uniques)
     why = np.full(k, None, dtype=object)
@@ -198,7 +205,7 @@ def _clean_column(
         for j, r in bad.items():
             why[j] = r
         out[missing] = np.nan
-        return _spread(out, codes, np.nan), _spread(_prefix(why, header), codes, None)
+        return _spread(out, codes, np.nan), (codes, _prefix(why, header))
     if kind == "date":
         out, decided = fast_iso_dates(uniques)
         got, bad = parse_rest(uniques, decided | missing, partial(_date_value, settings=settings))
@@ -206,20 +213,20 @@ def _clean_column(
             out[j] = v
         for j, r in bad.items():
             why[j] = r
-        return _spread(out, codes, np.datetime64("NaT")), _spread(_prefix(why, header), codes, None)
+        return _spread(out, codes, np.datetime64("NaT")), (codes, _prefix(why, header))
     texts = np.full(k, None, dtype=object)
     if k:
         plain = np.array([type(u) is str for u in uniques], dtype=bool)
-        texts[plain] = pd.Series(uniques[plain], dtype=object).str.strip().to_numpy(dtype=object)
+        texts[plain] = strip_texts(uniques[plain])
         other = ~plain & ~missing
         texts[other] = [clean_text(u) for u in uniques[other]]
         texts[missing] = None
-    return _spread(texts, codes, None), np.full(len(values), None, dtype=object)
+    return _spread(texts, codes, None), None
 
 
 def _typed_column(
     series: pd.Series, kind: str | None, header: str
-) -> tuple[np.ndarray, np.ndarray] | None:
+) -> tuple[np.ndarray, _Why] | None:
     """A Parquet column already of the kind asked, taken as it is (None: not such a column).
 
     Numbers: NaN is missing, an infinity is not a finite number (as the per-cell rule);
@@ -233,24 +240,23 @@ def _typed_column(
         and not (pd.api.types.is_bool_dtype(dtype))
     ):
         v = series.to_numpy(dtype=np.float64, na_value=np.nan)
-        why = np.full(n, None, dtype=object)
         inf = np.isinf(v)
-        if inf.any():
-            why[inf] = [f"'{header}' '{x}' is not a finite number" for x in v[inf]]
-            v = np.where(inf, np.nan, v)
-        return v, why
+        if not inf.any():
+            return v, None
+        why = np.full(n, None, dtype=object)
+        why[inf] = [f"'{header}' '{x}' is not a finite number" for x in v[inf]]
+        return np.where(inf, np.nan, v), (np.arange(n), why)
     if kind == "date" and pd.api.types.is_datetime64_any_dtype(dtype):
         if getattr(dtype, "tz", None) is not None:
             series = series.dt.tz_localize(None)
-        return series.to_numpy(dtype="datetime64[ns]"), np.full(n, None, dtype=object)
+        return series.to_numpy(dtype="datetime64[ns]"), None
     return None
 
 
 def _clean_ids(values: np.ndarray) -> pd.Series:
     """Ids as text, as the sales' id column is cleaned: stripped; missing markers None."""
-    codes, uniques = _per_unique(values)
-    texts, _ = _clean_column(uniques, "text", ImportSettings(), "id")
-    return pd.Series(_spread(texts, codes, None), dtype=object)
+    texts, _ = _clean_column(values, "text", ImportSettings(), "id")
+    return pd.Series(texts, dtype=object)
 
 
 def _prefix(why: np.ndarray, header: str) -> np.ndarray:
@@ -279,13 +285,13 @@ def _date_value(value: object, *, settings: ImportSettings) -> np.datetime64:
 
 def clean_chunk(
     raw: pd.DataFrame, plan: ColumnPlan, settings: ImportSettings
-) -> tuple[pd.DataFrame, np.ndarray]:
-    """A raw chunk as a frame of sales-like columns, and each row's first reason (or None).
+) -> tuple[pd.DataFrame, _Reasons]:
+    """A raw chunk as a frame of sales-like columns, and each row's first reason.
 
     Date inputs a row lacks are filled from its ``effective_date``, else the model's.
     """
     n = len(raw)
-    reasons = _Reasons(np.full(n, None, dtype=object))
+    reasons = _Reasons(np.full(n, None, dtype=object), np.zeros(n, dtype=bool))
     data: dict[str, object] = {}
     for header, column, kind in plan.landing:
         typed = _typed_column(raw[header], kind, header)
@@ -296,7 +302,10 @@ def clean_chunk(
             continue
         else:
             clean, why = _clean_column(_as_objects(raw[header]), kind, settings, header)
-        reasons.add(pd.notna(why), why)
+        if why is not None:
+            codes, per_unique = why
+            has = np.append([w is not None for w in per_unique], False).astype(bool)[codes]
+            reasons.add(has, _spread(per_unique, codes, None))
         data[column] = clean if kind != "text" else pd.Series(clean, dtype=object)
     frame = pd.DataFrame(data, index=pd.RangeIndex(n))
     if plan.dates_to_fill:
@@ -319,7 +328,7 @@ def clean_chunk(
                 "effective_date in the model file",
             )
             frame[col] = filled.astype("datetime64[ns]")
-    return frame, reasons.text
+    return frame, reasons
 
 
 # --- valuing a chunk --------------------------------------------------------------------
@@ -429,13 +438,12 @@ def value_chunk(
     """
     ranges = _ranges(fit) if ranges is None else ranges
     n = len(raw)
-    frame, reasons = clean_chunk(raw, plan, settings)
-    usable = pd.isna(reasons)
+    frame, why = clean_chunk(raw, plan, settings)
     pred = fit.predict(frame, level)
-    ok = pred.ok & usable
-    design_reasons = np.array(pred.reasons, dtype=object)
-    take = pd.isna(reasons) & pd.notna(design_reasons)
-    reasons[take] = design_reasons[take]
+    ok = pred.ok & ~why.has
+    reasons = why.text
+    take = np.flatnonzero(~why.has & ~pred.ok)  # a row the design or spread could not use
+    reasons[take] = [pred.reasons[i] for i in take]
     estimate = np.where(ok, pred.estimate, np.nan)
     lo, hi = pred.interval(level)
     mlo, mhi = pred.interval(level, kind="mean")

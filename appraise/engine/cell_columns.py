@@ -72,6 +72,22 @@ def _is(arr: pa.Array, pattern: str, ignore_case: bool = False) -> np.ndarray:
     return found.to_numpy(zero_copy_only=False).astype(bool)
 
 
+def strip_texts(values: np.ndarray) -> np.ndarray:
+    """``str.strip()`` of every entry of an object array of ``str`` (plain-ASCII texts
+    trimmed by Arrow at once, any other text by Python)."""
+    out = np.empty(len(values), dtype=object)
+    if not len(values):
+        return out
+    arr = pa.array(values, type=pa.string())
+    plain = pc.match_substring_regex(arr, _PLAIN_ASCII).to_numpy(zero_copy_only=False)
+    plain = plain.astype(bool)
+    trimmed = pc.utf8_trim(arr, " \t\n\v\f\r")
+    out[:] = trimmed.to_numpy(zero_copy_only=False)
+    rest = np.flatnonzero(~plain)
+    out[rest] = [v.strip() for v in values[rest]]
+    return out
+
+
 def missing_mask(values: np.ndarray) -> np.ndarray:
     """:func:`~appraise.engine.cells.is_missing` of every entry, plain texts tested at once."""
     if values.dtype.kind == "f":
@@ -194,4 +210,11 @@ def parse_rest(
     return got, why
 
 
-__all__ = ["blank_mask", "fast_iso_dates", "fast_numbers", "missing_mask", "parse_rest"]
+__all__ = [
+    "blank_mask",
+    "fast_iso_dates",
+    "fast_numbers",
+    "missing_mask",
+    "parse_rest",
+    "strip_texts",
+]

@@ -32,7 +32,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .cell_columns import blank_mask, fast_iso_dates, fast_numbers, missing_mask
+from .cell_columns import blank_mask, fast_iso_dates, fast_numbers, missing_mask, strip_texts
 from .cells import (
     area_unit_of,
     clean_text,
@@ -627,8 +627,7 @@ def _clean_texts(d: _Distinct) -> _Clean:
     per_unique = np.full(len(d.uniques), None, dtype=object)
     if len(d.uniques):
         plain = np.array([type(u) is str for u in d.uniques], dtype=bool) & ~d.blank
-        texts = pd.Series(d.array[plain], dtype=object).str.strip()  # clean_text of a str
-        per_unique[plain] = texts.to_numpy(dtype=object)
+        per_unique[plain] = strip_texts(d.array[plain])  # clean_text of a str
         other = ~plain & ~d.blank
         per_unique[other] = [clean_text(u) for u in d.array[other]]
     return _Clean.build("text", d, d.spread(per_unique, None), [None] * len(d.uniques))

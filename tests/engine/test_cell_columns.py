@@ -14,6 +14,7 @@ from appraise.engine.cell_columns import (
     fast_iso_dates,
     fast_numbers,
     missing_mask,
+    strip_texts,
 )
 from appraise.engine.cells import is_missing, parse_date, parse_number
 
@@ -96,3 +97,12 @@ def test_missing_and_blank_masks_agree_with_the_cell_rules():
     assert blank_mask(values).tolist() == blank
     assert missing_mask(np.array([1.0, np.nan])).tolist() == [False, True]
     assert pd.Series(missing_mask(np.array([], dtype=object))).empty
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    st.lists(st.text(alphabet=" \t\n\r\x0b\x0c\x1c\x1f\xa0\u2003ab1,$", max_size=8), max_size=20)
+)
+def test_strip_texts_is_str_strip(texts):
+    values = np.array(texts, dtype=object)
+    assert strip_texts(values).tolist() == [t.strip() for t in texts]
