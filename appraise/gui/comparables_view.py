@@ -34,6 +34,7 @@ from PySide6.QtWidgets import (
 from appraise import pipeline
 from appraise.engine.comparables import ComparablesChoice, SelectionSettings
 from appraise.report.cautions import ONE_LINE_CAUTION
+from appraise.report.labels import group_label
 from appraise.report.numbers import MISSING, fixed, money, percent
 
 from .session import Session
@@ -306,7 +307,7 @@ class ComparablesView(QWidget):
         comps = grid.comparables
         labels = ["Sale price", "Sale date", "Distance (km)"]
         labels += [
-            ("Market conditions: " if a.market_conditions else "") + a.group
+            ("Market conditions: " if a.market_conditions else "") + group_label(a.group)
             for a in comps[0].adjustments
         ]
         labels += ["Net adjustment", "Gross adjustment", "Adjusted price", "Weight"]

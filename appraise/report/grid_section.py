@@ -11,6 +11,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .content import Block, Facts, Figure, Notice, Paragraph, Table
+from .labels import group_label
 from .numbers import MISSING, fixed, money, percent
 
 
@@ -45,7 +46,7 @@ def grid_blocks(
     ]
     for k, group in enumerate(d["adjustment_order"]):
         mc = comps[0]["adjustments"][k]["market_conditions"]
-        label = f"Market conditions ({group})" if mc else group
+        label = f"Market conditions ({group_label(group)})" if mc else group_label(group)
         rows.append(
             (
                 label,

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from ..engine.grid import Grid
 from ..engine.jsonable import iso_date
+from .labels import group_label
 from .numbers import fixed, money, percent
 
 
@@ -34,7 +35,9 @@ def format_grid(grid: Grid) -> str:
         ),
     ]
     for k, group in enumerate(grid.groups):
-        label = ("Market conditions: " if comps[0].adjustments[k].market_conditions else "") + group
+        label = (
+            "Market conditions: " if comps[0].adjustments[k].market_conditions else ""
+        ) + group_label(group)
         lines.append(_row(label[:33], [money(c.adjustments[k].amount) for c in comps], width))
         lines.append(_row("", [f"(SE {money(c.adjustments[k].se)})" for c in comps], width))
     lines += [

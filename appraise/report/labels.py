@@ -83,6 +83,29 @@ def term_label(name: str) -> str:
     return text.replace(" * ", " × ")
 
 
+_ONEHOT = re.compile(r"^(?:(?P<factor>.+?) \* )?onehot\((?P<column>[^,()]+)(?:,[^()]*)?\)$")
+_POLY = re.compile(r"^poly\((?P<inputs>[^=()]+?),\s*degree=(?P<degree>\d+)\)$")
+
+
+def group_label(expression: str) -> str:
+    """A feature's expression as the name of its adjustment line or group.
+
+    ``onehot(condition, ref='average') -> "condition"``;
+    ``living_area * onehot(region) -> "living_area × region"``;
+    ``poly(age, degree=2) -> "age (degree 2)"``; anything else as :func:`term_label`.
+    """
+    text = str(expression).strip()
+    m = _ONEHOT.match(text)
+    if m:
+        column = m.group("column").strip().strip("`")
+        factor = m.group("factor")
+        return f"{term_label(factor)} × {column}" if factor else column
+    m = _POLY.match(text)
+    if m:
+        return f"{m.group('inputs').strip()} (degree {m.group('degree')})"
+    return term_label(text)
+
+
 _SOURCE_TAG = re.compile(r"\s*\((?:verified|memory|recalled from memory)\)", re.IGNORECASE)
 
 
