@@ -82,12 +82,14 @@ class Prediction:
     def t_quantile(self, level: float | None = None) -> float:
         """The interval's multiplier: :math:`t_{1-\\alpha/2,\\,df}`, or with a modelled
         spread the empirical quantile of :meth:`.spread.SpreadModel.multiplier`."""
-        from scipy import stats
+        # scipy.special's inverse t distribution is what scipy.stats.t.ppf computes, without
+        # the second scipy.stats takes to import
+        from scipy.special import stdtrit
 
         level = self.level if level is None else check_level(level)
         if self.spread is not None:
             return self.spread.multiplier(level)
-        return float(stats.t.ppf(1 - (1 - level) / 2, self.df))
+        return float(stdtrit(self.df, 1 - (1 - level) / 2))
 
     def response_interval(
         self, level: float | None = None, *, kind: str = "obs"
