@@ -526,6 +526,8 @@ class _Evaluator:
 
     def call(self, node: Call, feature: str) -> np.ndarray:
         info = FUNCTIONS[node.func]
+        if node.func == "grade":
+            return self.grade(node, feature)
         if info.impl is None:
             raise ExpressionError(f"in '{feature}': {node.func}(...) must be a whole feature")
         args = []
@@ -536,6 +538,29 @@ class _Evaluator:
             else:
                 args.append(self.number(a, feature))
         return info.impl(*args)
+
+    def grade(self, node: Call, feature: str) -> np.ndarray:
+        """``grade(x, 'poor', 'fair', ...)``: 1 for the first level, 2 for the next, ...;
+        matched on the level's text, trimmed and ignoring case (a number column's level
+        as written, 3.0 as '3'); NaN for a missing value or a level not listed."""
+        v = self.value(node.args[0], feature)
+        if isinstance(v, str):
+            raise ExpressionError(f"in '{feature}': grade(...) needs a column, not quoted text")
+        order = {a.value.strip().casefold(): k + 1 for k, a in enumerate(node.args[1:])}
+        out = np.full(len(v), np.nan)
+        if v.dtype.kind == "M":
+            raise DesignError(
+                f"in '{feature}': grade(...) needs a column of levels, not dates",
+                column=_header_of(node.args[0]),
+            )
+        present = ~pd.isna(v)
+        if v.dtype.kind == "f":
+            text = np.array([level_label(x) for x in v[present]], dtype=object)
+        else:
+            text = v[present].astype(str)
+        keys = pd.Series(text, dtype=object).str.strip().str.casefold()
+        out[present] = keys.map(order).to_numpy(dtype=float)
+        return out
 
     def number(self, node: Node, feature: str) -> np.ndarray:
         v = self.value(node, feature)

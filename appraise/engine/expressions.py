@@ -43,7 +43,7 @@ from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 
 from .errors import ExpressionError, UnknownNameError
-from .functions import FUNCTIONS, FunctionInfo
+from .functions import FUNCTIONS, GRADE_NAME, FunctionInfo
 from .limits import MAX_DERIVED, MAX_DERIVED_CHAIN, MAX_FEATURE_NODES
 from .roles import RoleMap
 
@@ -381,7 +381,8 @@ class _Walker:
         if n < info.min_args or (info.max_args is not None and n > info.max_args):
             raise self.fail(node, f"{info.signature} {_arity(info)}, got {n}")
         args = tuple(
-            self.convert(a, text_ok=i in info.text_params) for i, a in enumerate(node.args)
+            self.convert(a, text_ok=i in info.text_params or info.param_kind(i) == GRADE_NAME)
+            for i, a in enumerate(node.args)
         )
         keywords = []
         for kw in node.keywords:
@@ -400,6 +401,17 @@ class _Walker:
             arg = call.args[i]
             if isinstance(arg, Text) and _iso_date(arg.value) is None:
                 raise self.fail(node.args[i], f"'{arg.value}' is not a date written YYYY-MM-DD")
+        if info.name == "grade":
+            names = call.args[1:]
+            if not all(isinstance(a, Text) for a in names):
+                raise self.fail(
+                    node,
+                    "grade(...) lists its levels as quoted text, lowest first: "
+                    "grade(condition, 'poor', 'fair', 'good')",
+                )
+            folded = [a.value.strip().casefold() for a in names]  # type: ignore[union-attr]
+            if len(set(folded)) != len(folded):
+                raise self.fail(node, "grade(...) lists a level twice")
         if info.name == "onehot":
             ref = call.keyword("ref")
             if ref is not None and not isinstance(ref, Text | Number):

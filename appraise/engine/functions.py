@@ -35,6 +35,7 @@ NUMBER = "number"
 DATE = "date"
 DATE_OR_ISO = "date or 'YYYY-MM-DD'"
 CATEGORY = "category"
+GRADE_NAME = "grade name"  # a quoted level of an ordered grade, e.g. 'fair'
 
 
 def hinge(x: np.ndarray, knot: np.ndarray) -> np.ndarray:
@@ -201,6 +202,16 @@ _ALL = (
         max_args=1,
         keywords=("ref", "min_count"),
         expanding=True,
+    ),
+    FunctionInfo(
+        name="grade",
+        signature="grade(category, 'poor', 'fair', 'good', 'excellent')",
+        summary="an ordered grade as a score: 1 for the first level listed, 2 for the next, "
+        "and so on (matched ignoring case); a value not listed cannot be used",
+        params=(CATEGORY, GRADE_NAME),
+        min_args=3,
+        max_args=None,
+        nonfinite_hint="a value not among the grades listed?",
     ),
     FunctionInfo(
         name="poly",

@@ -235,7 +235,11 @@ def test_sample_town_dates_and_coordinates_enter_only_through_functions(sample_s
     assert any(f.feature == months for f in pool.forms)
     centre = next(k for k, v in derived.items() if v.startswith("distance_km("))
     assert any(f.feature == f"living_area * {centre}" for f in pool.forms)
-    assert any("ordered grade" in n for n in pool.notes)  # condition: poor ... excellent
+    # condition: poor ... excellent, offered as a quadratic score beside its levels
+    scored = [f.feature for f in pool.forms if f.feature.startswith("poly(grade(condition")]
+    assert scored and scored[0].startswith("poly(grade(condition, 'poor', 'fair'")
+    fit = fit_model(sample_sales, _spec(["log(living_area)", scored[0]]))  # the text fits
+    assert fit.p == 4
 
 
 # --- the search ------------------------------------------------------------------------

@@ -17,8 +17,11 @@ numeric 0/1 column
 text column, 2 to :data:`MAX_LEVELS` levels
     ``onehot(c)``; when some level has fewer than :data:`MIN_LEVEL` sales and the
     expression language pools thin levels, ``onehot(c, min_count=5)`` instead.
-    A text grade with a natural order (poor ... excellent) is said to be ordered; it
-    can be scored only as levels until it is recoded to numbers.
+    A text grade with a natural order (poor ... excellent) is also offered as a quadratic
+    score ``poly(grade(c, 'poor', 'fair', ...), degree=2)`` (1, 2, ... in that order).
+    The straight score alone is not offered for a text grade: on the sample town it was
+    taken first, being one column, and the stopping rule then kept it over the better
+    forms (leave-one-out log RMSE 0.0834 against 0.0824 with the quadratic offered).
 date column
     only as ``months_between(date, 'effective date')``, a derived name.
 coordinates (latitude and longitude roles)
@@ -186,6 +189,24 @@ def _ordered(levels: set[str]) -> tuple[str, ...] | None:
     return None
 
 
+def _grade_expression(name: str, levels, order: tuple[str, ...]) -> str | None:
+    """``grade(name, 'Poor', 'Fair', ...)`` with the column's own level texts in the order
+    of the vocabulary; None when a level cannot be quoted or two differ only in case."""
+    ranked = sorted(levels, key=lambda lv: order.index(header_words(lv)))
+    if len({str(lv).strip().casefold() for lv in ranked}) != len(ranked):
+        return None
+    quoted = []
+    for lv in ranked:
+        text = str(lv)
+        if "'" not in text:
+            quoted.append(f"'{text}'")
+        elif '"' not in text:
+            quoted.append(f'"{text}"')
+        else:
+            return None
+    return f"grade({name}, {', '.join(quoted)})"
+
+
 def _numeric_forms(name: str, key: str, v: np.ndarray, is_derived: bool) -> list[Form]:
     distinct = np.unique(v)
     label = "derived " if is_derived else ""
@@ -293,11 +314,12 @@ def propose(fit: FitResult, screen: Screen) -> CandidatePool:
             why = f"category with {counts.size} levels"
             if order:
                 why = f"ordered grade ({' < '.join(order)}), as levels"
-                notes.append(
-                    f"'{col}' is an ordered grade; recode it to numbers ("
-                    + ", ".join(f"{lv} = {i + 1}" for i, lv in enumerate(order))
-                    + ") to let it enter as a score and as a quadratic"
-                )
+                scored = _grade_expression(name, counts.index, order)
+                if scored is not None:
+                    what = f"ordered grade ({' < '.join(order)})"
+                    forms.append(
+                        Form(f"poly({scored}, degree=2)", col, f"{what}: as a quadratic score")
+                    )
             if thin and pool_levels:
                 forms.append(
                     Form(
