@@ -216,7 +216,10 @@ def _clean_column(
         return _spread(out, codes, np.datetime64("NaT")), (codes, _prefix(why, header))
     texts = np.full(k, None, dtype=object)
     if k:
-        plain = np.array([type(u) is str for u in uniques], dtype=bool)
+        if pd.api.types.infer_dtype(uniques, skipna=False) == "string":
+            plain = np.ones(k, dtype=bool)  # every distinct cell is a str (told at C speed)
+        else:
+            plain = np.array([type(u) is str for u in uniques], dtype=bool)
         texts[plain] = strip_texts(uniques[plain])
         other = ~plain & ~missing
         texts[other] = [clean_text(u) for u in uniques[other]]
