@@ -44,7 +44,13 @@ from .spread import SpreadModel, fit_spread
 COEF_CI_LEVEL = 0.95
 """Level of the coefficient confidence intervals (the prediction level is the model's ``level``)."""
 
-STATSMODELS_COV = {"classical": "nonrobust", "HC1": "HC1", "HC3": "HC3"}
+STATSMODELS_COV = {
+    "classical": "nonrobust",
+    "HC0": "HC0",
+    "HC1": "HC1",
+    "HC2": "HC2",
+    "HC3": "HC3",
+}
 MIN_SALES_PER_TERM = 10  # common practice: fewer than ~10 observations per term is thin
 
 
@@ -401,7 +407,7 @@ def fit_model(
         res = AbsorbedResults.of(structure)
         leverage = structure.leverage()
         counts = absorbed_level_counts(design, structure)
-    if spec.cov_type == "HC3":
+    if spec.cov_type in ("HC2", "HC3"):
         _refuse_hc3_at_leverage_one(
             leverage, frame, counts, sale_id, sales.source.path, spec.cov_type
         )
