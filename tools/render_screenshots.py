@@ -35,6 +35,8 @@ TABS = {  # centre-tab text (without '&') -> file name
     "Model": "model.png",
     "Plots": "plots.png",
     "Checks": "checks.png",
+    "Comparables": "comparables.png",
+    "Neighbourhoods": "neighbourhoods.png",
     "Worksheet": "worksheet.png",
 }
 

@@ -81,20 +81,23 @@ def _date_inputs(fit: FitResult) -> list[str]:
 
 
 def prepare_subject(fit: FitResult, subject: pd.DataFrame) -> pd.DataFrame:
-    """Fill the subject's sale date with the effective date when the model needs a date.
+    """Set the subject's sale date to the effective date when the model needs a date.
 
     The subject has not sold: time terms are evaluated at the effective date of value,
-    taken from the subject's ``effective_date`` or the model file's ``effective_date``.
+    the subject's ``effective_date`` first (it wins over a sale date the subject file may
+    also carry, so the date typed as the date of value is the one used), else the
+    subject's own sale date, else the model file's ``effective_date``.
     """
     if len(subject) != 1:
         raise SubjectError(f"the subject must be exactly one row, not {len(subject)}")
     subject = subject.copy()
+    own = "effective_date" in subject.columns and not pd.isna(subject["effective_date"].iloc[0])
     for col in _date_inputs(fit):
         have = col in subject.columns and not pd.isna(subject[col].iloc[0])
-        if have:
+        if have and not own:
             continue
         eff = None
-        if "effective_date" in subject.columns and not pd.isna(subject["effective_date"].iloc[0]):
+        if own:
             eff = subject["effective_date"].iloc[0]
         elif fit.spec.effective_date:
             eff = fit.spec.effective_date

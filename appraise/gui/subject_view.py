@@ -65,7 +65,13 @@ def subject_fields(session: Session) -> list[str]:
                     fields.append(EFFECTIVE_DATE)
                 else:
                     fields.append(by_header.get(header, header))
-    fields += [k for k in session.subject if k != ASSUMED_KEY]  # a mark, not an attribute
+    # the sale date is asked as the effective date (the subject has not sold)
+    sale_date = {"sale_date"} | ({sales.roles.column("sale_date")} if sales is not None else set())
+    fields += [
+        k
+        for k in session.subject
+        if k != ASSUMED_KEY and k not in sale_date  # a mark, not an attribute; the date
+    ]
     return list(dict.fromkeys(fields))
 
 

@@ -188,3 +188,19 @@ def test_time_term_uses_the_effective_date():
         fit, pd.DataFrame({"area": [2000.0], "effective_date": [pd.Timestamp("2025-01-01")]})
     )
     assert with_date.estimate < v.estimate
+    # the subject's effective date wins over a sale date the subject file also carries
+    both = value_subject(
+        fit,
+        pd.DataFrame(
+            {
+                "area": [2000.0],
+                "sold": [pd.Timestamp("2024-06-01")],
+                "effective_date": [pd.Timestamp("2026-01-01")],
+            }
+        ),
+    )
+    assert_allclose(both.estimate, v.estimate, rtol=1e-12)
+    only_sold = value_subject(
+        fit, pd.DataFrame({"area": [2000.0], "sold": [pd.Timestamp("2025-01-01")]})
+    )
+    assert_allclose(only_sold.estimate, with_date.estimate, rtol=1e-12)
