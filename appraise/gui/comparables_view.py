@@ -95,7 +95,7 @@ class ComparablesView(QWidget):
 
         # --- choices
         self.effective = QLineEdit()
-        self.effective.setPlaceholderText("YYYY-MM-DD (default: the subject's)")
+        self.effective.setPlaceholderText("YYYY-MM-DD, the subject's date of value")
         self.max_km = QDoubleSpinBox(minimum=0, maximum=1000, decimals=1, specialValueText="any")
         self.max_months = QDoubleSpinBox(minimum=0, maximum=600, decimals=0, specialValueText="any")
         self.same_region = QCheckBox("same region only")
@@ -177,6 +177,7 @@ class ComparablesView(QWidget):
         )
         session.gridFailed.connect(self._failed)
         session.comparablesChanged.connect(self._show_choice)
+        session.subjectChanged.connect(lambda *_: self._show_choice(session.comparables))
         if session.grid is not None:
             self._grid_changed(session.grid)
 
@@ -186,9 +187,15 @@ class ComparablesView(QWidget):
         if self.grid is not None:
             self._show(self.grid, self.table)
 
+    def _subject_date(self) -> str:
+        value = self.session.subject.get("effective_date")
+        return "" if value is None else str(value).strip()[:10]
+
     def _show_choice(self, c: ComparablesChoice) -> None:
+        """The choices on screen; the effective date is the subject's (one date of value per
+        analysis), unless an older workfile's choices carry one of their own."""
         self._filling = True
-        self.effective.setText(c.effective_date or "")
+        self.effective.setText(c.effective_date or self._subject_date())
         self.max_km.setValue(c.filters.max_km or 0)
         self.max_months.setValue(c.filters.max_months or 0)
         self.same_region.setChecked(c.filters.same_region_only)
@@ -206,7 +213,12 @@ class ComparablesView(QWidget):
             count=self.count.value(),
         )
         eff = self.effective.text().strip() or None
-        self.session.set_comparables(dataclasses.replace(c, filters=filters, effective_date=eff))
+        if eff is not None and eff != (c.effective_date or self._subject_date()):
+            # the date of value belongs to the subject: the value, the grid and the
+            # worksheet then share it
+            self.session.set_subject({**self.session.subject, "effective_date": eff})
+            c = dataclasses.replace(c, effective_date=None)
+        self.session.set_comparables(dataclasses.replace(c, filters=filters))
 
     def _selected_ids(self) -> list[str]:
         rows = sorted({i.row() for i in self.candidates.selectedIndexes()})

@@ -65,6 +65,9 @@ def test_swap_comparable_weights_and_effective_date(qtbot, view, session):
     view.effective.setText("2025-12-31")
     _update(qtbot, view, view.effective.editingFinished.emit)
     assert str(view.grid.effective_date)[:10] == "2025-12-31"
+    # one date of value per analysis: it is the subject's, so the value uses it too
+    assert session.subject["effective_date"] == "2025-12-31"
+    assert session.comparables.effective_date is None
     assert view.grid.comparables[0].adjustments[0].amount != pytest.approx(before)
 
 
