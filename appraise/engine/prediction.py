@@ -192,8 +192,9 @@ def predict(
     elif ok.any():
         Xo = X[ok]
         fitted[ok] = Xo @ fit.params
-        var_mean[ok] = np.einsum("ij,jk,ik->i", Xo, fit.cov_params, Xo)
-        lev[ok] = np.einsum("ij,jk,ik->i", Xo, fit.xtx_inv, Xo)
+        # x_i' V x_i as a row sum of (X V) * X: one matrix product (BLAS), not an n p^2 loop
+        var_mean[ok] = np.einsum("ij,ij->i", Xo @ fit.cov_params, Xo)
+        lev[ok] = np.einsum("ij,ij->i", Xo @ fit.xtx_inv, Xo)
     _classical_for_lone_levels(fit, X, ok, var_mean, lev, built.codes)
     err_var, spread_problems = error_variance(fit, frame, ok, fitted)
     for pos, reason, column in spread_problems:
