@@ -14,6 +14,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pandas as pd
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (
@@ -36,6 +37,7 @@ from appraise.qtrender.palette import OKABE_ITO, rgba
 from appraise.report.cautions import ONE_LINE_CAUTION
 from appraise.report.content import Table
 from appraise.report.numbers import fixed, money, pvalue, signed_percent
+from appraise.report.plotdata import drawn_positions, subsample_note
 from appraise.report.regions_section import (
     area_price_table,
     effects_table,
@@ -385,7 +387,7 @@ class RegionsView(QWidget):
         north = (lat - lat0) * KM_PER_DEGREE
         by_level = {e.level: e.effect.value for e in ra.effects}
         labels = level_labels(frame[ra.term.column])
-        effect = np.array([by_level.get(v, np.nan) for v in labels])
+        effect = pd.Series(np.asarray(labels, dtype=object)).map(by_level).to_numpy(dtype=float)
         self._map_origin = (lat0, lon0)
         return east, north, effect
 
@@ -398,12 +400,18 @@ class RegionsView(QWidget):
             return
         east, north, effect = pts
         cmap, span = effect_colour_map(float(np.nanmin(effect)), float(np.nanmax(effect)))
-        shade = np.clip(0.5 + 0.5 * effect / span, 0.0, 1.0)
-        colours = cmap.map(np.nan_to_num(shade, nan=0.5), mode="qcolor")
+        # a county's sales: a seeded subsample beyond MAX_DRAWN, said in the title; one
+        # brush per region (the effect is the region's), not one per sale
+        keep = drawn_positions(len(east))
+        east, north, effect = east[keep], north[keep], effect[keep]
+        values, inverse = np.unique(np.nan_to_num(effect, nan=0.0), return_inverse=True)
+        shades = np.clip(0.5 + 0.5 * values / span, 0.0, 1.0)
+        brushes = [pg.mkBrush(c) for c in cmap.map(shades, mode="qcolor")]
         self.map_sales = pg.ScatterPlotItem(
-            x=east, y=north, size=6, pen=None, brush=[pg.mkBrush(c) for c in colours]
+            x=east, y=north, size=6, pen=None, brush=[brushes[k] for k in inverse]
         )
         plot.addItem(self.map_sales)
+        note = subsample_note(len(pts[0]))
         lat0, lon0 = self._map_origin
         for c in ra.centroids:
             x = (c.longitude - lon0) * KM_PER_DEGREE * math.cos(math.radians(lat0))
@@ -416,7 +424,7 @@ class RegionsView(QWidget):
             plot.addItem(text)
         plot.setTitle(
             "Sales coloured by their region's effect (blue lower, vermillion higher than "
-            f"{ra.term.reference}); labels at each region's centre"
+            f"{ra.term.reference}); labels at each region's centre" + (f"; {note}" if note else "")
         )
 
 

@@ -54,6 +54,22 @@ TITLES = {
 
 
 # --- the numbers behind the plots -------------------------------------------------------------
+def drawn_positions(n: int) -> np.ndarray:
+    """Positions of the points drawn out of ``n``: all, or a seeded random subsample of
+    :data:`MAX_DRAWN` beyond that (sorted, the same on every call)."""
+    if n <= MAX_DRAWN:
+        return np.arange(n)
+    rng = np.random.default_rng(SUBSAMPLE_SEED)
+    return np.sort(rng.choice(n, size=MAX_DRAWN, replace=False))
+
+
+def subsample_note(n: int) -> str | None:
+    """What a plot of ``n`` sales says when it draws a subsample, else None."""
+    if n <= MAX_DRAWN:
+        return None
+    return f"{MAX_DRAWN:,} of {n:,} sales drawn (a seeded random sample)"
+
+
 @dataclass(frozen=True, eq=False)
 class SalePoints:
     """One entry per sale in the sales table (imported rows), aligned arrays.
@@ -117,17 +133,10 @@ class SalePoints:
     def drawn(self) -> np.ndarray:
         """Positions of the sales drawn: all of them, or a seeded subsample beyond
         :data:`MAX_DRAWN` (sorted, the same on every call)."""
-        n = len(self.rows)
-        if n <= MAX_DRAWN:
-            return np.arange(n)
-        rng = np.random.default_rng(SUBSAMPLE_SEED)
-        return np.sort(rng.choice(n, size=MAX_DRAWN, replace=False))
+        return drawn_positions(len(self.rows))
 
     def subsample_note(self) -> str | None:
-        n = len(self.rows)
-        if n <= MAX_DRAWN:
-            return None
-        return f"{MAX_DRAWN:,} of {n:,} sales drawn (a seeded random sample)"
+        return subsample_note(len(self.rows))
 
 
 def _column(frame: pd.DataFrame, name: str | None, kind: str = "number") -> np.ndarray | None:
