@@ -141,12 +141,15 @@ class RolesView(QWidget):
         if sales is None:
             return header
         written = sales.examples.get(header, ())
-        values = sales.frame[header].dropna() if header in sales.frame.columns else ()
         if written and len(written) <= 2:
             return f"{header}   ({' / '.join(written)})"
         if written:
             return f"{header}   (e.g. {written[0]})"
-        return f"{header}   (e.g. {plain(values.iloc[0])})" if len(values) else header
+        if header not in sales.frame.columns:
+            return header
+        column = sales.frame[header]
+        first = column.first_valid_index()  # not dropna(): no copy of a county's column
+        return header if first is None else f"{header}   (e.g. {plain(column.loc[first])})"
 
     def role_map(self) -> RoleMap:
         """The map the drop-downs show now."""
