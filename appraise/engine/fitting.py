@@ -197,7 +197,7 @@ class FitResult:
         """Hat diagonal :math:`h_i = x_i'(X'X)^{-1}x_i` of the sales used."""
         if self.structure is not None:
             return self.structure.leverage()
-        return np.einsum("ij,jk,ik->i", self.X, self.xtx_inv, self.X)
+        return np.einsum("ij,ij->i", self.X @ self.xtx_inv, self.X)  # one BLAS product
 
     def references(self) -> dict[str, str]:
         """Reference level of each ``onehot`` feature."""
