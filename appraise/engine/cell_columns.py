@@ -90,6 +90,12 @@ def strip_texts(values: np.ndarray) -> np.ndarray:
 
 def missing_mask(values: np.ndarray) -> np.ndarray:
     """:func:`~appraise.engine.cells.is_missing` of every entry, plain texts tested at once."""
+    return _mask(values, lambda arr: _is(arr, _MARKERS, ignore_case=True), is_missing)
+
+
+def _mask(values: np.ndarray, on_texts, on_cell) -> np.ndarray:
+    """``on_texts`` on the plain texts at once, ``on_cell`` on each other entry; NaN of a
+    float column counts as True (missing and blank alike)."""
     if values.dtype.kind == "f":
         return np.isnan(values)
     values = np.asarray(values, dtype=object)
@@ -97,10 +103,10 @@ def missing_mask(values: np.ndarray) -> np.ndarray:
     decided = np.zeros(len(values), dtype=bool)
     at, arr, plain = _texts(values)
     if len(at):
-        out[at] = _is(arr, _MARKERS, ignore_case=True) & plain
+        out[at] = on_texts(arr) & plain
         decided[at] = plain
     rest = np.flatnonzero(~decided)
-    out[rest] = [is_missing(v) for v in values[rest]]
+    out[rest] = [on_cell(v) for v in values[rest]]
     return out
 
 
@@ -110,18 +116,7 @@ def _is_blank(v: object) -> bool:
 
 def blank_mask(values: np.ndarray) -> np.ndarray:
     """True where an entry holds nothing at all: None, NaN or only white space."""
-    if values.dtype.kind == "f":
-        return np.isnan(values)
-    values = np.asarray(values, dtype=object)
-    out = np.zeros(len(values), dtype=bool)
-    decided = np.zeros(len(values), dtype=bool)
-    at, arr, plain = _texts(values)
-    if len(at):
-        out[at] = _is(arr, "^" + _WS + "$") & plain
-        decided[at] = plain
-    rest = np.flatnonzero(~decided)
-    out[rest] = [_is_blank(v) for v in values[rest]]
-    return out
+    return _mask(values, lambda arr: _is(arr, "^" + _WS + "$"), _is_blank)
 
 
 def fast_numbers(values: np.ndarray, decimal: str = ".") -> tuple[np.ndarray, np.ndarray]:

@@ -98,6 +98,24 @@ def _note() -> QLabel:
     return label
 
 
+def _plot() -> pg.PlotWidget:
+    """A white plot with vertical grid lines, as every plot of the tab."""
+    plot = pg.PlotWidget()
+    plot.setBackground("w")
+    plot.showGrid(x=True, y=False, alpha=0.2)
+    return plot
+
+
+def _page(*items: tuple[QWidget, int]) -> QWidget:
+    """A page of the tab: the widgets one under the other with their stretch factors."""
+    page = QWidget()
+    lay = QVBoxLayout(page)
+    lay.setContentsMargins(0, 0, 0, 0)
+    for widget, stretch in items:
+        lay.addWidget(widget, stretch)
+    return page
+
+
 def _table() -> QTableWidget:
     t = QTableWidget()
     t.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
@@ -129,49 +147,19 @@ class RegionsView(QWidget):
         self.caution = QLabel(ONE_LINE_CAUTION)
         self.caution.setWordWrap(True)
 
-        self.forest = pg.PlotWidget()
-        self.forest.setBackground("w")
-        self.forest.showGrid(x=True, y=False, alpha=0.2)
-        self.effects = _table()
-        effects_page = QWidget()
-        lay = QVBoxLayout(effects_page)
-        lay.setContentsMargins(0, 0, 0, 0)
-        lay.addWidget(self.forest, 3)
-        lay.addWidget(self.effects, 2)
-        self.effects_note = _note()
-        lay.addWidget(self.effects_note)
+        self.forest, self.effects, self.effects_note = _plot(), _table(), _note()
+        effects_page = _page((self.forest, 3), (self.effects, 2), (self.effects_note, 0))
 
-        self.pairs = _table()
-        pairs_page = QWidget()
-        lay = QVBoxLayout(pairs_page)
-        lay.setContentsMargins(0, 0, 0, 0)
-        lay.addWidget(self.pairs, 1)
-        self.pairs_note = _note()
-        lay.addWidget(self.pairs_note)
-        self.slope_plot = pg.PlotWidget()
-        self.slope_plot.setBackground("w")
-        self.slope_plot.showGrid(x=True, y=False, alpha=0.2)
-        self.slopes = _table()
-        slopes_page = QWidget()
-        lay = QVBoxLayout(slopes_page)
-        lay.setContentsMargins(0, 0, 0, 0)
+        self.pairs, self.pairs_note = _table(), _note()
+        pairs_page = _page((self.pairs, 1), (self.pairs_note, 0))
+
+        self.slope_plot, self.slopes = _plot(), _table()
         self.slope_note = QLabel()
         self.slope_note.setWordWrap(True)
-        lay.addWidget(self.slope_note)
-        lay.addWidget(self.slope_plot, 3)
-        lay.addWidget(self.slopes, 2)
+        slopes_page = _page((self.slope_note, 0), (self.slope_plot, 3), (self.slopes, 2))
 
-        self.area_plot = pg.PlotWidget()
-        self.area_plot.setBackground("w")
-        self.area_plot.showGrid(x=True, y=False, alpha=0.2)
-        self.area_prices = _table()
-        area_page = QWidget()
-        lay = QVBoxLayout(area_page)
-        lay.setContentsMargins(0, 0, 0, 0)
-        lay.addWidget(self.area_plot, 3)
-        lay.addWidget(self.area_prices, 2)
-        self.area_note = _note()
-        lay.addWidget(self.area_note)
+        self.area_plot, self.area_prices, self.area_note = _plot(), _table(), _note()
+        area_page = _page((self.area_plot, 3), (self.area_prices, 2), (self.area_note, 0))
 
         self.strata = _table()
         self.warnings = QLabel()
