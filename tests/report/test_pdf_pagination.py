@@ -13,8 +13,6 @@ import pytest  # noqa: E402
 from pdf_text import page_texts  # noqa: E402
 from PySide6.QtCore import QSizeF  # noqa: E402
 
-from appraise import pipeline  # noqa: E402
-from appraise.engine.diagnostics import DiagnosticSettings  # noqa: E402
 from appraise.qtrender.pdf import (  # noqa: E402
     KEEP_ROWS,
     SHORT_TABLE_ROWS,
@@ -22,8 +20,6 @@ from appraise.qtrender.pdf import (  # noqa: E402
     write_pdf,
 )
 from appraise.report.content import Facts, Paragraph, Section, Table, Worksheet  # noqa: E402
-from appraise.report.worksheet import build_worksheet  # noqa: E402
-from appraise.resources import sample_dir  # noqa: E402
 
 WIDTH, HEIGHT = 600.0, 700.0
 
@@ -110,15 +106,8 @@ def test_headings_are_kept_with_what_follows():
 
 
 @pytest.fixture(scope="module")
-def sample_pdf(tmp_path_factory):
-    d = sample_dir()
-    run = pipeline.analyse(
-        pipeline.load(d / "ashcombe_sales.csv"),
-        pipeline.read_model(d / "ashcombe_model.toml"),
-        subject=d / "subject.json",
-        diagnostics=DiagnosticSettings(),
-    )
-    ws = build_worksheet(run.fit, run.valuation, diagnostics=run.diagnostics)
+def sample_pdf(tmp_path_factory, sample_analysis):
+    _, ws = sample_analysis
     path = tmp_path_factory.mktemp("pdf") / "w.pdf"
     write_pdf(ws, path, page_size="Letter")
     return ws, path

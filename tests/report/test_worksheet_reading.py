@@ -9,8 +9,6 @@ from html import unescape
 
 import pytest
 
-from appraise import pipeline
-from appraise.engine.diagnostics import DiagnosticSettings
 from appraise.engine.fitting import COEF_CI_LEVEL
 from appraise.report.content import Facts, Table
 from appraise.report.diagnostics_section import PRB_CI_LEVEL
@@ -18,24 +16,14 @@ from appraise.report.effects import coefficient_effects
 from appraise.report.html import render_html
 from appraise.report.labels import term_label
 from appraise.report.text import format_diagnostics, format_fit
-from appraise.report.worksheet import build_worksheet
-from appraise.resources import sample_dir
 
 SCIENTIFIC = re.compile(r"\b\d(?:\.\d+)?e[+-]\d{2,3}\b", re.IGNORECASE)
 """Python's exponent form (``1.2e-05``, ``7.5e+04``); hashes have no sign after an e."""
 
 
-@pytest.fixture(scope="module")
-def sample():
-    d = sample_dir()
-    run = pipeline.analyse(
-        pipeline.load(d / "ashcombe_sales.csv"),
-        pipeline.read_model(d / "ashcombe_model.toml"),
-        subject=d / "subject.json",
-        diagnostics=DiagnosticSettings(),
-    )
-    ws = build_worksheet(run.fit, run.valuation, diagnostics=run.diagnostics)
-    return run, ws
+@pytest.fixture
+def sample(sample_analysis):
+    return sample_analysis
 
 
 def _visible_text(ws) -> str:
