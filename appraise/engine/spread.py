@@ -47,6 +47,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -108,10 +109,16 @@ class SpreadModel:
     """Each sale's standardised leave-one-out error (NaN at leverage 1)."""
     design: DesignSpec | None = None
 
+    @cached_property
+    def sorted_scores(self) -> np.ndarray:
+        """The finite leave-one-out scores in increasing order, sorted once per fit (every
+        interval, of every subject and batch chunk, reads its multiplier from them)."""
+        return np.sort(self.loo_scores[np.isfinite(self.loo_scores)])
+
     def multiplier(self, level: float) -> float:
         """:math:`q_\\ell`: the :math:`\\lceil(n+1)\\ell\\rceil`-th smallest score (the
         largest when that rank exceeds the number of sales)."""
-        a = np.sort(self.loo_scores[np.isfinite(self.loo_scores)])
+        a = self.sorted_scores
         k = int(np.ceil((a.size + 1) * level))
         return float(a[min(k, a.size) - 1])
 
@@ -120,7 +127,7 @@ class SpreadModel:
         sale's own error never widens its own leave-one-out interval."""
         sc = self.loo_scores
         fin = np.isfinite(sc)
-        a = np.sort(sc[fin])
+        a = self.sorted_scores
         m = a.size - 1  # scores left when one sale is held out
         k = min(int(np.ceil((m + 1) * level)), m)  # rank among the others (1-based)
         rank = np.searchsorted(a, sc[fin], side="left")  # 0-based rank of the held-out sale
