@@ -283,19 +283,30 @@ class AbsorbedFit:
         level): :math:`x_0'Vx_0 = z_0'V_{ZZ}z_0 + 2z_0'V_{Z,j_0} + V_{j_0j_0}`; no dense
         indicator row is built.
         """
+        # Code -1 (the reference level: no indicator column) reads the padded last entry,
+        # zero. With A = Z_0 V_ZZ (one BLAS product) plus twice the gathered cross rows
+        # V_{j_0 Z}, x_0'Vx_0 is the row sum of A * Z_0 plus V_{j_0 j_0}. A classical V
+        # is s^2 (X'X)^{-1}: then one product serves both.
         col = self.col_of_level[np.asarray(codes0, dtype=np.intp)]
-        on = col >= 0
-        dcol = self.d_pos[col[on]]
-        zp = self.z_pos
+        zp, dp = self.z_pos, self.d_pos
         fitted = Z0 @ self.params[zp]
-        fitted[on] += self.params[dcol]
-        out = []
-        for V in (cov, self.xtx_inv):
-            q = np.einsum("ij,ij->i", Z0 @ V[np.ix_(zp, zp)], Z0)
-            cross = V[np.ix_(zp, dcol)]  # (k, rows in a level)
-            q[on] += 2.0 * np.einsum("ij,ji->i", Z0[on], cross) + V[dcol, dcol]
-            out.append(q)
-        return fitted, out[0], out[1]
+        fitted += np.append(self.params[dp], 0.0)[col]
+        lev = self._quadratic_form(self.xtx_inv, Z0, col)
+        if np.array_equal(cov, self.scale * self.xtx_inv):
+            return fitted, self.scale * lev, lev
+        return fitted, self._quadratic_form(cov, Z0, col), lev
+
+    def _quadratic_form(self, V: np.ndarray, Z0: np.ndarray, col: np.ndarray) -> np.ndarray:
+        """:math:`x_0'Vx_0` of each row (``col``: its indicator column, -1 for none)."""
+        zp, dp = self.z_pos, self.d_pos
+        cross2 = np.zeros((len(dp) + 1, len(zp)))
+        cross2[:-1] = 2.0 * V[np.ix_(dp, zp)]
+        v_dd = np.append(np.diag(V)[dp], 0.0)
+        a = Z0 @ V[np.ix_(zp, zp)]
+        a += np.take(cross2, col, axis=0)
+        q = np.einsum("ij,ij->i", a, Z0)
+        q += v_dd[col]
+        return q
 
     def dense_design(self, limit_bytes: float | None = None) -> np.ndarray:
         """The (n, p) dense design (only for consumers that need it; O(np) memory).

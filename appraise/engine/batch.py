@@ -28,9 +28,11 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from .cell_columns import fast_iso_dates, fast_numbers, missing_mask, parse_rest, strip_texts
-from .cells import clean_text, parse_date, parse_flag, parse_number
+from .cells import MISSING_MARKERS, clean_text, is_missing, parse_date, parse_flag, parse_number
 from .design import level_label
 from .errors import DataError, SubjectError
 from .fitting import FitResult
@@ -256,10 +258,62 @@ def _typed_column(
     return None
 
 
-def _clean_ids(values: np.ndarray) -> pd.Series:
-    """Ids as text, as the sales' id column is cleaned: stripped; missing markers None."""
-    texts, _ = _clean_column(values, "text", ImportSettings(), "id")
-    return pd.Series(texts, dtype=object)
+_MARKER_SET = pa.array(sorted(MISSING_MARKERS), type=pa.large_string())
+
+
+def _arrow_strings(series: pd.Series) -> pa.Array | pa.ChunkedArray | None:
+    """The column's Arrow string array when pandas holds it in Arrow (pandas' ``str``
+    dtype, or an Arrow string dtype), without a copy; None for any other column."""
+    dtype = series.dtype
+    if isinstance(dtype, pd.StringDtype) and dtype.storage == "pyarrow":
+        pass
+    elif not (
+        isinstance(dtype, pd.ArrowDtype)
+        and (
+            pa.types.is_string(dtype.pyarrow_dtype) or pa.types.is_large_string(dtype.pyarrow_dtype)
+        )
+    ):
+        return None
+    arr = pa.array(series.array)
+    return arr if pa.types.is_large_string(arr.type) else pc.cast(arr, pa.large_string())
+
+
+def _arrow_texts(series: pd.Series) -> pd.Series | None:
+    """A text column held in Arrow cleaned in Arrow, as :func:`_clean_column` reads text:
+    each cell stripped, a missing marker or null None (None: not an Arrow text column).
+
+    A cell of printable ASCII only (white space in it can only be the space) is decided
+    at once: stripped of spaces, a marker when its lower-cased form is in
+    :data:`~.cells.MISSING_MARKERS`. Any other cell (a tab, a line break, a letter
+    beyond ASCII) takes Python's ``str.strip`` and :func:`~.cells.is_missing`, so the
+    rule is the per-cell one everywhere.
+    """
+    arr = _arrow_strings(series)
+    if arr is None:
+        return None
+    plain = pc.fill_null(pc.ascii_is_printable(arr), True)  # a null is decided: missing
+    trimmed = pc.utf8_trim(arr, " ")
+    marker = pc.fill_null(pc.is_in(pc.ascii_lower(trimmed), value_set=_MARKER_SET), True)
+    out = pc.if_else(pc.and_(plain, marker), pa.scalar(None, pa.large_string()), trimmed)
+    rest = np.flatnonzero(~plain.to_numpy(zero_copy_only=False))
+    if rest.size:
+        cells = out.to_numpy(zero_copy_only=False).astype(object)
+        cells[rest] = [None if is_missing(v) else v.strip() for v in arr.take(rest).to_pylist()]
+        out = pa.array(cells, type=pa.large_string())
+    return pd.Series(out, dtype=series.dtype, index=pd.RangeIndex(len(series)))
+
+
+def _clean_ids(raw: pd.DataFrame, plan: ColumnPlan, frame: pd.DataFrame) -> pd.Series:
+    """Ids as text, as the sales' id column is cleaned: stripped; missing markers None
+    (the cleaned column itself when the id header lands on a text column)."""
+    landed = next((c for h, c, k in plan.landing if h == plan.id_header and k == "text"), None)
+    if landed is not None:
+        return frame[landed]
+    texts = _arrow_texts(raw[plan.id_header])
+    if texts is not None:
+        return texts
+    cells, _ = _clean_column(_as_objects(raw[plan.id_header]), "text", ImportSettings(), "id")
+    return pd.Series(cells, dtype=object)
 
 
 def _prefix(why: np.ndarray, header: str) -> np.ndarray:
@@ -300,6 +354,9 @@ def clean_chunk(
         typed = _typed_column(raw[header], kind, header)
         if typed is not None:
             clean, why = typed
+        elif kind == "text" and (texts := _arrow_texts(raw[header])) is not None:
+            data[column] = texts
+            continue
         elif kind is None:
             data[column] = _as_objects(raw[header])
             continue
@@ -452,10 +509,10 @@ def value_chunk(
     mlo, mhi = pred.interval(level, kind="mean")
     rows = np.arange(first_row, first_row + n, dtype=np.int64)
     if plan.id_header is not None:
-        ids = _clean_ids(_as_objects(raw[plan.id_header]))
+        ids = _clean_ids(raw, plan, frame).array
     else:
-        ids = pd.Series(rows.astype(str), dtype=object)
-    out = {"row": rows, "id": ids.to_numpy(dtype=object)}
+        ids = rows.astype(str).astype(object)
+    out = {"row": rows, "id": ids}
     out["estimate"] = estimate
     if fit.spec.response == "log":
         out["median"] = np.where(ok, pred.median, np.nan)
