@@ -817,7 +817,10 @@ def _indicators(t: _Term, labels: np.ndarray) -> np.ndarray:
 
 def _level_codes(t: _Term, labels: np.ndarray) -> np.ndarray:
     """Index of each row's level in ``t.levels``; -1 where missing or not learned."""
-    return pd.Index(list(t.levels), dtype=object).get_indexer(labels).astype(np.intp)
+    # the labels as an object Index: left raw, pandas would first infer (and convert to)
+    # its text dtype, four times the lookup itself
+    known = pd.Index(list(t.levels), dtype=object)
+    return known.get_indexer(pd.Index(labels, dtype=object)).astype(np.intp)
 
 
 __all__ = [
