@@ -82,7 +82,11 @@ def strip_texts(values: np.ndarray) -> np.ndarray:
     plain = pc.match_substring_regex(arr, _PLAIN_ASCII).to_numpy(zero_copy_only=False)
     plain = plain.astype(bool)
     trimmed = pc.utf8_trim(arr, " \t\n\v\f\r")
-    out[:] = trimmed.to_numpy(zero_copy_only=False)
+    out[:] = values  # a text with nothing to trim stays the same object (no copy of it)
+    cut = pc.not_equal(pc.binary_length(trimmed), pc.binary_length(arr))
+    cut = cut.to_numpy(zero_copy_only=False).astype(bool) & plain
+    if cut.any():
+        out[cut] = trimmed.filter(pa.array(cut)).to_numpy(zero_copy_only=False)
     rest = np.flatnonzero(~plain)
     out[rest] = [v.strip() for v in values[rest]]
     return out

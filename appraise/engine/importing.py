@@ -18,9 +18,6 @@ Row numbers are file rows as a spreadsheet shows them: the header is row 1.
 
 from __future__ import annotations
 
-import codecs
-import csv
-import hashlib
 import io
 import re
 import zipfile
@@ -28,6 +25,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from functools import partial
 from pathlib import Path
+from typing import BinaryIO
 
 import numpy as np
 import pandas as pd
@@ -41,6 +39,10 @@ from .cells import (
     parse_flag,
     parse_number,
 )
+from .coded_cells import CodedCells
+from .csv_reading import DELIMITERS as DELIMITERS  # re-exported: part of this module's API
+from .csv_reading import CsvScan, file_sha256, read_csv_cells, scan_csv
+from .csv_reading import sniff_delimiter as sniff_delimiter
 from .errors import DataError, RoleError
 from .limits import check_parquet, check_xlsx
 from .plausibility import DEFAULT_RULES, PlausibilityRules, RowChecks, decide_decimal_mark
@@ -62,9 +64,6 @@ FORMATS: dict[str, str] = {
 }
 """File suffix -> format read."""
 
-DELIMITERS: tuple[str, ...] = (",", ";", "\t", "|")
-"""Delimiters a CSV file may use, in order of preference when the evidence ties."""
-
 UNIT_TEXT: dict[str, str] = {"ft2": "ft²", "m2": "m²"}
 FIRST_DATA_ROW = 2  # the header is row 1
 _NOTE_EXAMPLES = 8  # bad cells listed per column in a note before "and N more"
@@ -83,7 +82,7 @@ class RawTable:
     """
 
     headers: list[object]
-    columns: list[list[object] | np.ndarray]  # an array: a typed Parquet number column
+    columns: list[list[object] | np.ndarray | CodedCells]  # array: typed Parquet numbers
     fmt: str
     notes: list[str] = field(default_factory=list)
     long_rows: dict[int, int] = field(default_factory=dict)  # position -> values in the row
@@ -118,149 +117,29 @@ def _trim_trailing_blank_rows(rows: list[Sequence[object]], notes: list[str]) ->
         notes.append(f"{k} blank row{'s' if k > 1 else ''} after the last sale ignored")
 
 
-def _decode(data: bytes, notes: list[str]) -> str:
-    """Text of a CSV file: UTF-8 (with or without BOM), UTF-16 with BOM, else Windows-1252."""
-    if data.startswith(codecs.BOM_UTF8):
-        data = data[len(codecs.BOM_UTF8) :]
-    elif data.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
-        notes.append("file is UTF-16 text")
-        return data.decode("utf-16")
-    try:
-        return data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        first_bad = exc.start
-    try:
-        text = data.decode("cp1252")
-        notes.append(f"file is not UTF-8 (byte {first_bad}); read as Windows-1252 (cp1252) text")
-    except UnicodeDecodeError:
-        text = data.decode("latin-1")
-        notes.append(f"file is not UTF-8 (byte {first_bad}); read as Latin-1 text")
-    return text
+def _read_csv(path: Path, data: bytes | None, progress: Progress | None = None) -> RawTable:
+    """A CSV file's cells, streamed from ``path`` (or read from ``data`` when given)."""
+    opener = _opener(path, data)
+    scan = scan_csv(opener, str(path))
+    return _csv_table(path, opener, scan, progress)
 
 
-def sniff_delimiter(text: str, candidates: Sequence[str] = DELIMITERS) -> str:
-    """The delimiter that splits the first rows most consistently.
-
-    For each candidate the first 50 non-blank records are split (quotes
-    respected); the winner has the largest share of rows with the header's
-    number of fields, then the most fields. A candidate that leaves the
-    header in one piece never wins. Falls back to ``","``.
-    """
-    sample = text[:65536]
-    best: tuple[float, int] | None = None
-    chosen = ","
-    for d in candidates:
-        try:
-            rows = [r for r in csv.reader(io.StringIO(sample), delimiter=d) if any(r)][:50]
-        except csv.Error:
-            continue
-        if not rows or len(rows[0]) < 2:
-            continue
-        width = len(rows[0])
-        body = rows[1:-1] if len(rows) > 2 else rows[1:]  # the last sampled row may be cut
-        agree = sum(len(r) == width for r in body) / len(body) if body else 1.0
-        score = (agree, width)
-        if best is None or score > best:
-            best, chosen = score, d
-    return chosen
+def _opener(path: Path, data: bytes | None) -> Callable[[], BinaryIO]:
+    if data is not None:
+        return lambda: io.BytesIO(data)
+    return lambda: open(path, "rb")  # noqa: SIM115 - the readers close it
 
 
-_DELIMITER_NAMES = {",": "commas", ";": "semicolons", "\t": "tabs", "|": "vertical bars"}
+def _csv_table(
+    path: Path, opener: Callable[[], BinaryIO], scan: CsvScan, progress: Progress | None
+) -> RawTable:
+    step = progress or _no_progress
 
+    def reading(fraction: float, rows: int) -> None:
+        step(0.05 + 0.25 * min(fraction, 1.0), f"reading rows ({rows:,} so far)")
 
-def _read_csv(path: Path, data: bytes) -> RawTable:
-    notes: list[str] = []
-    text = _decode(data, notes)
-    if not text.strip():
-        raise DataError("the file is empty", file=str(path))
-    delimiter = sniff_delimiter(text)
-    if delimiter != ",":
-        notes.append(f"values separated by {_DELIMITER_NAMES[delimiter]}")
-    fast = _read_csv_columns(text, delimiter)
-    if fast is not None:
-        header, columns, trailing = fast
-        if trailing:
-            k = trailing
-            notes.append(f"{k} blank row{'s' if k > 1 else ''} after the last sale ignored")
-        return RawTable(header, columns, "csv", notes, {})
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
-    try:
-        rows = list(reader)
-    except csv.Error as exc:
-        raise DataError(
-            f"cannot read the CSV: {exc}", file=str(path), row=reader.line_num
-        ) from None
-    _trim_trailing_blank_rows(rows, notes)
-    if not rows:
-        raise DataError(
-            "the file holds only delimiters and blank lines: no header, no sales", file=str(path)
-        )
-    header, body = rows[0], rows[1:]
-    width = len(header)
-    long_rows = {}
-    for i, row in enumerate(body):
-        if len(row) > width:
-            if any(v.strip() for v in row[width:]):
-                long_rows[i] = len(row)
-            else:
-                body[i] = row[:width]
-    return RawTable(list(header), _columns_from_rows(body, width, ""), "csv", notes, long_rows)
-
-
-def _read_csv_columns(text: str, delimiter: str) -> tuple[list[str], list, int] | None:
-    """The cells of a regular CSV file read by pandas' C parser, column by column.
-
-    Returns ``(header, columns, trailing blank rows dropped)``, or None when the file is
-    not one this path reads exactly as :mod:`csv` does: a row longer than the header, a
-    quoting the C parser refuses, a NUL character, nothing but blank rows. The caller
-    then reads it row by row. Short rows are padded with ``""`` and a blank line is a row
-    of ``""``, as the row-by-row reader gives them.
-    """
-    if "\x00" in text:
-        return None
-    try:
-        frame = pd.read_csv(
-            io.StringIO(text),
-            sep=delimiter,
-            header=None,
-            dtype=object,
-            na_filter=False,
-            keep_default_na=False,
-            skip_blank_lines=False,
-            engine="c",
-            quotechar='"',
-            doublequote=True,
-            skipinitialspace=False,
-            low_memory=False,
-        )
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError, csv.Error):
-        return None
-    if frame.shape[0] < 2:
-        return None
-    cells = [frame[c].to_numpy(dtype=object) for c in frame.columns]
-    cells = [np.where(pd.isna(col), "", col).astype(object) for col in cells]
-    last = _last_filled_row(cells, frame.shape[0])
-    if last <= 0:
-        return None  # a header and blank rows only: the row-by-row reader says why
-    header = [str(v) for v in (col[0] for col in cells)]
-    columns = [col[1 : last + 1] for col in cells]
-    return header, columns, frame.shape[0] - 1 - last
-
-
-def _last_filled_row(cells: list[np.ndarray], n: int) -> int:
-    """Position of the last row holding anything but white space (-1: none), looking at
-    the end of the file first (blank rows, when there are any, trail the sales)."""
-    tail = 64
-    while True:
-        lo = max(n - tail, 0)
-        filled = np.zeros(n - lo, dtype=bool)
-        for col in cells:
-            filled |= ~blank_mask(col[lo:])
-        if filled.any():
-            return lo + int(np.flatnonzero(filled)[-1])
-        if lo == 0:
-            return -1
-        tail *= 16
+    cells = read_csv_cells(opener, scan, str(path), reading)
+    return RawTable(cells.header, cells.columns, "csv", cells.notes, cells.long_rows)
 
 
 def _read_xlsx(path: Path, sheet: str | int) -> RawTable:
@@ -397,13 +276,17 @@ class _Distinct:
     array: np.ndarray  # ``uniques`` as an array (object, or float for a typed float column)
 
     @classmethod
-    def of(cls, values: Sequence[object] | np.ndarray) -> _Distinct:
-        if isinstance(values, np.ndarray) and values.dtype.kind in "fiu":
-            cells = values  # a typed Parquet column: hashed as numbers, NaN the sentinel
+    def of(cls, values: Sequence[object] | np.ndarray | CodedCells) -> _Distinct:
+        if isinstance(values, CodedCells):
+            codes, uniques = values.factorized()  # a CSV column: already coded
         else:
-            cells = np.empty(len(values), dtype=object)
-            cells[:] = values
-        codes, uniques = pd.factorize(cells, use_na_sentinel=True)
+            if isinstance(values, np.ndarray) and values.dtype.kind in "fiu":
+                cells = values  # a typed Parquet column: hashed as numbers, NaN the sentinel
+            else:
+                cells = np.empty(len(values), dtype=object)
+                cells[:] = values
+            codes, uniques = pd.factorize(cells, use_na_sentinel=True)
+        codes = codes.astype(np.int32)  # half the memory of the platform integer
         uniques = np.asarray(uniques)
         k = len(uniques)
         # factorize numbers the distinct values by first appearance: a code's first cell
@@ -677,13 +560,20 @@ def _clean_column(
 # --- the whole file ------------------------------------------------------------------
 
 
-def read_raw_table(path: Path, data: bytes, fmt: str, settings: ImportSettings) -> RawTable:
+def read_raw_table(
+    path: Path,
+    data: bytes | None,
+    fmt: str,
+    settings: ImportSettings,
+    progress: Progress | None = None,
+) -> RawTable:
     """The cells of a file of format ``fmt`` ("csv", "xlsx", "parquet"), not yet cleaned.
 
-    ``data`` is the file's bytes (only CSV uses them; the others reopen ``path``).
+    ``data`` is the file's bytes when they are already read (only CSV uses them; the
+    others reopen ``path``); None streams a CSV file from ``path`` in chunks.
     """
     if fmt == "csv":
-        return _read_csv(path, data)
+        return _read_csv(path, data, progress)
     if fmt == "xlsx":
         return _read_xlsx(path, settings.sheet)
     return _read_parquet(path)
@@ -702,12 +592,17 @@ def format_of(path: Path) -> str:
     return fmt
 
 
-def read_file_bytes(path: Path) -> bytes:
-    """The bytes of ``path``; DataError when missing, not a file or unreadable."""
+def _check_readable(path: Path) -> None:
+    """DataError when ``path`` is missing or not a file."""
     if not path.exists():
         raise DataError("file not found", file=str(path))
     if not path.is_file():
         raise DataError("not a file", file=str(path))
+
+
+def read_file_bytes(path: Path) -> bytes:
+    """The bytes of ``path``; DataError when missing, not a file or unreadable."""
+    _check_readable(path)
     try:
         return path.read_bytes()
     except OSError as exc:
@@ -773,12 +668,27 @@ def load_sales(
     p = Path(path)
     fmt = format_of(p)
     step(0.0, f"reading {p.name}")
-    data = read_file_bytes(p)
     file = str(path)
-    if not data:
+    _check_readable(p)
+    opener = _opener(p, None)
+    try:
+        if fmt == "csv":
+            scan = scan_csv(opener, file)
+            sha256, size = scan.sha256, scan.size
+        else:
+            sha256, size = file_sha256(opener)
+    except OSError as exc:
+        raise DataError(f"cannot read the file: {exc.strerror}", file=file) from None
+    if not size:
         raise DataError("the file is empty", file=file)
     step(0.05, f"parsing {fmt.upper()}")
-    raw = read_raw_table(p, data, fmt, settings)
+    try:
+        if fmt == "csv":
+            raw = _csv_table(p, opener, scan, progress)
+        else:
+            raw = read_raw_table(p, None, fmt, settings, progress)
+    except OSError as exc:
+        raise DataError(f"cannot read the file: {exc.strerror}", file=file) from None
     if raw.n_rows == 0:
         raise DataError("the file has a header but no rows of sales", file=file)
     headers, header_notes = clean_headers(raw.headers)
@@ -831,13 +741,15 @@ def load_sales(
         used[e.row - FIRST_DATA_ROW] = False
     notes += _column_notes(headers, role_map, cleaned, used, settings)
 
-    frame = pd.DataFrame(
-        {name: _series(cleaned[name], used) for name in headers}
-        | {ROW_COLUMN: np.flatnonzero(used).astype(np.int64) + FIRST_DATA_ROW}
-    )
-    source = SourceInfo(
-        path=file, sha256=hashlib.sha256(data).hexdigest(), format=fmt, rows_in_file=n
-    )
+    examples = _raw_examples(headers, raw.columns)
+    del raw, checks  # the cells as read are no longer needed: let them go before the frame
+    columns = {}
+    for name in headers:  # each cleaned column let go once its used rows are taken
+        columns[name] = _series(cleaned.pop(name), used)
+    columns[ROW_COLUMN] = np.flatnonzero(used).astype(np.int64) + FIRST_DATA_ROW
+    frame = pd.DataFrame(columns, copy=False)
+    del columns
+    source = SourceInfo(path=file, sha256=sha256, format=fmt, rows_in_file=n)
     step(1.0, "done")
     return SalesTable(
         frame=frame,
@@ -846,7 +758,7 @@ def load_sales(
         source=source,
         area_unit=settings.area_unit,
         notes=tuple(notes),
-        examples=_raw_examples(headers, raw.columns),
+        examples=examples,
         role_guesses=tuple(g for g in guesses if role_map.column(g.role) == g.column),
     )
 
@@ -969,12 +881,20 @@ def _exclusions(
     if id_col is not None:
         # an id seen again among the rows still open, in file order (hashed by pandas)
         at = np.flatnonzero(open_rows & ~cleaned[id_col].missing)
-        keys = pd.Series(ids[at], dtype=object).map(str)
-        again = keys.duplicated(keep="first").to_numpy()
+        codes, uniques = pd.factorize(ids[at])  # each distinct id hashed once
+        texts = np.array([u if type(u) is str else str(u) for u in uniques], dtype=object)
+        same, keys = pd.factorize(texts)  # ids that print the same are the same id
+        key = same[codes]
+        _, first = np.unique(key, return_index=True)  # each id's first open row
+        again = np.ones(len(at), dtype=bool)
+        again[first] = False
         repeats = np.zeros(n, dtype=bool)
         repeats[at[again]] = True
-        firsts = ~again & keys.isin(set(keys[again])).to_numpy()
-        first_of_id = dict(zip(keys[firsts], at[firsts] + FIRST_DATA_ROW, strict=True))
+        seen_again = np.bincount(key, minlength=len(keys)) > 1
+        shown = first[seen_again[key[first]]]  # first rows of the ids that come again
+        first_of_id = dict(
+            zip(keys[key[shown]].astype(str), (at[shown] + FIRST_DATA_ROW).tolist(), strict=True)
+        )
         take(
             repeats,
             lambda i: (

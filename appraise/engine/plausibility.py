@@ -49,6 +49,7 @@ import pandas as pd
 
 from .cell_columns import fast_numbers
 from .cells import clean_text, parse_number
+from .coded_cells import CodedCells
 
 
 @dataclass(frozen=True)
@@ -264,9 +265,12 @@ class DecimalDecision:
 def _distinct_texts(cells: Sequence[object]) -> dict[str, int]:
     """Each distinct text cell holding a separator, with its count, in order of first
     appearance (cells are hashed once by pandas; only distinct texts are searched)."""
-    values = np.empty(len(cells), dtype=object)
-    values[:] = cells
-    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    if isinstance(cells, CodedCells):
+        codes, uniques = cells.factorized()
+    else:
+        values = np.empty(len(cells), dtype=object)
+        values[:] = cells
+        codes, uniques = pd.factorize(values, use_na_sentinel=True)
     counts = np.bincount(codes[codes >= 0], minlength=len(uniques))
     return {
         u: int(c)

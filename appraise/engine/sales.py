@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import heapq
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
@@ -137,6 +138,22 @@ def column_kind(series: pd.Series) -> str:
     return "text"
 
 
+def _most_frequent(counts: pd.Series, k: int) -> list[tuple[object, int]]:
+    """The ``k`` most frequent values, most frequent first, ties in the order of the value.
+
+    Only the values that can be among the first ``k`` are sorted in Python: those counted
+    more often than the ``k``-th count, and the smallest few of those counted exactly as
+    often (a column of two million different ids sorts ``k`` values, not two million).
+    """
+    values = counts.to_numpy()
+    if len(values) > k:
+        kth = np.partition(values, len(values) - k)[len(values) - k]
+        above = counts[values > kth]
+        ties = heapq.nsmallest(k - len(above), counts.index[values == kth])
+        counts = pd.concat([above, counts[ties]])
+    return sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))[:k]
+
+
 def summarize_column(
     series: pd.Series, name: str, role: str | None = None, max_levels: int = 20
 ) -> ColumnSummary:
@@ -157,6 +174,5 @@ def summarize_column(
             return ColumnSummary(name, role, kind, count, missing)
         return ColumnSummary(name, role, kind, count, missing, present.min(), present.max())
     counts = present.astype(str).value_counts(sort=False)
-    ordered = sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
-    levels = tuple((str(k), int(v)) for k, v in ordered[:max_levels])
+    levels = tuple((str(k), int(v)) for k, v in _most_frequent(counts, max_levels))
     return ColumnSummary(name, role, kind, count, missing, levels=levels, distinct=int(len(counts)))

@@ -17,7 +17,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from pandas.testing import assert_frame_equal
 
-from appraise.engine import importing
+from appraise.engine import csv_reading, importing
 from appraise.engine.cells import is_missing
 
 SAMPLE = Path(__file__).resolve().parents[2] / "sample_data"
@@ -46,7 +46,7 @@ def _per_cell_blank(values):
 def _reference(monkeypatch, path: Path, **kw):
     """load_sales with every fast path switched off: the row-by-row, per-cell reading."""
     with monkeypatch.context() as m:
-        m.setattr(importing, "_read_csv_columns", lambda text, delimiter: None)
+        m.setattr(csv_reading, "_read_csv_columns", lambda *args: None)
         m.setattr(importing, "fast_numbers", _nothing_decided)
         m.setattr(importing, "fast_iso_dates", _no_dates_decided)
         m.setattr(importing, "missing_mask", lambda v: np.array([is_missing(x) for x in v], bool))
@@ -203,6 +203,134 @@ def test_typed_parquet_reads_as_the_cells_would(monkeypatch, tmp_path):
 def test_a_long_row_is_read_row_by_row(tmp_path):
     path = tmp_path / "long.csv"
     path.write_text('Sale ID,Sale Price\nA,"$1,000"\nB,2000,extra\n', encoding="utf-8")
-    assert importing._read_csv_columns(path.read_text(), ",") is None
+    opener = lambda: open(path, "rb")  # noqa: E731, SIM115
+    scan = csv_reading.scan_csv(opener, str(path))
+    assert csv_reading._read_csv_columns(opener, scan, ",", lambda f, r: None) is None
     table = importing.load_sales(path)
     assert [e.reason.split(":")[0] for e in table.excluded] == ["too many values"]
+
+
+# --- reading in chunks -----------------------------------------------------------------
+# The file is parsed and coded CHUNK_ROWS rows at a time (appraise/engine/csv_reading.py).
+# The reference is the same file read in one chunk: cutting it anywhere changes nothing,
+# on the C parser's path and on the row-by-row path alike.
+
+
+def _in_chunks(monkeypatch, path: Path, rows: int, *, row_by_row: bool = False):
+    with monkeypatch.context() as m:
+        m.setattr(csv_reading, "CHUNK_ROWS", rows)
+        if row_by_row:
+            m.setattr(csv_reading, "_read_csv_columns", lambda *args: None)
+        return importing.load_sales(path)
+
+
+@settings(
+    max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(exports(), st.integers(1, 4))
+def test_chunks_of_any_size_read_the_same(monkeypatch, tmp_path, text, rows):
+    path = tmp_path / "export.csv"
+    path.write_text(text, encoding="utf-8")
+    try:
+        whole = importing.load_sales(path)
+    except importing.DataError as exc:
+        for row_by_row in (False, True):
+            with pytest.raises(type(exc)) as cut:
+                _in_chunks(monkeypatch, path, rows, row_by_row=row_by_row)
+            assert str(cut.value) == str(exc)
+        return
+    _same(_in_chunks(monkeypatch, path, rows), whole)
+    _same(_in_chunks(monkeypatch, path, rows, row_by_row=True), whole)
+
+
+def test_a_long_row_after_the_first_chunks_is_found(monkeypatch, tmp_path):
+    lines = ["Sale ID,Sale Price"] + [f"S-{i},{300000 + i}" for i in range(50)]
+    lines[41] += ",extra"  # file row 42: one value too many, in the ninth chunk of five rows
+    path = tmp_path / "late.csv"
+    path.write_text("\n".join(lines) + "\n\n\n", encoding="utf-8")
+    table = _in_chunks(monkeypatch, path, 5)
+    assert [(e.row, e.reason.split(":")[0]) for e in table.excluded] == [(42, "too many values")]
+    assert table.n_used == 49
+    assert "2 blank rows after the last sale ignored" in table.notes
+
+
+def test_the_first_bad_byte_is_found_however_the_file_is_cut(monkeypatch, tmp_path):
+    body = "".join(f"S-{i},{300000 + i},Old Mill\n" for i in range(3000))
+    data = ("\ufeffSale ID,Sale Price,Neighbourhood\n" + body).encode("utf-8")
+    data += "S-x,310000,Caf\xe9 Row\n".encode("cp1252")  # one Windows-1252 byte near the end
+    path = tmp_path / "mixed.csv"
+    path.write_bytes(data)
+    try:  # the reference: Python's own codec on the bytes after the byte-order mark
+        data[3:].decode("utf-8")
+    except UnicodeDecodeError as exc:
+        expected = exc.start
+    for block in (7, 4096, 1 << 22):  # scanning blocks smaller than a row, and the default
+        with monkeypatch.context() as m:
+            m.setattr(csv_reading, "_BLOCK", block)
+            table = importing.load_sales(path)
+        assert f"file is not UTF-8 (byte {expected}); read as Windows-1252 (cp1252) text" in (
+            table.notes
+        )
+        assert table.frame["Neighbourhood"].iloc[-1] == "Caf\xe9 Row"
+        assert table.n_used == 3001
+
+
+def test_utf16_files_stream_too(tmp_path):
+    text = "Sale ID,Sale Price\n" + "".join(f"S-{i},{300000 + i}\n" for i in range(500))
+    path = tmp_path / "wide.csv"
+    path.write_bytes(text.encode("utf-16"))  # with its byte-order mark
+    table = importing.load_sales(path)
+    assert "file is UTF-16 text" in table.notes
+    assert table.n_used == 500 and table.frame["Sale Price"].iloc[-1] == 300499
+
+
+def test_reading_reports_progress_as_the_bytes_are_read(monkeypatch, tmp_path):
+    path = tmp_path / "sales.csv"
+    path.write_text(
+        "Sale ID,Sale Price\n" + "".join(f"S-{i},{300000 + i}\n" for i in range(1000)),
+        encoding="utf-8",
+    )
+    seen: list[tuple[float, str]] = []
+    with monkeypatch.context() as m:
+        m.setattr(csv_reading, "CHUNK_ROWS", 100)
+        importing.load_sales(path, progress=lambda f, msg: seen.append((f, msg)))
+    reading = [(f, msg) for f, msg in seen if msg.startswith("reading rows")]
+    assert len(reading) >= 10  # one report a chunk
+    fractions = [f for f, _ in seen]
+    assert fractions == sorted(fractions) and fractions[-1] == 1.0
+    assert reading[-1][1] == "reading rows (1,000 so far)"
+
+
+def test_memory_is_set_by_a_chunk_not_by_the_file(monkeypatch, tmp_path):
+    """A 25 MiB file (200,000 rows, long remarks): a reader that holds the file's bytes
+    or its decoded text passes 40 MiB; streamed and coded a chunk at a time the whole read
+    stays under 30 MiB (16 MiB when this test was written)."""
+    import tracemalloc
+
+    rng = np.random.default_rng(11)
+    n = 200_000
+    frame = pd.DataFrame(
+        {
+            "Sale ID": [f"S-{i % 5000}" for i in range(n)],  # repeated: no duplicate checks
+            "Sale Price": rng.choice(["$412,500", "$388,000", "299000"], n),
+            "Sale Date": rng.choice(["2024-03-05", "2025-01-20"], n),
+            "Living Area": rng.choice(["1,850", "2,100", "1,400 sq ft"], n),
+            "Neighbourhood": rng.choice(["Old Mill", "Heronmoor"], n),
+            "Notes": rng.choice(
+                ["seller to leave white goods, garden shed and the workshop lathe; " * 3, ""], n
+            ),
+        }
+    )
+    path = tmp_path / "big.csv"
+    frame.to_csv(path, index=False)
+    with monkeypatch.context() as m:
+        m.setattr(csv_reading, "CHUNK_ROWS", 10_000)
+        tracemalloc.start()
+        try:
+            raw = importing._read_csv(path, None)
+            _, peak = tracemalloc.get_traced_memory()
+        finally:
+            tracemalloc.stop()
+    assert raw.n_rows == n and path.stat().st_size > 25 * 2**20
+    assert all(isinstance(c, importing.CodedCells) for c in raw.columns)
+    assert peak < 30 * 2**20, f"reading peaked at {peak / 2**20:.1f} MiB"
