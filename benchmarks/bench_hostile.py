@@ -18,6 +18,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "tests" / "engine"))
 
 import hostile_files  # noqa: E402
+from bench_import import make_export  # noqa: E402
 
 SAMPLE = ROOT / "sample_data" / "ashcombe_sales.csv"
 
@@ -57,6 +58,8 @@ def main() -> None:
         chain += [f'c{k} = "c{k - 1} + 1"' for k in range(1, 351)]
         deep = d / "deep.json"
         deep.write_text('{"a": ' + "[" * 100_000 + "]" * 100_000 + "}", encoding="utf-8")
+        big = d / "big.csv"
+        make_export(big, 2_000_000)  # the messy listing export of bench_import.py, 137 MB
         tiny = d / "tiny.csv"
         tiny.write_text("id,price\na,300000\nb,310000\n", encoding="utf-8")
         cases = [
@@ -66,6 +69,7 @@ def main() -> None:
             ("XLSX, one cell at XFD1048576", ["data", str(hostile_files.far_cell_xlsx(d / "far.xlsx", honest_dimension=False))]),
             ("XLSX, 10,000,000 rows of sheet XML", ["data", str(hostile_files.many_rows_xlsx(d / "rows.xlsx", 10_000_000))]),
             ("XLSX zip bomb, 600 MiB unzipped", ["data", str(hostile_files.zip_bomb_xlsx(d / "bomb.xlsx", 600))]),
+            ("CSV, 2,000,000 rows (messy export)", ["data", str(big)]),
             ("subject JSON nested 100,000 deep", ["value", str(SAMPLE), "-m", str(ROOT / "sample_data" / "ashcombe_model.toml"), "-s", str(deep)]),
         ]  # fmt: skip
         print(f"{'case':40} {'exit':>4} {'seconds':>8} {'peak MiB':>9}  last line")

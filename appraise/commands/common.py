@@ -12,6 +12,7 @@ from ..engine.jsonable import to_jsonable
 from ..engine.modelspec import ModelSpec
 from ..engine.settings import ImportSettings
 from ..report.cautions import ONE_LINE_CAUTION
+from ..report.safe_text import terminal_text
 
 SHORT_CAUTION = ONE_LINE_CAUTION  # the one wording the CLI, PDF footer and app share
 
@@ -119,9 +120,44 @@ def load_sales_from_args(args: argparse.Namespace):
     wf = workfile_from_args(args)
     if wf is not None:
         return wf[1].sales
-    return pipeline.load(
-        args.sales, import_settings(args), getattr(args, "roles", None), rules=rules_from_args(args)
-    )
+    bar, progress = _reading_bar(args.sales)
+    try:
+        return pipeline.load(
+            args.sales,
+            import_settings(args),
+            getattr(args, "roles", None),
+            rules=rules_from_args(args),
+            progress=progress,
+        )
+    finally:
+        if bar is not None:
+            bar.close()
+
+
+BAR_BYTES = 20 * 2**20
+"""A sales file at least this large gets a progress bar while it is read (on a terminal)."""
+
+
+def _reading_bar(path: str):
+    """A tqdm bar on stderr for a large sales file (drawn only on a terminal), or None."""
+    try:
+        size = Path(path).stat().st_size
+    except (OSError, ValueError):
+        return None, None  # the reader says what is wrong with the path
+    if size < BAR_BYTES:
+        return None, None
+    from tqdm import tqdm
+
+    # the terminal itself: the bar's own control characters must reach it (the command
+    # line's escaping stream would print them as text); the messages are escaped below
+    stream = getattr(sys.stderr, "target", sys.stderr)
+    bar = tqdm(total=100, unit="%", file=stream, disable=None, leave=False)
+
+    def progress(fraction: float, message: str) -> None:
+        bar.set_description_str(terminal_text(message)[:48], refresh=False)
+        bar.update(max(round(100 * fraction) - bar.n, 0))
+
+    return bar, progress
 
 
 def rules_from_args(args: argparse.Namespace):
