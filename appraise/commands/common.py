@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from dataclasses import replace
 from pathlib import Path
 
 from ..engine.jsonable import to_jsonable
@@ -161,12 +160,12 @@ def _reading_bar(path: str):
 
 
 def rules_from_args(args: argparse.Namespace):
-    """The plausibility rules with the model file's ``effective_date`` as the latest
-    plausible sale date (plus the margin), else today. (``--effective-date`` of ``grid``
-    and ``report`` only dates the sales comparison; it does not remove sales from the fit.)"""
-    import datetime as dt
-
-    from ..engine.plausibility import DEFAULT_RULES, rules_from_mapping
+    """The plausibility rules with the effective date as the latest plausible sale date
+    (plus the margin): the subject file's ``effective_date`` when it has one, else the
+    model file's, else today. (``--effective-date`` of ``grid`` and ``report`` only dates
+    the sales comparison; it does not remove sales from the fit.)"""
+    from ..engine.errors import AppraiseError
+    from ..engine.plausibility import DEFAULT_RULES, effective_date_of, rules_at, rules_from_mapping
 
     base = DEFAULT_RULES
     given = getattr(args, "plausibility", None)
@@ -181,16 +180,18 @@ def rules_from_args(args: argparse.Namespace):
         base = rules_from_mapping(table, source=given)
         if base.reference_date is not None:
             return base
-    when = None
+    model_date = None
     if getattr(args, "model", None) and isinstance(args.model, str):
-        when = load_model_from_args(args).effective_date
-    if not when:
-        return base
-    try:
-        day = dt.date.fromisoformat(str(when)[:10])
-    except ValueError:
-        return base  # the command reports a bad date where it reads it
-    return replace(base, reference_date=day)
+        model_date = load_model_from_args(args).effective_date
+    subject = None
+    if isinstance(getattr(args, "subject", None), str):
+        from ..engine.subject import read_subject_attributes
+
+        try:
+            subject = read_subject_attributes(Path(args.subject), import_settings(args))
+        except AppraiseError:
+            subject = None  # the command reports the subject file's fault where it reads it
+    return rules_at(effective_date_of(subject, model_date), base)
 
 
 def add_model_argument(parser: argparse.ArgumentParser, *, multiple: bool = False) -> None:

@@ -42,7 +42,7 @@ from __future__ import annotations
 import datetime as _dt
 import re
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -364,6 +364,37 @@ def _reads(text: str, mark: str, currency_symbol: str) -> bool:
     except ValueError:
         return False
     return True
+
+
+def effective_date_of(subject: Mapping[str, object] | None, model_date: object) -> object:
+    """The date of value: the subject's ``effective_date`` when it has one, else the
+    model file's (``model_date``), else None -- the order the valuation itself uses."""
+    own = (subject or {}).get("effective_date")
+    if own is not None and not (isinstance(own, str) and not own.strip()) and own == own:
+        return own
+    return model_date or None
+
+
+def rules_at(when: object, base: PlausibilityRules = DEFAULT_RULES) -> PlausibilityRules:
+    """``base`` with ``when`` (the effective date: a date, a timestamp or ISO text) as the
+    date sales may not lie after (plus the margin).
+
+    ``base`` is returned unchanged when it names a reference date of its own (a rules
+    file said so), when ``when`` is empty, or when it is not a date (whoever reads the
+    date reports that, with its file and field).
+    """
+    if base.reference_date is not None or when is None:
+        return base
+    if isinstance(when, _dt.datetime):
+        day = when.date()
+    elif isinstance(when, _dt.date):
+        day = when
+    else:
+        try:
+            day = _dt.date.fromisoformat(str(when).strip()[:10])
+        except ValueError:
+            return base
+    return replace(base, reference_date=day)
 
 
 # --- reading the rules from a file -----------------------------------------------------------

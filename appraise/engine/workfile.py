@@ -62,6 +62,7 @@ from .importing import load_sales
 from .jsonable import to_jsonable
 from .limits import MAX_NESTING, MAX_WORKFILE_BYTES, limited_int, nesting_depth
 from .modelspec import ModelSpec, model_from_dict
+from .plausibility import PlausibilityRules, effective_date_of, rules_at
 from .roles import RoleMap
 from .sales import ROW_COLUMN, Exclusion, SalesTable
 from .settings import ImportSettings
@@ -698,8 +699,10 @@ def restore(state: WorkfileState, *, confirm: Callable[[Path], bool] | None = No
             "or confirm that this path is meant",
             file=src,
         )
+    # sales after the analysis's own effective date (plus the margin) are implausible
+    rules = rules_at(effective_date_of(state.subject, spec.effective_date))
     if found is not None and found_sha == state.sales_sha256:
-        sales = load_sales(found, settings, roles)
+        sales = load_sales(found, settings, roles, rules=rules)
     elif embedded is not None:
         why = (
             f"{found} has SHA-256 {found_sha}, not the recorded {state.sales_sha256}"
@@ -708,7 +711,7 @@ def restore(state: WorkfileState, *, confirm: Callable[[Path], bool] | None = No
             if refused
             else f"the sales file was not found ({', '.join(str(p) for p in tried) or 'no path'})"
         )
-        sales = _load_embedded(embedded, settings, roles)
+        sales = _load_embedded(embedded, settings, roles, rules)
         original = str(tried[-1]) if tried else embedded.name
         sales = replace(
             sales,
@@ -746,11 +749,13 @@ def _exists(p: Path) -> bool:
         return False
 
 
-def _load_embedded(embedded: EmbeddedSales, settings: ImportSettings, roles: RoleMap) -> SalesTable:
+def _load_embedded(
+    embedded: EmbeddedSales, settings: ImportSettings, roles: RoleMap, rules: PlausibilityRules
+) -> SalesTable:
     with tempfile.TemporaryDirectory(prefix="appraise-") as folder:
         tmp = Path(folder) / embedded.name
         tmp.write_bytes(embedded.data)
-        return load_sales(tmp, settings, roles)
+        return load_sales(tmp, settings, roles, rules=rules)
 
 
 def _restore_exclusions(state: WorkfileState, sales: SalesTable) -> tuple[Exclusion, ...]:

@@ -233,6 +233,32 @@ def test_a_sale_after_the_effective_date_is_excluded(tmp_path, capsys):
     assert data["rows_used"] == 9
 
 
+def test_the_subjects_effective_date_wins_over_the_models(tmp_path, capsys):
+    """The same order as the valuation's: a subject dated 2024-12-31 keeps the September
+    sale that the model's 2024-06-30 would exclude."""
+    rows = ["id,price,sale_date,living_area"]
+    noise = [3, -5, 8, 0, -2, 6, -7, 1]
+    rows += [
+        f"t{i},{300_000 + 9_000 * i + 1_000 * noise[i]},2024-0{1 + i % 5}-15,{1_400 + 97 * i}"
+        for i in range(8)
+    ]
+    rows.append("late,352000,2024-09-01,1500")
+    sales = tmp_path / "s.csv"
+    sales.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    model = tmp_path / "m.toml"
+    model.write_text(
+        'target = "price"\nfeatures = ["living_area"]\neffective_date = "2024-06-30"\n',
+        encoding="utf-8",
+    )
+    later = tmp_path / "later.json"
+    later.write_text('{"living_area": 1600, "effective_date": "2024-12-31"}', encoding="utf-8")
+    plain = tmp_path / "plain.json"
+    plain.write_text('{"living_area": 1600}', encoding="utf-8")
+    kept = _json(capsys, ["value", str(sales), "-m", str(model), "-s", str(later), "--json"])
+    dropped = _json(capsys, ["value", str(sales), "-m", str(model), "-s", str(plain), "--json"])
+    assert kept["df"] == 9 - 2 and dropped["df"] == 8 - 2  # residual df: sales less 2 terms
+
+
 def test_plausibility_rules_from_a_file(tmp_path, capsys):
     rules = tmp_path / "rules.toml"
     rules.write_text("min_price = 400_000\nearliest_sale = 2024-01-01\n", encoding="utf-8")

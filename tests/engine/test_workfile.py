@@ -448,3 +448,25 @@ def test_a_user_exclusion_of_a_row_the_sales_lack_is_refused(tmp_path):
     with pytest.raises(WorkfileError) as info:
         restore(load_workfile(wpath))
     assert info.value.row == 52
+
+
+def test_restoring_judges_sale_dates_by_the_analysis_effective_date(tmp_path):
+    """A sale two months after the subject's effective date is excluded on reopening (the
+    plausibility rule's reference is the analysis's date of value, not today); moved to a
+    later effective date it is used."""
+    from appraise.engine.workfile import restore
+
+    text = CSV_TEXT + 'A-4,"$260,000",2024-09-01,1450,South\n'
+    data = text.encode("utf-8")
+    common = dict(
+        sales_sha256=hashlib.sha256(data).hexdigest(),
+        embedded_sales=EmbeddedSales("sales.csv", data),
+        user_exclusions=(),
+        roles={"price": "Sale Price", "sale_date": "Sale Date", "sale_id": "Sale ID"},
+    )
+    early = restore(_state(**common))  # the subject's effective date is 2024-06-30
+    assert [(e.row, e.reason) for e in early.sales.excluded] == [
+        (5, "sale date '2024-09-01' is after the effective date plus 31 days (2024-07-31)")
+    ]
+    later = _state(**common, subject={"living_area": 1500.0, "effective_date": "2024-12-31"})
+    assert restore(later).sales.excluded == ()
