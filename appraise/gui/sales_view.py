@@ -105,24 +105,126 @@ def exclude_with_reason(parent: QWidget, session: Session, row: int, suggested: 
 
 
 # --- the sales table -------------------------------------------------------------
-def search_text(rows: np.ndarray, reasons: list[str], values: list[np.ndarray]) -> pa.Array:
+def python_cell(v: object) -> object:
+    """A cell as the Python object a person's formatter expects (what pandas'
+    ``to_numpy(dtype=object)`` gives): numpy scalars become ``float``/``int``/``bool``,
+    a ``datetime64`` a :class:`pandas.Timestamp` (``NaT`` stays missing)."""
+    if isinstance(v, np.datetime64):
+        return pd.Timestamp(v)
+    if isinstance(v, np.timedelta64):
+        return pd.Timedelta(v)
+    if isinstance(v, np.generic):
+        return v.item()
+    return v
+
+
+class SalesColumn:
+    """One column of the sales table, kept as the file's typed array (no Python object
+    per row): the used rows' cells, then the left-out rows' (the importer keeps only
+    their sale id, so every other column is empty for them)."""
+
+    def __init__(self, column: pd.Series, extra: np.ndarray) -> None:
+        dtype = column.dtype
+        if isinstance(dtype, np.dtype) and dtype.kind in "biufO":
+            self.cells = column.to_numpy()  # no copy for a typed column
+        else:  # datetimes, strings, nullable and categorical columns: pandas' own array
+            self.cells = column.array
+        self.dtype = dtype
+        self.extra = extra
+        self.n = len(self.cells)
+
+    def __len__(self) -> int:
+        return self.n + len(self.extra)
+
+    def cell(self, i: int) -> object:
+        """Row ``i``'s value (a Python object, None for a left-out row's empty cell)."""
+        if i < self.n:
+            return python_cell(self.cells[i])
+        return self.extra[i - self.n]
+
+    def factorized(self) -> tuple[np.ndarray, list]:
+        """``codes`` (one per row, -1 where missing) into ``uniques`` (Python objects)."""
+        codes, uniques = pd.factorize(self.cells, use_na_sentinel=True)
+        more_codes, more = pd.factorize(self.extra, use_na_sentinel=True)
+        more_codes = np.where(more_codes < 0, -1, more_codes + len(uniques))
+        values = [python_cell(u) for u in uniques] + list(more)
+        return np.concatenate([codes, more_codes]).astype(np.int64, copy=False), values
+
+    def sort_keys(self) -> pd.Series:
+        """What the column sorts by: numbers as numbers (a text column whose every cell
+        reads as a number too), dates in time order, other text case-blind; missing
+        cells as missing (sorted last by :func:`stable_sort`)."""
+        kind = self.dtype.kind if isinstance(self.dtype, np.dtype) else "-"  # pandas' own
+        extra_missing = all(v is None for v in self.extra)
+        if kind in "biuf" and extra_missing:
+            return pd.Series(
+                np.concatenate([self.cells.astype(float), np.full(len(self.extra), np.nan)])
+            )
+        if pd.api.types.is_datetime64_any_dtype(self.dtype) and extra_missing:
+            keys = pd.Series(self.cells)
+            return pd.concat([keys, pd.Series([pd.NaT] * len(self.extra), dtype=keys.dtype)])
+        used = pd.Series(self.cells)
+        values = pd.concat([used.astype(object), pd.Series(self.extra, dtype=object)])
+        values = values.reset_index(drop=True)
+        present = int(used.notna().sum()) + int(pd.Series(self.extra, dtype=object).notna().sum())
+        numeric = pd.to_numeric(values, errors="coerce")
+        if int(numeric.notna().sum()) == present:
+            return numeric
+        if pd.api.types.is_string_dtype(self.dtype) and kind == "-":
+            lower = used.str.lower().astype(object)
+            lower = lower.where(used.notna(), None)
+            rest = pd.Series(self.extra, dtype=object).map(_lower_key)
+            return pd.concat([lower, rest]).reset_index(drop=True)
+        return values.map(_lower_key)
+
+
+def _lower_key(v: object) -> str | None:
+    return None if v is None or v != v else str(v).lower()
+
+
+def search_index(
+    rows: np.ndarray, reason_codes: np.ndarray, reason_texts: list[str], columns: list
+) -> pa.Array:
     """One lower-case line per table row, what the filter box searches: the file row,
     the reason and every cell as the table shows it (:func:`plain`), tab-separated.
 
+    ``reason_codes`` (one per row, -1 for a used sale) index ``reason_texts``;
+    ``columns`` are :class:`SalesColumn` objects (or anything with ``factorized()``).
     Each column is formatted once per distinct value and the lines are joined by Arrow,
     so a table of a million sales is indexed in seconds, not minutes.
     """
-    parts = [pa.array(rows.astype(str).astype(object), type=pa.string())]
-    columns = [(np.asarray(reasons, dtype=object), str)] if len(reasons) else []
-    for column, show in columns + [(v, plain) for v in values]:
-        cells = np.asarray(column, dtype=object)
-        codes, uniques = pd.factorize(cells, use_na_sentinel=True)
-        texts = [show(u).lower() for u in uniques] + [plain(None).lower()]
-        codes = np.where(codes < 0, len(uniques), codes)
-        parts.append(pa.array(texts, type=pa.string()).take(pa.array(codes)))
+    parts = [pc.cast(pa.array(np.asarray(rows, dtype=np.int64)), pa.string())]
+
+    def add(codes: np.ndarray, texts: list[str], missing: str) -> None:
+        codes = np.where(codes < 0, len(texts), codes)
+        parts.append(pa.array([*texts, missing], type=pa.string()).take(pa.array(codes)))
+
+    if len(reason_codes):
+        add(np.asarray(reason_codes), [t.lower() for t in reason_texts], "")
+    for column in columns:
+        codes, uniques = column.factorized()
+        add(codes, [plain(u).lower() for u in uniques], plain(None).lower())
     if len(parts) == 1:
         return parts[0]
     return pc.binary_join_element_wise(*parts, "\t")
+
+
+class _ObjectColumn:
+    """A column given as Python objects (for :func:`search_text`)."""
+
+    def __init__(self, values: np.ndarray) -> None:
+        self.values = np.asarray(values, dtype=object)
+
+    def factorized(self) -> tuple[np.ndarray, list]:
+        codes, uniques = pd.factorize(self.values, use_na_sentinel=True)
+        return codes, list(uniques)
+
+
+def search_text(rows: np.ndarray, reasons: list[str], values: list[np.ndarray]) -> pa.Array:
+    """:func:`search_index` for a reason per row (text, "" when used) and columns of
+    Python objects."""
+    codes, texts = pd.factorize(np.asarray(reasons, dtype=object))
+    return search_index(rows, codes, list(texts), [_ObjectColumn(v) for v in values])
 
 
 class SalesTableModel(SortableTableModel, QAbstractTableModel):
@@ -130,6 +232,11 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
 
     Columns: file row, why it is left out (empty when used), then the file's columns.
     ``Qt.UserRole`` of any cell gives the file row.
+
+    Lazy: the file's typed columns are kept as they are and a cell is formatted in
+    ``data()`` only when Qt asks for it (the rows on screen); the reasons are a code per
+    row into a short list of texts; sorting and filtering compute index arrays on whole
+    columns. Loading a million sales makes no Python object per row.
     """
 
     FIXED = ("Row", "Left out because")
@@ -144,11 +251,14 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
         super().__init__()
         self._session = session
         self._headers: list[str] = []
-        self._values: list[np.ndarray] = []
-        self._rows = np.zeros(0, dtype=int)
-        self._reasons: list[str] = []
-        self._order = np.zeros(0, dtype=int)
-        self._all_order = np.zeros(0, dtype=int)
+        self._columns: list[SalesColumn] = []
+        self._formats: list = []
+        self._rows = np.zeros(0, dtype=np.int64)
+        self._by_row = np.zeros(0, dtype=np.int64)  # positions in file-row order
+        self._reason_codes = np.zeros(0, dtype=np.int32)
+        self._reason_texts: list[str] = []
+        self._base_order = np.zeros(0, dtype=np.int64)  # sorted, before the filter
+        self._order = np.zeros(0, dtype=np.int64)
         self._haystack: pa.Array | None = None
         self._index_gen = 0
         self._index_task: Task | None = None
@@ -163,48 +273,45 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
 
     # contents
     @staticmethod
-    def _format_of(column: pd.Series, values: np.ndarray):
+    def _format_of(column: pd.Series, extra: np.ndarray):
         """The column's one cell format, decided without a Python loop over a typed column."""
         if pd.api.types.is_bool_dtype(column):
-            return column_format(values)
+            return plain  # yes/no: no numbers to align
         if pd.api.types.is_numeric_dtype(column):
             return column_format(column.to_numpy())
         if pd.api.types.is_datetime64_any_dtype(column) or pd.api.types.is_string_dtype(column):
             return plain  # no numbers to align
-        return column_format(values)
+        return column_format(np.concatenate([column.to_numpy(dtype=object), extra]))
 
     def reload(self) -> None:
         self.beginResetModel()
         sales = self._session.sales
         if sales is None:
-            self._headers, self._values = [], []
-            self._formats = []
-            self._rows = np.zeros(0, dtype=int)
+            self._headers, self._columns, self._formats = [], [], []
+            self._rows = np.zeros(0, dtype=np.int64)
         else:
             frame = sales.frame
             self._headers = [c for c in frame.columns if c != ROW_COLUMN]
             k = len(sales.excluded)
             id_col = sales.roles.column("sale_id")
-            self._values = [
-                np.concatenate(
-                    [
-                        frame[c].to_numpy(dtype=object),
-                        # the importer keeps no values of the rows it leaves out, but their id
-                        np.array([e.sale_id for e in sales.excluded], dtype=object)
-                        if c == id_col
-                        else np.full(k, None, dtype=object),
-                    ]
-                )
-                for c in self._headers
+            nothing = np.full(k, None, dtype=object)
+            # the importer keeps no values of the rows it leaves out, but their id
+            ids = np.array([e.sale_id for e in sales.excluded], dtype=object)
+            self._columns = [
+                SalesColumn(frame[c], ids if c == id_col else nothing) for c in self._headers
             ]
             self._rows = np.concatenate(
-                [frame[ROW_COLUMN].to_numpy(dtype=int), [e.row for e in sales.excluded]]
-            ).astype(int)
+                [
+                    frame[ROW_COLUMN].to_numpy(dtype=np.int64),
+                    np.array([e.row for e in sales.excluded], dtype=np.int64),
+                ]
+            )
             # one format per column: 8,822 beside 13,981, not 8822
             self._formats = [
-                self._format_of(frame[c], v)
-                for c, v in zip(self._headers, self._values, strict=True)
+                self._format_of(frame[c], col.extra)
+                for c, col in zip(self._headers, self._columns, strict=True)
             ]
+        self._by_row = np.argsort(self._rows, kind="stable")
         self._forget_index()
         self._refresh_reasons()
         if len(self._rows) >= self.BACKGROUND_FROM:
@@ -218,7 +325,7 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
         if self._filter:  # the reason text is searchable
             self.beginResetModel()
             self._forget_index()
-            self._apply_order()
+            self._apply_filter()
             self.endResetModel()
         elif len(self._order):
             self.dataChanged.emit(
@@ -234,12 +341,32 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
         if fit is not None and self._session.fit_current:
             why.update((e.row, e) for e in fit.excluded)
         why.update((e.row, e) for e in self._session.user_exclusions)
-        self._reasons = [
-            f"{e.reason} ({SOURCE_LABELS.get(e.source, e.source)})"
-            if (e := why.get(int(r)))
-            else ""
-            for r in self._rows
-        ]
+        n = len(self._rows)
+        codes = np.full(n, -1, dtype=np.int32)
+        texts: dict[str, int] = {}
+        if why and n:
+            ex_rows = np.fromiter(why.keys(), dtype=np.int64, count=len(why))
+            ex_codes = np.fromiter(
+                (
+                    texts.setdefault(
+                        f"{e.reason} ({SOURCE_LABELS.get(e.source, e.source)})", len(texts)
+                    )
+                    for e in why.values()
+                ),
+                dtype=np.int32,
+                count=len(why),
+            )
+            in_order = self._rows[self._by_row]
+            at = np.minimum(np.searchsorted(in_order, ex_rows), n - 1)
+            found = in_order[at] == ex_rows
+            codes[self._by_row[at[found]]] = ex_codes[found]
+        self._reason_codes = codes
+        self._reason_texts = list(texts)
+
+    def reason_at(self, i: int) -> str:
+        """Why the sale in storage position ``i`` is left out ("" when it is used)."""
+        code = int(self._reason_codes[i])
+        return self._reason_texts[code] if code >= 0 else ""
 
     # sorting and filtering, on whole columns
     def set_filter(self, text: str) -> None:
@@ -248,17 +375,22 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
             return
         self.beginResetModel()
         self._filter = text
-        self._apply_order()
+        self._apply_filter()
         self.endResetModel()
 
     def _apply_order(self) -> None:
-        n = len(self._rows)
-        order = np.argsort(self._rows, kind="stable")
-        if self._sort is not None and n:
+        """The rows in the order asked for (by file row until a column is clicked), then
+        filtered."""
+        order = self._by_row
+        if self._sort is not None and len(self._rows):
             column, direction = self._sort
-            keys = self._sort_keys(column)
-            order = stable_sort(keys, direction == Qt.SortOrder.DescendingOrder)
-        haystack = self._search_text() if self._filter and n else None
+            order = stable_sort(self._sort_keys(column), direction == Qt.SortOrder.DescendingOrder)
+        self._base_order = order
+        self._apply_filter()
+
+    def _apply_filter(self) -> None:
+        order = self._base_order
+        haystack = self._search_text() if self._filter and len(order) else None
         if haystack is not None:  # (while the index is built, every row stays shown)
             found = pc.match_substring(haystack, self._filter)
             mask = found.to_numpy(zero_copy_only=False).astype(bool)
@@ -269,17 +401,19 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
         if column == 0:
             return pd.Series(self._rows)
         if column == 1:
-            return pd.Series(self._reasons, dtype=object).replace("", None)
-        values = pd.Series(self._values[column - 2])
-        numeric = pd.to_numeric(values, errors="coerce")
-        if numeric.notna().sum() == values.notna().sum():
-            return numeric
-        return values.map(lambda v: None if v is None or v != v else str(v).lower())
+            # a reason's rank among the texts (as text sorts); a used sale has none
+            texts = self._reason_texts
+            rank = np.full(len(texts) + 1, np.nan)
+            rank[sorted(range(len(texts)), key=texts.__getitem__)] = np.arange(len(texts))
+            return pd.Series(rank[self._reason_codes])
+        return self._columns[column - 2].sort_keys()
 
     def _search_text(self) -> pa.Array | None:
         """The search index; None while a large table's index is built on a pool thread."""
         if self._haystack is None and len(self._rows) < self.BACKGROUND_FROM:
-            self._haystack = search_text(self._rows, self._reasons, self._values)
+            self._haystack = search_index(
+                self._rows, self._reason_codes, self._reason_texts, self._columns
+            )
         elif self._haystack is None and not self.indexing:
             self._start_index()
         return self._haystack
@@ -292,9 +426,11 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
     def _start_index(self) -> None:
         self._index_gen += 1
         gen = self._index_gen
-        rows, reasons, values = self._rows.copy(), list(self._reasons), list(self._values)
+        # the arrays are replaced, never changed in place, so the pool thread may read them
+        rows, codes, texts = self._rows, self._reason_codes, list(self._reason_texts)
+        columns = list(self._columns)
         self._index_task = Task(
-            gen, lambda _report: search_text(rows, reasons, values), self._index_signals
+            gen, lambda _report: search_index(rows, codes, texts, columns), self._index_signals
         )
         self.indexing = True
         self._index_pool.start(self._index_task)
@@ -306,7 +442,7 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
         self.indexing = False
         if self._filter:
             self.beginResetModel()
-            self._apply_order()
+            self._apply_filter()
             self.endResetModel()
             self.filterApplied.emit()
 
@@ -335,17 +471,17 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
             if col == 0:
                 return str(self._rows[i])
             if col == 1:
-                return self._reasons[i]
-            v = self._values[col - 2][i]
+                return self.reason_at(i)
+            v = self._columns[col - 2].cell(i)
             return self._formats[col - 2](v) if v is not None else ""
-        if role == Qt.ItemDataRole.ForegroundRole and self._reasons[i]:
+        if role == Qt.ItemDataRole.ForegroundRole and self._reason_codes[i] >= 0:
             return QBrush(GREY)
-        if role == Qt.ItemDataRole.ToolTipRole and self._reasons[i]:
-            return f"Left out: {self._reasons[i]}"
+        if role == Qt.ItemDataRole.ToolTipRole and self._reason_codes[i] >= 0:
+            return f"Left out: {self.reason_at(i)}"
         if role == Qt.ItemDataRole.UserRole:
             return int(self._rows[i])
-        if role == Qt.ItemDataRole.TextAlignmentRole and col != 1 and col >= 2:
-            v = self._values[col - 2][i]
+        if role == Qt.ItemDataRole.TextAlignmentRole and col >= 2:
+            v = self._columns[col - 2].cell(i)
             if isinstance(v, int | float | np.number):
                 return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         return None
