@@ -651,6 +651,22 @@ def candidate_sales_paths(state: WorkfileState) -> list[Path]:
     return seen
 
 
+def path_to_confirm(state: WorkfileState) -> Path | None:
+    """The recorded sales path :func:`restore` would read only with the user's say-so.
+
+    None when a plain sales file comes first among the candidates (it is read without
+    asking) or when no other recorded path exists. A front end asks the user about the
+    path returned and passes the answer to :func:`restore` as ``confirm``.
+    """
+    for p in candidate_sales_paths(state):
+        if plain_sales_file(p):
+            if p.is_file():
+                return None
+        elif _exists(p):
+            return p
+    return None
+
+
 def restore(state: WorkfileState, *, confirm: Callable[[Path], bool] | None = None) -> Restored:
     """Read the sales again and rebuild the model, subject and user exclusions.
 

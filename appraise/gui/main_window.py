@@ -316,6 +316,7 @@ class MainWindow(QMainWindow):
         s.loadCancelled.connect(self._load_ended)
         s.workfileChanged.connect(lambda _p: self._update_title())
         s.notice.connect(lambda text: self.statusBar().showMessage(text, 15_000))
+        s.confirm_sales_path = self._confirm_sales_path
         s.valuationFailed.connect(
             lambda m: self.statusBar().showMessage(f"{NOT_VALUED}: {m}", 10_000)
         )
@@ -481,6 +482,21 @@ class MainWindow(QMainWindow):
     def _load_failed(self, message: str) -> None:
         self._load_ended()
         self._error("Could not open the file", message)
+
+    def _confirm_sales_path(self, path: Path) -> bool:
+        """Ask before reading a workfile's recorded sales path that is not a plain sales
+        file (a workfile is a file anyone may have edited)."""
+        answer = QMessageBox.question(
+            self,
+            "Read this file as the sales?",
+            f"The workfile names\n\n{path}\n\nas its sales file. It is not a plain sales "
+            "file (.csv, .xlsx or .parquet), so it is read only if you say so.\n\n"
+            "Yes: read it (it must still hash to the SHA-256 the workfile records).\n"
+            "No: use the copy of the sales embedded in the workfile, if it has one.",
+            QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No,
+            QMessageBox.StandardButton.No,
+        )
+        return answer == QMessageBox.StandardButton.Yes
 
     def _error(self, title: str, message: str) -> None:
         """Say what went wrong without blocking (the box is window-modal, not app-modal)."""

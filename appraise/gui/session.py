@@ -16,12 +16,14 @@ from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
+import pandas as pd
 from PySide6.QtCore import QObject, QThreadPool, QTimer, Signal
 
 from appraise.engine.diagnostics import Diagnostics, DiagnosticSettings
 from appraise.engine.fitting import FitResult
 from appraise.engine.importing import FORMATS
 from appraise.engine.modelspec import ModelSpec
+from appraise.engine.plausibility import effective_date_of, rules_at
 from appraise.engine.roles import RoleMap
 from appraise.engine.sales import ROW_COLUMN, Exclusion, SalesTable
 from appraise.engine.settings import ImportSettings
@@ -32,6 +34,7 @@ from appraise.engine.workfile import (
     import_settings_from_dict,
     load_workfile,
     make_state,
+    path_to_confirm,
     restore,
     save_workfile,
 )
@@ -155,6 +158,10 @@ class Session(QObject):
         super().__init__(parent)
         self._sales: SalesTable | None = None
         self._sales_path: Path | None = None
+        self._rules_date: object = None  # the date the sales' dates were judged against
+        self.confirm_sales_path: Callable[[Path], bool] | None = None
+        """Asks the user whether a workfile's recorded sales path that is not a plain sales
+        file may be read (set by the window; None: never read such a path)."""
         self._import_settings = import_settings or ImportSettings()
         self._spec: ModelSpec | None = None
         self._subject: dict = {}
@@ -376,12 +383,15 @@ class Session(QObject):
         roles: RoleMap | None = None,
         model_path: str | Path | None = None,
         subject_path: str | Path | None = None,
+        expect_sha256: str | None = None,
     ) -> None:
         """Read a sales file on a worker (and a model and subject file with it, if given).
 
         A different file than the current one starts a new valuation: user exclusions,
         selection and workfile are cleared. The same file again (a role or settings
-        change) keeps them.
+        change) keeps them. Sale dates are judged against the effective date (the
+        subject's, else the model's; a subject or model file read with the sales wins).
+        ``expect_sha256``: refuse the file if it is no longer the one read before.
         """
         job = LoadJob(
             Path(path),
@@ -389,6 +399,9 @@ class Session(QObject):
             roles,
             None if model_path is None else Path(model_path),
             None if subject_path is None else Path(subject_path),
+            subject=dict(self._subject),
+            model_date=None if self._spec is None else self._spec.effective_date,
+            expect_sha256=expect_sha256,
         )
         self._start_load(
             "sales", str(path), lambda report: run_load_job(job, report), cancel=job.cancel.set
@@ -407,11 +420,23 @@ class Session(QObject):
         """
         p = Path(path)
 
-        def job(report) -> tuple[WorkfileState, object]:
+        def job(report) -> tuple[WorkfileState, object, Path | None]:
             state = load_workfile(p)
-            return state, restore(state)
+            ask = path_to_confirm(state)
+            if ask is not None:  # the user is asked on the UI thread first
+                return state, None, ask
+            return state, restore(state), None
 
         self._start_load("workfile", str(p), job)
+
+    def _restore_confirmed(self, label: str, state: WorkfileState, ask: Path) -> None:
+        """Ask about a recorded sales path that is not a plain sales file, then restore."""
+        yes = self.confirm_sales_path is not None and bool(self.confirm_sales_path(ask))
+
+        def job(report) -> tuple[WorkfileState, object, None]:
+            return state, restore(state, confirm=(lambda q: q == ask) if yes else None), None
+
+        self._start_load("workfile", label, job)
 
     def cancel_load(self) -> None:
         """Forget the load in progress; its result is dropped when it arrives."""
@@ -459,7 +484,10 @@ class Session(QObject):
         label = self._loading or ""
         self._loading = None
         if kind == "workfile":
-            state, restored = result
+            state, restored, ask = result
+            if ask is not None:
+                self._restore_confirmed(label, state, ask)
+                return
             self._adopt_workfile(Path(label), state, restored)
         else:
             assert isinstance(result, LoadOutcome)
@@ -472,6 +500,7 @@ class Session(QObject):
         same_file = self._sales_path is not None and _same_path(path, self._sales_path)
         self._sales = sales
         self._sales_path = path
+        self._rules_date = outcome.reference_date
         self._invalidate_results()
         if not same_file:
             self._user_exclusions = ()
@@ -501,6 +530,7 @@ class Session(QObject):
         )
         self._spec = restored.spec
         self._subject = dict(restored.subject)
+        self._rules_date = self._effective_reference()  # as restore judged the sale dates
         self._user_exclusions = tuple(restored.user_exclusions)
         self._comparables = ComparablesChoice.from_dict(state.comparables)
         self.comparablesChanged.emit(self._comparables)
@@ -589,7 +619,8 @@ class Session(QObject):
             return
         self._spec = spec
         self.modelChanged.emit(spec)
-        self.request_refit()
+        if not self._recheck_sale_dates():
+            self.request_refit()
 
     def set_subject(self, subject: Mapping[str, Any]) -> None:
         """Replace the subject's attributes; the subject is valued again after a short pause."""
@@ -598,7 +629,53 @@ class Session(QObject):
             return
         self._subject = new
         self.subjectChanged.emit(self.subject)
-        self.request_refit()
+        if not self._recheck_sale_dates():
+            self.request_refit()
+
+    def _effective_reference(self):
+        """The date sale dates are judged against now (None: today)."""
+        model_date = None if self._spec is None else self._spec.effective_date
+        return rules_at(effective_date_of(self._subject, model_date)).reference_date
+
+    def _dates_affected(self, when) -> bool:
+        """Whether judging the sale dates against ``when`` could change which sales are
+        used: a used sale lies after its limit, or a sale was excluded as too late."""
+        sales = self._sales
+        col = sales.roles.column("sale_date")
+        if col is None or col not in sales.frame.columns:
+            return False
+        latest = pd.Timestamp(rules_at(when).latest_sale())
+        dates = pd.to_datetime(sales.frame[col], errors="coerce")
+        if bool((dates > latest).any()):
+            return True
+        return any(
+            e.column == col and e.reason.startswith("sale date '") and "' is after " in e.reason
+            for e in sales.excluded
+        )
+
+    def _recheck_sale_dates(self) -> bool:
+        """Read the sales again when the effective date moved (the plausibility rule for
+        sales after it must follow); True when a read was started (it refits after)."""
+        if self._sales is None or self._sales_path is None or self._loading is not None:
+            return False
+        when = self._effective_reference()
+        if when == self._rules_date:
+            return False
+        if not self._dates_affected(when):
+            self._rules_date = when  # no sale is on the other side of the new limit
+            return False
+        if not self._sales_path.is_file():
+            self.notice.emit(
+                f"The effective date is now {when or 'today'}, but the sales file "
+                f"{self._sales_path} is not at hand: its sale dates were checked against "
+                f"{self._rules_date or 'the day it was read'} and are not checked again."
+            )
+            self._rules_date = when
+            return False
+        self.load_sales(
+            self._sales_path, roles=self._sales.roles, expect_sha256=self._sales.source.sha256
+        )
+        return True
 
     def set_diagnostic_settings(self, settings: DiagnosticSettings) -> None:
         """Check fits with ``settings``; the current fit is checked again, not refitted."""

@@ -11,6 +11,7 @@ is no longer current, which is how a stale fit or a cancelled load is discarded.
 
 from __future__ import annotations
 
+import datetime as dt
 import logging
 import threading
 import traceback
@@ -23,9 +24,10 @@ from PySide6.QtCore import QObject, QRunnable, Signal
 
 from appraise import pipeline
 from appraise.engine.diagnostics import DiagnosticSettings
-from appraise.engine.errors import AppraiseError, Cancelled
+from appraise.engine.errors import AppraiseError, Cancelled, DataError
 from appraise.engine.fitting import FitResult
 from appraise.engine.modelspec import ModelSpec
+from appraise.engine.plausibility import effective_date_of, rules_at
 from appraise.engine.roles import RoleMap
 from appraise.engine.sales import Exclusion, SalesTable
 from appraise.engine.settings import ImportSettings
@@ -97,6 +99,13 @@ class LoadJob:
     subject_path: Path | None = None
     cancel: threading.Event = field(default_factory=threading.Event, compare=False)
     """Set (from any thread) to stop the read at its next progress step."""
+    subject: Mapping[str, Any] | None = None
+    """The subject now in the window (its effective date dates the plausibility rules
+    unless a subject file comes with the sales)."""
+    model_date: object = None
+    """The effective date of the model now in the window (likewise)."""
+    expect_sha256: str | None = None
+    """The file must still be the one read before (a re-read, not a new valuation)."""
 
 
 @dataclass(frozen=True)
@@ -104,6 +113,7 @@ class LoadOutcome:
     sales: SalesTable
     spec: ModelSpec | None = None
     subject: dict | None = None
+    reference_date: dt.date | None = None  # sale dates were judged against it (None: today)
 
 
 def run_load_job(job: LoadJob, report: Report) -> LoadOutcome:
@@ -114,14 +124,25 @@ def run_load_job(job: LoadJob, report: Report) -> LoadOutcome:
             raise Cancelled(f"reading {job.path.name} was cancelled")
         report("progress", (fraction, message))
 
-    sales = pipeline.load(job.path, job.settings, job.roles, progress=progress)
     spec = pipeline.read_model(job.model_path) if job.model_path is not None else None
     subject = (
         read_subject_attributes(job.subject_path, job.settings)
         if job.subject_path is not None
         else None
     )
-    return LoadOutcome(sales, spec, subject)
+    when = effective_date_of(
+        subject if subject is not None else job.subject,
+        spec.effective_date if spec is not None else job.model_date,
+    )
+    rules = rules_at(when)  # sales after the date of value (plus the margin) are implausible
+    sales = pipeline.load(job.path, job.settings, job.roles, progress=progress, rules=rules)
+    if job.expect_sha256 is not None and sales.source.sha256 != job.expect_sha256:
+        raise DataError(
+            "the file has changed since it was read (its SHA-256 differs); open it again "
+            "to start a new valuation with it",
+            file=str(job.path),
+        )
+    return LoadOutcome(sales, spec, subject, rules.reference_date)
 
 
 # --- running a job on a pool thread ----------------------------------------------

@@ -62,11 +62,13 @@ def test_swap_comparable_weights_and_effective_date(qtbot, view, session):
     assert view.grid.reconciliation.weights == pytest.approx((0.4, 0.2, 0.2, 0.2))
     assert view.grid.reconciliation.weights_from == "user"
     before = view.grid.comparables[0].adjustments[0].amount
-    view.effective.setText("2025-12-31")
+    # a later date of value: an earlier one would make the sales after it (plus a month)
+    # implausible, and the comparable chosen above may be one of them
+    view.effective.setText("2026-09-30")
     _update(qtbot, view, view.effective.editingFinished.emit)
-    assert str(view.grid.effective_date)[:10] == "2025-12-31"
+    assert str(view.grid.effective_date)[:10] == "2026-09-30"
     # one date of value per analysis: it is the subject's, so the value uses it too
-    assert session.subject["effective_date"] == "2025-12-31"
+    assert session.subject["effective_date"] == "2026-09-30"
     assert session.comparables.effective_date is None
     assert view.grid.comparables[0].adjustments[0].amount != pytest.approx(before)
 
