@@ -220,6 +220,12 @@ class _ObjectColumn:
         return codes, list(uniques)
 
 
+def match_mask(haystack: pa.Array, text: str) -> np.ndarray:
+    """Which lines of a search index contain ``text`` (already lower-case)."""
+    found = pc.match_substring(haystack, text)
+    return found.to_numpy(zero_copy_only=False).astype(bool)
+
+
 def search_text(rows: np.ndarray, reasons: list[str], values: list[np.ndarray]) -> pa.Array:
     """:func:`search_index` for a reason per row (text, "" when used) and columns of
     Python objects."""
@@ -267,6 +273,13 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
         self._index_signals = TaskSignals(self)
         self._index_signals.finished.connect(self._index_ready)
         self.indexing = False
+        self._mask: np.ndarray | None = None  # which rows the last search found
+        self._mask_text: str | None = None  # ... and for which text
+        self._search_gen = 0
+        self._search_task: Task | None = None
+        self._search_signals = TaskSignals(self)
+        self._search_signals.finished.connect(self._search_ready)
+        self.searching = False
         self._filter = ""
         self._sort: tuple[int, Qt.SortOrder] | None = None
         self.reload()
@@ -389,13 +402,48 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
         self._apply_filter()
 
     def _apply_filter(self) -> None:
-        order = self._base_order
-        haystack = self._search_text() if self._filter and len(order) else None
-        if haystack is not None:  # (while the index is built, every row stays shown)
-            found = pc.match_substring(haystack, self._filter)
-            mask = found.to_numpy(zero_copy_only=False).astype(bool)
-            order = order[mask[order]]
-        self._order = order
+        """Show the sorted rows the filter finds. A large table searches on the pool
+        thread and meanwhile shows what the previous search found (every row while its
+        index is built); the rows change when the search lands (``filterApplied``)."""
+        if self._filter and self._mask_text != self._filter and len(self._rows):
+            haystack = self._search_text()
+            if haystack is not None and len(self._rows) < self.BACKGROUND_FROM:
+                self._mask, self._mask_text = match_mask(haystack, self._filter), self._filter
+            elif haystack is not None:
+                self._start_search(haystack, self._filter)
+        self._order = self._visible(self._base_order)
+
+    def _visible(self, order: np.ndarray) -> np.ndarray:
+        """``order`` without the rows the filter rules out. Until a new text's search
+        lands, the last search's rows stand in when the new text narrows it (it can only
+        find fewer); otherwise every row is shown meanwhile."""
+        mask, found_for = self._mask, self._mask_text
+        if not self._filter or mask is None or found_for is None or found_for not in self._filter:
+            return order
+        return order[mask[order]]
+
+    def _start_search(self, haystack: pa.Array, text: str) -> None:
+        if self._search_task is not None:
+            self._index_pool.tryTake(self._search_task)  # an older search not started yet
+        self._search_gen += 1
+        self._search_task = Task(
+            self._search_gen,
+            lambda _report: (text, match_mask(haystack, text)),
+            self._search_signals,
+        )
+        self.searching = True
+        self._index_pool.start(self._search_task)
+
+    def _search_ready(self, gen: int, found: object) -> None:
+        if gen != self._search_gen:
+            return
+        self.searching = False
+        self._search_task = None
+        self.beginResetModel()
+        self._mask_text, self._mask = found  # type: ignore[misc]
+        self._order = self._visible(self._base_order)
+        self.endResetModel()
+        self.filterApplied.emit()
 
     def _sort_keys(self, column: int) -> pd.Series:
         if column == 0:
@@ -422,6 +470,9 @@ class SalesTableModel(SortableTableModel, QAbstractTableModel):
         self._haystack = None
         self._index_gen += 1  # an index still being built for the old contents is dropped
         self.indexing = False
+        self._mask = self._mask_text = None
+        self._search_gen += 1  # and a search of it
+        self.searching = False
 
     def _start_index(self) -> None:
         self._index_gen += 1
@@ -583,6 +634,9 @@ class SalesView(QWidget):
         shown = self.model.rowCount()
         if self.model.indexing and self.filter_edit.text().strip():
             self.count_label.setText(f"indexing {total:,} rows for the filter…")
+            return
+        if self.model.searching and self.filter_edit.text().strip():
+            self.count_label.setText(f"searching {total:,} rows…")
             return
         self.count_label.setText(
             f"{shown:,} of {total:,} shown" if shown != total else f"{total:,} rows"
