@@ -374,8 +374,11 @@ class RegionsView(QWidget):
         east = (lon - lon0) * KM_PER_DEGREE * math.cos(math.radians(lat0))
         north = (lat - lat0) * KM_PER_DEGREE
         by_level = {e.level: e.effect.value for e in ra.effects}
-        labels = level_labels(frame[ra.term.column])
-        effect = pd.Series(np.asarray(labels, dtype=object)).map(by_level).to_numpy(dtype=float)
+        # each distinct value labelled once (a county has a million sales, a few regions)
+        codes, uniques = pd.factorize(frame[ra.term.column], use_na_sentinel=True)
+        labels = level_labels(pd.Series(uniques))
+        per_level = pd.Series(labels, dtype=object).map(by_level).to_numpy(dtype=float)
+        effect = np.append(per_level, np.nan)[np.where(codes < 0, len(uniques), codes)]
         self._map_origin = (lat0, lon0)
         return east, north, effect
 
