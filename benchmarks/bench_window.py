@@ -10,13 +10,19 @@ checks; then the first keystrokes go into the sales filter; then the model is ed
 gap between its ticks in each phase: the longest time the window could not repaint or
 answer a click. The process's peak resident memory is printed at the end.
 ``--profile DIR`` writes a cProfile of the UI thread for each phase to DIR (and prints
-its ten most expensive calls), to find what a gap is made of. This is a script, not a test.
+its ten most expensive calls), to find what a gap is made of; ``--trace-stalls 0.2``
+prints every thread's stack whenever the UI thread has not ticked for 0.2 s (a watchdog
+that needs no lock Python holds, so it also catches a pool thread holding the GIL).
+After the fit each result tab is shown in turn (the plots, checks, comparables and
+neighbourhoods draw when shown), then the sales are sorted by price. This is a script,
+not a test.
 """
 
 from __future__ import annotations
 
 import argparse
 import cProfile
+import faulthandler
 import io
 import os
 import pstats
@@ -94,9 +100,10 @@ def make_sales(path: Path, rows: int, seed: int = 5) -> None:
 class StallMeter:
     """The longest gap between ticks of a 10 ms timer on the UI thread, per phase."""
 
-    def __init__(self) -> None:
+    def __init__(self, trace_after: float | None = None) -> None:
         from PySide6.QtCore import QTimer
 
+        self.trace_after = trace_after
         self.longest = 0.0
         self.last = time.perf_counter()
         self.timer = QTimer()
@@ -108,6 +115,8 @@ class StallMeter:
         now = time.perf_counter()
         self.longest = max(self.longest, now - self.last)
         self.last = now
+        if self.trace_after is not None:  # re-armed on every tick: fires only in a stall
+            faulthandler.dump_traceback_later(self.trace_after, file=sys.stderr)
 
     def reset(self) -> None:
         self.longest, self.last = 0.0, time.perf_counter()
@@ -128,9 +137,12 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--rows", type=int, default=1_000_000)
     ap.add_argument("--timeout", type=float, default=900.0)
     ap.add_argument("--profile", type=Path, default=None, help="write a UI-thread profile here")
+    ap.add_argument(
+        "--trace-stalls", type=float, default=None, help="print stacks after a gap this long (s)"
+    )
     args = ap.parse_args(argv)
 
-    from PySide6.QtCore import QSettings
+    from PySide6.QtCore import QSettings, Qt
 
     from appraise.engine.modelspec import parse_model
     from appraise.gui.main_window import MainWindow
@@ -149,7 +161,7 @@ def main(argv: list[str] | None = None) -> int:
         session = Session()
         window = MainWindow(session, prefs)
         window.show()
-        meter = StallMeter()
+        meter = StallMeter(args.trace_stalls)
         app.processEvents()
         print(f"window with {args.rows:,} sales (offscreen Qt); longest UI-thread gap per phase")
         print(f"{'phase':<52}{'seconds':>9}{'longest gap ms':>16}")
@@ -191,6 +203,33 @@ def main(argv: list[str] | None = None) -> int:
             lambda: view.filter_edit.setText(""),
             lambda: view.model.rowCount() == session.sales.n_used,
         )
+
+        def settled(seconds: float):
+            """Done once the work is over and ``seconds`` have passed (a tab drawing)."""
+            t0 = time.perf_counter()
+            return lambda: time.perf_counter() - t0 > seconds and session.pending_tasks == 0
+
+        for name in ("plots_view", "diagnostics_view", "comparables_view", "regions_view"):
+            widget = getattr(window, name)
+            tab = widget
+            while tab is not None and window.centre_tabs.indexOf(tab) < 0:
+                tab = tab.parentWidget()  # a scrolling tab holds the view in a viewport
+            label = window.centre_tabs.tabText(window.centre_tabs.indexOf(tab)).replace("&", "")
+            done = settled(1.0)
+            phase(
+                f"show the {label} tab", lambda t=tab: window.centre_tabs.setCurrentWidget(t), done
+            )
+        header = view.model.headerData
+        price = next(
+            c
+            for c in range(view.model.columnCount())
+            if header(c, Qt.Orientation.Horizontal, Qt.ItemDataRole.DisplayRole) == "Sale Price"
+        )
+        phase(
+            "sort the sales by price (descending)",
+            lambda: view.table.sortByColumn(price, Qt.SortOrder.DescendingOrder),
+            settled(0.5),
+        )
         spec = parse_model(MODEL.replace('    "bathrooms",\n', ""))
         fit_before = session.fit
         phase(
@@ -199,6 +238,7 @@ def main(argv: list[str] | None = None) -> int:
             lambda: session.fit is not fit_before and session.pending_tasks == 0,
         )
         meter.timer.stop()
+        faulthandler.cancel_dump_traceback_later()
         window.setWindowModified(False)  # no "save the valuation?" box to wait on
         window.close()
         session.shutdown()
