@@ -47,6 +47,9 @@ from .valuation import DATE_SLACK_DAYS
 DEFAULT_CHUNK_ROWS = 50_000
 """Subjects valued at a time: the dense design of a chunk is chunk x p floats."""
 
+CSV_BLOCK_BYTES = 1 << 22
+"""Bytes of a CSV roll Arrow's reader parses at a time."""
+
 ID_HEADERS = ("id", "subject_id", "subject id", "parcel", "parcel_id", "parcel id")
 """Headers taken as the subject's id when no column lands on the sales' id column."""
 
@@ -674,8 +677,93 @@ def read_subject_chunks(
     headers, _ = clean_headers(first)
 
     def csv_chunks() -> Iterator[pd.DataFrame]:
-        reader = pd.read_csv(
-            p,
+        done = 0
+        if not _has_quotes(p):
+            try:
+                for frame in _arrow_csv_chunks(p, delimiter, headers, chunk_rows):
+                    yield frame
+                    done += len(frame)
+                return
+            except pa.ArrowException:
+                pass  # a row the fast reader refuses: pandas' reader decides, from there on
+        for frame in _pandas_csv_chunks(p, delimiter, headers, chunk_rows, file):
+            if done >= len(frame):
+                done -= len(frame)
+                continue
+            yield frame.iloc[done:].reset_index(drop=True) if done else frame
+            done = 0
+
+    return headers, csv_chunks()
+
+
+def _has_quotes(path: Path) -> bool:
+    """Whether the file holds a double quote anywhere (one pass over its bytes).
+
+    Arrow's reader and pandas' differ on a quoted field the file ends inside (pandas
+    refuses the file, Arrow reads it); a file without quotes has no such field.
+    """
+    with path.open("rb") as fh:
+        while block := fh.read(1 << 22):
+            if b'"' in block:
+                return True
+    return False
+
+
+def _arrow_csv_chunks(
+    path: Path, delimiter: str, headers: list[str], chunk_rows: int
+) -> Iterator[pd.DataFrame]:
+    """A regular CSV file's cells, every one as the text written, ``chunk_rows`` rows a
+    chunk, read by Arrow's reader (about ten times pandas' with text columns).
+
+    It refuses (raises ``pyarrow.ArrowException``) what it does not read as pandas' reader
+    does: a row with another number of fields than the header (pandas pads a short row),
+    a blank line, text that is not UTF-8; the caller then goes on with pandas' reader. It
+    is only asked for files without quotes (:func:`_has_quotes`).
+    """
+    import pyarrow.csv as pcsv
+
+    reader = pcsv.open_csv(
+        path,
+        read_options=pcsv.ReadOptions(
+            column_names=headers, skip_rows=1, block_size=CSV_BLOCK_BYTES
+        ),
+        parse_options=pcsv.ParseOptions(
+            delimiter=delimiter, newlines_in_values=True, ignore_empty_lines=False
+        ),
+        convert_options=pcsv.ConvertOptions(
+            column_types={h: pa.large_string() for h in headers},
+            null_values=[],
+            strings_can_be_null=False,
+            quoted_strings_can_be_null=False,
+        ),
+    )
+    pending: list[pa.RecordBatch] = []
+    held = 0
+    for batch in reader:
+        pending.append(batch)
+        held += batch.num_rows
+        while held >= chunk_rows:
+            table = pa.Table.from_batches(pending)
+            yield _text_frame(table.slice(0, chunk_rows), headers)
+            rest = table.slice(chunk_rows)
+            pending, held = rest.to_batches(), rest.num_rows
+    if held:
+        yield _text_frame(pa.Table.from_batches(pending), headers)
+
+
+def _text_frame(table: pa.Table, headers: list[str]) -> pd.DataFrame:
+    frame = table.combine_chunks().to_pandas()
+    frame.columns = headers
+    return frame
+
+
+def _pandas_csv_chunks(
+    path: Path, delimiter: str, headers: list[str], chunk_rows: int, file: str
+) -> Iterator[pd.DataFrame]:
+    """Any CSV file's cells as the text written (a short row padded with missing cells)."""
+    try:
+        yield from pd.read_csv(
+            path,
             sep=delimiter,
             dtype=str,
             keep_default_na=False,
@@ -686,12 +774,8 @@ def read_subject_chunks(
             header=0,
             names=headers,
         )
-        try:
-            yield from reader
-        except (pd.errors.ParserError, UnicodeDecodeError) as exc:
-            raise DataError(f"cannot read the subjects file: {exc}", file=file) from None
-
-    return headers, csv_chunks()
+    except (pd.errors.ParserError, UnicodeDecodeError) as exc:
+        raise DataError(f"cannot read the subjects file: {exc}", file=file) from None
 
 
 def _blas_threads():

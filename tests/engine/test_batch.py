@@ -10,6 +10,7 @@ from memory, consistent with the recomputation); and statsmodels OLS itself.
 from __future__ import annotations
 
 import json
+import tempfile
 from dataclasses import fields
 from pathlib import Path
 
@@ -25,19 +26,23 @@ from numpy.testing import assert_allclose, assert_array_equal
 from sales_factory import sales_from_frame
 
 from appraise import pipeline
+from appraise.engine import batch as batch_module
 from appraise.engine.batch import (
     OUTPUT_COLUMNS,
     _arrow_cells,
+    _arrow_csv_chunks,
     _arrow_texts,
     _clean_column,
+    _pandas_csv_chunks,
     count_rows,
     plan_columns,
+    read_subject_chunks,
     summarise,
     value_file,
     value_frame,
 )
 from appraise.engine.cells import is_missing
-from appraise.engine.errors import SubjectError
+from appraise.engine.errors import DataError, SubjectError
 from appraise.engine.fitting import fit_model
 from appraise.engine.modelspec import ModelSpec, parse_model
 from appraise.engine.settings import ImportSettings
@@ -372,3 +377,70 @@ def test_every_plain_decimal_of_a_column_read_at_once():
     series = pd.Series(["-0,1", "12,5", "7"], dtype=pd.StringDtype("pyarrow"))
     values, why = _arrow_cells(series, "number", ImportSettings(decimal=","), "c")
     assert why is None and list(values) == [-0.1, 12.5, 7.0]
+
+
+# --- reading a CSV roll: Arrow's reader where it reads as pandas' does ---------------------
+_CSV_PIECES = ["a", "1", " ", ",", "\n", "\r\n", "\r", "é", "\t", "x y", "\x00", "N/A", "-"]
+_CSV_FIELD = st.lists(st.sampled_from(_CSV_PIECES), max_size=3).map("".join)
+_CSV_ROW = st.lists(_CSV_FIELD, min_size=3, max_size=3).map(",".join)
+
+
+def _cells(frames) -> list[list]:
+    frames = list(frames)
+    if not frames:
+        return []
+    frame = pd.concat(frames, ignore_index=True)
+    return frame.astype(object).where(frame.notna(), None).values.tolist()
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(_CSV_ROW, max_size=6), st.sampled_from(["\n", "\r\n"]), st.integers(1, 3))
+def test_the_arrow_csv_reader_reads_as_pandas_or_refuses(rows, newline, chunk_rows):
+    # Files without quotes (the only ones it is given); pandas' C parser is the reference.
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "roll.csv"
+        path.write_bytes(("h1,h2,h3" + newline + newline.join(rows)).encode("utf-8"))
+        headers = ["h1", "h2", "h3"]
+        try:
+            reference = _cells(_pandas_csv_chunks(path, ",", headers, chunk_rows, "roll.csv"))
+        except DataError:
+            reference = None  # a row longer than the header: the file is refused
+        try:
+            fast = _cells(_arrow_csv_chunks(path, ",", headers, chunk_rows))
+        except pa.ArrowException:
+            fast = None  # refused: read_subject_chunks goes on with pandas
+        assert fast is None or fast == reference
+        _, chunks = read_subject_chunks(path, chunk_rows)
+        if reference is None:
+            with pytest.raises(DataError):
+                list(chunks)
+            return
+        parts = list(chunks)
+        assert _cells(parts) == reference
+        if fast is not None:
+            assert all(len(p) == chunk_rows for p in parts[:-1])
+
+
+def test_a_short_row_after_some_chunks_hands_over_to_pandas(tmp_path, monkeypatch):
+    monkeypatch.setattr(batch_module, "CSV_BLOCK_BYTES", 24)  # a few rows a block
+    path = tmp_path / "roll.csv"
+    lines = ["a,b,c"] + [f"{i},{i + 1},{i + 2}" for i in range(7)] + ["8,9"] + ["10,11,12"]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    fast = _arrow_csv_chunks(path, ",", ["a", "b", "c"], 3)
+    assert len(next(fast)) == 3  # Arrow's reader gives a chunk, then refuses the short row
+    with pytest.raises(pa.ArrowException):
+        list(fast)
+    _, chunks = read_subject_chunks(path, 3)
+    got = list(chunks)
+    assert sum(len(c) for c in got) == 9 and len(got[0]) == 3
+    reference = _cells(_pandas_csv_chunks(path, ",", ["a", "b", "c"], 3, "roll.csv"))
+    assert _cells(got) == reference
+    assert [r[0] for r in reference] == ["0", "1", "2", "3", "4", "5", "6", "8", "10"]
+
+
+def test_a_quote_the_file_ends_inside_is_refused(tmp_path):
+    path = tmp_path / "roll.csv"
+    path.write_text('a,b,c\n1,2,3\n4,x","\n', encoding="utf-8")
+    _, chunks = read_subject_chunks(path, 10)
+    with pytest.raises(DataError, match="cannot read the subjects file"):
+        list(chunks)
