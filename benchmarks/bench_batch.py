@@ -1,10 +1,12 @@
 """Batch valuation of a roll: appraise against a statsmodels script, side by side.
 
     python benchmarks/bench_batch.py [--sales 100000] [--subjects 1000000] [--regions 300]
+                                     [--roll parquet|csv]
 
 Invented data with a known truth (21 numeric attributes, ``--regions`` regions, a log
 price) is written to Parquet: the sales, and a roll of subjects drawn the same way (a few
-with a missing attribute or a region the sales never had, as a roll holds). Each side runs
+with a missing attribute or a region the sales never had, as a roll holds), the roll also
+as CSV with ``--roll csv`` (both sides then read the CSV). Each side runs
 in its own process, one after the other, and reports
 
 * the time to value every subject once the model is fitted (reading the subjects included;
@@ -40,8 +42,16 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 NUMERIC = 21
 
 
-def make_data(folder: Path, sales: int, subjects: int, regions: int, seed: int = 11) -> None:
-    """Sales and subjects Parquet files, and the model file, under ``folder``."""
+def make_data(
+    folder: Path,
+    sales: int,
+    subjects: int,
+    regions: int,
+    seed: int = 11,
+    roll_format: str = "parquet",
+) -> None:
+    """Sales and subjects Parquet files (the subjects also as CSV for ``roll_format="csv"``),
+    and the model file, under ``folder``."""
     rng = np.random.default_rng(seed)
     beta = rng.normal(0, 0.05, NUMERIC)
     effect = rng.normal(0, 0.2, regions)
@@ -63,6 +73,8 @@ def make_data(folder: Path, sales: int, subjects: int, regions: int, seed: int =
     roll.loc[odd[::2], "x1"] = np.nan  # a missing attribute
     roll.loc[odd[1::2], "region"] = "Nowhere"  # a level the sales never had
     roll.to_parquet(folder / "subjects.parquet", index=False)
+    if roll_format == "csv":
+        roll.to_csv(folder / "subjects.csv", index=False)
     features = [f"x{j + 1}" for j in range(NUMERIC)] + ["onehot(region, ref='R0000')"]
     from dataclasses import fields
 
@@ -85,7 +97,7 @@ def rss_mib() -> float:
     return float("nan")
 
 
-def side_appraise(folder: Path) -> dict:
+def side_appraise(folder: Path, roll: str) -> dict:
     from appraise import pipeline
     from appraise.commands.batch import _Writer
     from appraise.engine.batch import value_file
@@ -96,7 +108,7 @@ def side_appraise(folder: Path) -> dict:
     t0 = time.perf_counter()
     writer = _Writer(folder / "appraise_out.parquet", "parquet", {"caution": "estimate"})
     rows = valued = 0
-    for chunk in value_file(fit, sales, folder / "subjects.parquet"):
+    for chunk in value_file(fit, sales, folder / f"subjects.{roll}"):
         writer.write(chunk)
         rows += len(chunk)
         valued += int((chunk["reason"] == "").sum())
@@ -105,7 +117,7 @@ def side_appraise(folder: Path) -> dict:
     return {"seconds": seconds, "fitted_rss_mib": before, "rows": rows, "valued": valued}
 
 
-def side_statsmodels(folder: Path) -> dict:
+def side_statsmodels(folder: Path, roll_format: str) -> dict:
     import statsmodels.formula.api as smf
 
     sales = pd.read_parquet(folder / "sales.parquet")
@@ -115,7 +127,8 @@ def side_statsmodels(folder: Path) -> dict:
     smearing = float(np.mean(np.exp(res.resid)))
     before = rss_mib()
     t0 = time.perf_counter()
-    roll = pd.read_parquet(folder / "subjects.parquet")
+    path = folder / f"subjects.{roll_format}"
+    roll = pd.read_parquet(path) if roll_format == "parquet" else pd.read_csv(path)
     clean = roll[roll["x1"].notna() & roll["region"].isin(sales["region"].unique())]
     frame = res.get_prediction(clean).summary_frame(alpha=0.10)
     out = pd.DataFrame(
@@ -132,9 +145,9 @@ def side_statsmodels(folder: Path) -> dict:
     return {"seconds": seconds, "fitted_rss_mib": before, "rows": len(roll), "valued": len(out)}
 
 
-def run_side(name: str, folder: Path) -> dict:
+def run_side(name: str, folder: Path, roll: str) -> dict:
     """One side in a fresh process; its result and its peak resident memory."""
-    cmd = [sys.executable, __file__, "--side", name, "--folder", str(folder)]
+    cmd = [sys.executable, __file__, "--side", name, "--folder", str(folder), "--roll", roll]
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, text=True)
     out = proc.stdout.read() if proc.stdout else ""
     _, status, usage = os.wait4(proc.pid, 0)
@@ -162,21 +175,23 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--sales", type=int, default=100_000)
     ap.add_argument("--subjects", type=int, default=1_000_000)
     ap.add_argument("--regions", type=int, default=300)
+    ap.add_argument("--roll", choices=["parquet", "csv"], default="parquet", help="roll format")
     ap.add_argument("--side", choices=["appraise", "statsmodels"], help=argparse.SUPPRESS)
     ap.add_argument("--folder", help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.side:
         fn = side_appraise if args.side == "appraise" else side_statsmodels
-        print(json.dumps(fn(Path(args.folder))))
+        print(json.dumps(fn(Path(args.folder), args.roll)))
         return 0
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
-        make_data(folder, args.sales, args.subjects, args.regions)
+        make_data(folder, args.sales, args.subjects, args.regions, roll_format=args.roll)
         print(
             f"batch valuation: {args.subjects:,} subjects from a model of {args.sales:,} sales "
-            f"x ({NUMERIC} numeric + {args.regions} regions), log price; one run each"
+            f"x ({NUMERIC} numeric + {args.regions} regions), log price, {args.roll} roll; "
+            "one run each"
         )
-        results = {name: run_side(name, folder) for name in ("appraise", "statsmodels")}
+        results = {name: run_side(name, folder, args.roll) for name in ("appraise", "statsmodels")}
         print(f"{'side':<14}{'valued':>12}{'seconds':>10}{'RSS after fit':>15}{'peak RSS MiB':>14}")
         for name, r in results.items():
             print(
