@@ -308,7 +308,7 @@ def _arrow_texts(series: pd.Series) -> pd.Series | None:
 
 _PLAIN_DECIMAL = {".": r"^-?[0-9]+(?:\.[0-9]+)?$", ",": r"^-?[0-9]+(?:,[0-9]+)?$"}
 """Number texts read at once: what :func:`~.cells.parse_number` reads as the float of the
-text itself (its first, plain case). Longer than :data:`_PLAIN_LONGEST` characters they go
+text itself (its first, plain case). Longer than :data:`_PLAIN_LONGEST` bytes they go
 to the per-cell parser: up to that length no such text overflows a float (below 1e300)."""
 _PLAIN_LONGEST = 300
 
@@ -351,7 +351,7 @@ def _arrow_numbers(arr: pa.Array, settings: ImportSettings, header: str):
     if n == 0:
         return np.full(0, np.nan), None
     whole = pc.match_substring_regex(arr, pattern)
-    longest = pc.max(pc.utf8_length(arr)).as_py()
+    longest = pc.max(pc.binary_length(arr)).as_py()
     if whole.null_count == 0 and pc.all(whole).as_py() and longest <= _PLAIN_LONGEST:
         # every cell a plain decimal (a clean export): read at once
         digits = arr if settings.decimal == "." else pc.replace_substring(arr, ",", ".")
@@ -361,7 +361,7 @@ def _arrow_numbers(arr: pa.Array, settings: ImportSettings, header: str):
     missing = pc.fill_null(marker, True)  # a null is missing
     fast = pc.and_(
         pc.match_substring_regex(trimmed, pattern),
-        pc.less_equal(pc.utf8_length(trimmed), _PLAIN_LONGEST),
+        pc.less_equal(pc.binary_length(trimmed), _PLAIN_LONGEST),
     )
     fast = pc.fill_null(fast, False)
     digits = trimmed.filter(fast)
