@@ -20,11 +20,13 @@ import numpy as np
 
 from appraise.engine.diagnostics import Diagnostics
 from appraise.report.numbers import MISSING, money, number
+from appraise.report.plotdata import MAX_DRAWN, drawn_positions
 
 from .plot_items import (
     EXCLUDED_COLOUR,
     OKABE_ITO,
     SINGLE_COLOUR,
+    TEXT_COLOUR,
     GroupedAxis,
     money_axis,
     reference_line,
@@ -100,11 +102,27 @@ def _draw_sales(
     hollow: np.ndarray | None = None,
     hollow_name: str = "",
 ) -> None:
-    """Plain sales blue, flagged ones vermillion diamonds on top, all of one size."""
+    """Plain sales blue, flagged ones vermillion diamonds on top, all of one size.
+
+    Beyond :data:`~appraise.report.plotdata.MAX_DRAWN` sales a seeded random subsample
+    of the plain sales is drawn, and every flagged sale (or, beyond that many flagged,
+    a seeded subsample of them too); the title says so. The counts in the names are of
+    all sales, and the selection ring finds any sale, drawn or not.
+    """
     rows = np.asarray(d.rows, dtype=np.int64)
     flagged = np.zeros(d.n, dtype=bool)
     flagged[[f.position for f in d.flags]] = True
     finite = np.isfinite(x) & np.isfinite(y)
+    shown = finite
+    if d.n > MAX_DRAWN:
+        picked = np.zeros(d.n, dtype=bool)
+        picked[drawn_positions(d.n)] = True
+        flag_at = np.flatnonzero(flagged)
+        picked[flag_at[drawn_positions(len(flag_at))]] = True
+        shown = finite & picked
+        every = "every flagged sale" if len(flag_at) <= MAX_DRAWN else f"{MAX_DRAWN:,} flagged"
+        note = f"{int(picked.sum()):,} of {d.n:,} sales drawn, a seeded random sample; {every}"
+        sp.plot.setTitle(f"{sp.plot.titleLabel.text} ({note})", size="11pt", color=TEXT_COLOUR)
     hollow = np.zeros(d.n, dtype=bool) if hollow is None else hollow
     groups = (
         (finite & hollow, EXCLUDED_COLOUR, "o", True, hollow_name, -1),
@@ -114,10 +132,11 @@ def _draw_sales(
     for mask, colour, symbol, empty, name, z in groups:
         if not mask.any():
             continue
+        draw = mask & shown
         s = sale_scatter(
-            x[mask],
-            y[mask],
-            rows[mask],
+            x[draw],
+            y[draw],
+            rows[draw],
             colour=colour,
             symbol=symbol,
             hollow=empty,

@@ -195,14 +195,40 @@ def _pct(x: float) -> str:
 
 def flagged_cells(d: Diagnostics) -> list[tuple[str, str, str]]:
     """Row, sale id and findings of each flagged sale, most influential first."""
-    return [
-        (
-            str(f.row),
-            f.sale_id or "",
-            unscientific("; ".join(without_source_tags(x.text) for x in f.findings)),
-        )
-        for f in d.flags
-    ]
+    return [flagged_row(f) for f in d.flags]
+
+
+def flagged_row(f) -> tuple[str, str, str]:
+    """Row, sale id and findings of one flagged sale (a ``Flag`` of the diagnostics)."""
+    return (
+        str(f.row),
+        f.sale_id or "",
+        unscientific("; ".join(without_source_tags(x.text) for x in f.findings)),
+    )
+
+
+class LazyRows(Sequence):
+    """``n`` table rows (or tooltips) made by ``make(k)`` only when a view asks for row
+    ``k``, and kept: a county's tens of thousands of flagged sales are not all formatted
+    when the checks arrive, only the ones scrolled to."""
+
+    def __init__(self, n: int, make: Callable[[int], object]) -> None:
+        self._n, self._make = n, make
+        self._made: dict[int, object] = {}
+
+    def __len__(self) -> int:
+        return self._n
+
+    def __getitem__(self, k):  # type: ignore[override]
+        if isinstance(k, slice):
+            return [self[i] for i in range(*k.indices(self._n))]
+        if k < 0:
+            k += self._n
+        if not 0 <= k < self._n:
+            raise IndexError(k)
+        if k not in self._made:
+            self._made[k] = self._make(k)
+        return self._made[k]
 
 
 def term_cells(d: Diagnostics) -> tuple[list[tuple[str, ...]], dict[tuple[int, int], str]]:
@@ -547,9 +573,10 @@ class TextTableModel(QAbstractTableModel):
         tips: Sequence[str] = (),
     ) -> None:
         self.beginResetModel()
-        self.cells = [tuple(r) for r in cells]
+        # lazy rows stay lazy (made when shown); others are copied as they are
+        self.cells = cells if isinstance(cells, LazyRows) else [tuple(r) for r in cells]
         self.colours = dict(colours or {})
-        self.tips = list(tips)
+        self.tips = tips if isinstance(tips, LazyRows) else list(tips)
         self.muted = set()
         self.endResetModel()
 

@@ -66,11 +66,12 @@ from .diagnostics_plots import influence_figure, legend_html, ratio_figure
 from .diagnostics_tables import (
     OUTSIDE_COLOUR,
     VERDICT_MARKS,
+    LazyRows,
     SaleChecksModel,
     SummaryItem,
     TextTableModel,
     condition_text,
-    flagged_cells,
+    flagged_row,
     measure_cells,
     ratio_note,
     spread_advice,
@@ -476,8 +477,12 @@ class DiagnosticsView(QWidget):
         advice = spread_advice(d)
         self.advice.setText(advice)
         self.advice.setVisible(bool(advice))
+        flags = d.flags  # formatted when shown: a county's checks flag tens of thousands
         self.flagged_model.set_rows(
-            flagged_cells(d), tips=[f.reason + "\n\n" + f.model_file_line() for f in d.flags]
+            LazyRows(len(flags), lambda k: flagged_row(flags[k])),
+            tips=LazyRows(
+                len(flags), lambda k: flags[k].reason + "\n\n" + flags[k].model_file_line()
+            ),
         )
         self._exclusions_changed()
         self.tabs.setTabText(0, f"Flagged sales ({len(d.flags)} of {d.n})")

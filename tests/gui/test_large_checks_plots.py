@@ -1,0 +1,63 @@
+"""The checks plots beyond the drawn-sales limit: a seeded subsample of the plain sales,
+every flagged sale, and a title that says so; the flagged table formats rows when asked.
+
+The limit is lowered to 100 so that the sample's 598 checked sales count as many (a
+county's million would take the engine, not the plot, most of the test's time).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+import appraise.gui.diagnostics_plots as diagnostics_plots
+import appraise.report.plotdata as plotdata
+from appraise.gui.diagnostics_plots import influence_figure, ratio_figure
+from appraise.gui.diagnostics_tables import LazyRows, TextTableModel, flagged_cells
+
+
+def _drawn(sp) -> dict[str, np.ndarray]:
+    return {s.name(): np.asarray(s.data["data"], dtype=np.int64) for s in sp.scatters}
+
+
+def test_checks_plots_draw_a_seeded_subsample_and_every_flag(qtbot, sample_analysis, monkeypatch):
+    d = sample_analysis[0].diagnostics
+    flagged_rows = {f.row for f in d.flags}
+    assert 0 < len(flagged_rows) < 100 < d.n
+    whole = influence_figure(d)
+    assert sum(len(v) for v in _drawn(whole).values()) > 100  # below the limit: every sale
+
+    monkeypatch.setattr(plotdata, "MAX_DRAWN", 100)
+    monkeypatch.setattr(diagnostics_plots, "MAX_DRAWN", 100)
+    for figure in (influence_figure, ratio_figure):
+        sp = figure(d)
+        drawn = _drawn(sp)
+        every = np.concatenate(list(drawn.values()))
+        plain = next(v for k, v in drawn.items() if k.startswith("Sales"))
+        flags = next(v for k, v in drawn.items() if k.startswith("Flagged"))
+        assert set(flags.tolist()) == flagged_rows  # every flagged sale is drawn
+        assert len(plain) <= 100 and len(every) <= 100 + len(flagged_rows)
+        assert f"of {d.n:,} sales drawn, a seeded random sample" in sp.plot.titleLabel.text
+        assert f"Flagged ({len(flagged_rows)})" in drawn  # counts are of all sales
+        again = _drawn(figure(d))  # seeded: the same sales on every redraw
+        assert all(np.array_equal(again[k], v) for k, v in drawn.items())
+        # the ring still finds a sale that is not drawn
+        hidden = next(int(r) for r in d.rows if int(r) not in set(every.tolist()))
+        assert sp.position(hidden) is not None
+
+
+def test_flagged_rows_are_made_when_asked(sample_analysis):
+    d = sample_analysis[0].diagnostics
+    made: list[int] = []
+    expected = flagged_cells(d)
+
+    def make(k: int):
+        made.append(k)
+        return expected[k]
+
+    model = TextTableModel(("Row", "Sale", "Why"))
+    model.set_rows(LazyRows(len(expected), make))
+    assert model.rowCount() == len(expected) and made == []
+    last = len(expected) - 1
+    assert model.data(model.index(last, 1)) == expected[last][1]
+    assert model.data(model.index(last, 2)) == expected[last][2]
+    assert made == [last]  # made once, then kept
