@@ -159,10 +159,10 @@ def parse_number(value: object, *, decimal: DecimalMark = ".", currency_symbol: 
     if isinstance(value, int | float | Decimal | np.integer | np.floating):
         v = float(value)
         if not math.isfinite(v):
-            raise ValueError(f"'{value}' is not a finite number")
+            raise ValueError(f"'{brief(str(value))}' is not a finite number")
         return v
     if isinstance(value, datetime | date):
-        raise ValueError(f"'{value}' is a date, not a number")
+        raise ValueError(f"'{brief(str(value))}' is a date, not a number")
     text = str(value)
     v = _read_number_text(text, decimal, currency_symbol)
     if v is None:
@@ -170,7 +170,7 @@ def parse_number(value: object, *, decimal: DecimalMark = ".", currency_symbol: 
         hint = ""
         if _read_number_text(text, other, currency_symbol) is not None:
             hint = f" with decimal mark '{decimal}' (it would read with decimal mark '{other}')"
-        raise ValueError(f"'{text.strip()}' is not a number{hint}")
+        raise ValueError(f"'{brief(text.strip())}' is not a number{hint}")
     return v
 
 
@@ -273,20 +273,20 @@ def _time_of(groups: tuple[str | None, ...], text: str) -> timedelta:
     h, m, s = int(hh), int(mm), int(ss or 0)
     if ampm is not None:
         if not 1 <= h <= 12:
-            raise ValueError(f"'{text}' is not a date")
+            raise ValueError(f"'{brief(text)}' is not a date")
         h = h % 12 + (12 if ampm.lower() == "pm" else 0)
     if h > 23 or m > 59 or s > 59:
-        raise ValueError(f"'{text}' is not a date")
+        raise ValueError(f"'{brief(text)}' is not a date")
     return timedelta(hours=h, minutes=m, seconds=s)
 
 
 def _make(y: int, m: int, d: int, text: str) -> datetime:
     if not _FIRST_YEAR <= y <= _LAST_YEAR:
-        raise ValueError(f"'{text}' is outside the years {_FIRST_YEAR}-{_LAST_YEAR}")
+        raise ValueError(f"'{brief(text)}' is outside the years {_FIRST_YEAR}-{_LAST_YEAR}")
     try:
         return datetime(y, m, d)
     except ValueError:
-        raise ValueError(f"'{text}' is not a date") from None
+        raise ValueError(f"'{brief(text)}' is not a date") from None
 
 
 def excel_serial_to_datetime(serial: float) -> datetime:
@@ -330,7 +330,7 @@ def parse_date(value: object, *, order: DateOrder = "ISO", serial_ok: bool = Fal
     if isinstance(value, int | float | np.integer | np.floating) and not isinstance(value, bool):
         if serial_ok:
             return DateReading(excel_serial_to_datetime(float(value)), "serial")
-        raise ValueError(f"'{value}' is a number, not a date")
+        raise ValueError(f"'{brief(str(value))}' is a number, not a date")
     text = str(value).strip()
     m = _ISO.fullmatch(text)
     if m is not None:
@@ -343,11 +343,11 @@ def parse_date(value: object, *, order: DateOrder = "ISO", serial_ok: bool = Fal
     if m is not None:
         a, b, year = int(m.group(1)), int(m.group(3)), m.group(4)
         if len(year) == 2:
-            raise ValueError(f"'{text}' has a two-digit year; write the year in full")
+            raise ValueError(f"'{brief(text)}' has a two-digit year; write the year in full")
         y = int(year)
         t = _time_of(m.groups()[4:], text)
         if a > 12 and b > 12:
-            raise ValueError(f"'{text}' is not a date")
+            raise ValueError(f"'{brief(text)}' is not a date")
         if a > 12:
             return DateReading(_make(y, b, a, text) + t, "day_first")
         if b > 12:
@@ -366,7 +366,7 @@ def parse_date(value: object, *, order: DateOrder = "ISO", serial_ok: bool = Fal
             d = int(m.group(day_group))
             t = _time_of(m.groups()[3:], text)
             return DateReading(_make(int(m.group(3)), month, d, text) + t, "named")
-    raise ValueError(f"'{text}' is not a date")
+    raise ValueError(f"'{brief(text)}' is not a date")
 
 
 # --- yes/no flags --------------------------------------------------------------------
@@ -467,10 +467,22 @@ def parse_flag(value: object) -> bool:
         return False
     if tokens and tokens[0] in _NEGATIONS and " ".join(tokens[1:]) in _YES:
         return False
-    raise ValueError(f"'{str(value).strip()}' is not yes or no")
+    raise ValueError(f"'{brief(str(value).strip())}' is not yes or no")
 
 
 # --- text ----------------------------------------------------------------------------
+
+
+BRIEF_CHARS = 80
+"""A cell quoted in a reason or a note is cut to this many characters."""
+
+
+def brief(text: str, limit: int = BRIEF_CHARS) -> str:
+    """``text`` as a reason quotes it: whole when short, else its start and its length
+    (a cell of five million digits must not make a five-megabyte message)."""
+    if len(text) <= limit:
+        return text
+    return f"{text[: limit - 20]}… ({len(text):,} characters)"
 
 
 def clean_text(value: object) -> str:

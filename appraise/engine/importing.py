@@ -33,6 +33,7 @@ import pandas as pd
 from .cell_columns import blank_mask, fast_iso_dates, fast_numbers, missing_mask, strip_texts
 from .cells import (
     area_unit_of,
+    brief,
     clean_text,
     is_missing,
     parse_date,
@@ -44,7 +45,7 @@ from .csv_reading import DELIMITERS as DELIMITERS  # re-exported: part of this m
 from .csv_reading import CsvScan, file_sha256, read_csv_cells, scan_csv
 from .csv_reading import sniff_delimiter as sniff_delimiter
 from .errors import DataError, RoleError
-from .limits import check_parquet, check_xlsx
+from .limits import check_columns, check_parquet, check_xlsx
 from .plausibility import DEFAULT_RULES, PlausibilityRules, RowChecks, decide_decimal_mark
 from .roles import AREA_ROLES, ROLE_KINDS, RoleMap, guess_roles, list_headers, resolve_roles
 from .sales import ROW_COLUMN, Exclusion, SalesTable, SourceInfo
@@ -620,7 +621,7 @@ def _no_price_error(headers: Sequence[str], file: str) -> RoleError:
 
 
 def _raw_text(v: object) -> str:
-    return "" if v is None else clean_text(v)
+    return "" if v is None else brief(clean_text(v))
 
 
 def load_sales(
@@ -689,6 +690,7 @@ def load_sales(
             raw = read_raw_table(p, None, fmt, settings, progress)
     except OSError as exc:
         raise DataError(f"cannot read the file: {exc.strerror}", file=file) from None
+    check_columns(len(raw.headers), file)
     if raw.n_rows == 0:
         raise DataError("the file has a header but no rows of sales", file=file)
     headers, header_notes = clean_headers(raw.headers)
@@ -898,7 +900,8 @@ def _exclusions(
         take(
             repeats,
             lambda i: (
-                f"duplicate sale id '{ids[i]}' (first seen on row {first_of_id[str(ids[i])]})"
+                f"duplicate sale id '{brief(str(ids[i]))}' "
+                f"(first seen on row {first_of_id[str(ids[i])]})"
             ),
             id_col,
         )

@@ -379,3 +379,18 @@ def check_parquet(path: Path) -> None:
             f"the limit is {MAX_PARQUET_CELLS:,} cells",
             file=str(path),
         )
+
+
+MAX_SALES_COLUMNS = 2_000
+"""Columns a sales file may have (a listing export has a few hundred at most; each column
+is cleaned on its own, so twenty thousand of them would take a minute)."""
+
+
+def check_columns(n: int, file: str) -> None:
+    """DataError when a sales file has more than :data:`MAX_SALES_COLUMNS` columns."""
+    if n > MAX_SALES_COLUMNS:
+        raise DataError(
+            f"the file has {n:,} columns; the limit is {MAX_SALES_COLUMNS:,} "
+            "(keep the columns the valuation needs)",
+            file=file,
+        )

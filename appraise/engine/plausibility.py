@@ -48,7 +48,7 @@ import numpy as np
 import pandas as pd
 
 from .cell_columns import fast_numbers
-from .cells import clean_text, parse_number
+from .cells import brief, clean_text, parse_number
 from .coded_cells import CodedCells
 
 
@@ -135,7 +135,7 @@ class RowChecks:
 
     def cell(self, column: str, i: int) -> str:
         v = self.raw[column][i]
-        return "" if v is None else clean_text(v)
+        return "" if v is None else brief(clean_text(v))
 
     def price(self, open_rows: np.ndarray) -> list[Check]:
         if "price" not in self.values:
@@ -143,7 +143,7 @@ class RowChecks:
         r, (col, price) = self.rules, self.values["price"]
         finite = np.isfinite(price)
         with np.errstate(invalid="ignore"):
-            high = finite & (price > r.max_price)
+            high = price > r.max_price  # an infinite price too (a number too long to hold)
             tiny = finite & (price < r.min_price_absolute)
             low = finite & (price < r.min_price) & ~tiny
         out: list[Check] = [
@@ -193,9 +193,8 @@ class RowChecks:
             if role not in self.values:
                 continue
             col, area = self.values[role]
-            finite = np.isfinite(area)
-            with np.errstate(invalid="ignore"):
-                nonpos, huge = finite & (area <= 0), finite & (area > top)
+            with np.errstate(invalid="ignore"):  # NaN (missing) breaks neither; +-inf does
+                nonpos, huge = area <= 0, area > top
             what = role.replace("_", " ")
             out.append(
                 (nonpos, lambda i, w=what, c=col: f"{w} '{self.cell(c, i)}' is not positive", col)

@@ -528,3 +528,49 @@ def test_a_parquet_file_declaring_too_many_cells_is_refused_from_its_footer(tmp_
     monkeypatch.setattr(limits, "MAX_PARQUET_CELLS", 1_000_000)
     with pytest.raises(DataError, match="2,000,000 rows x 1 columns .* the limit is 1,000,000"):
         load_sales(p)
+
+
+# --- numbers too long to hold, cells too long to quote, too many columns ------------------
+
+
+def test_a_number_too_long_for_a_float_is_excluded_not_used_as_infinity(tmp_path):
+    """'9' x 400 reads as +inf (float overflow): an infinite price or area must break the
+    plausibility rules like any absurd value (it was used, and the mean price was inf)."""
+    path = tmp_path / "long.csv"
+    path.write_text(
+        "Sale ID,Sale Price,Living Area\n"
+        f"A,{'9' * 400},1500\n"
+        f"B,300000,{'9' * 400}\n"
+        f"C,310000,-{'9' * 400}\n"
+        "D,320000,1600\n",
+        encoding="utf-8",
+    )
+    table = load_sales(path)
+    assert table.frame["Sale ID"].tolist() == ["D"]
+    reasons = {e.sale_id: e.reason for e in table.excluded}
+    assert reasons["A"].startswith("price '") and "is above the plausible" in reasons["A"]
+    assert "is above the plausible 100,000" in reasons["B"]
+    assert reasons["C"].startswith("living area '-999") and "is not positive" in reasons["C"]
+    assert "(401 characters)" in reasons["C"]  # quoted briefly
+
+
+def test_a_huge_cell_is_quoted_briefly(tmp_path):
+    path = tmp_path / "huge.csv"
+    path.write_text(
+        f"Sale ID,Sale Price\nA,1{'9' * 1_000_000}x\nB,300000\nB,310000\n", encoding="utf-8"
+    )
+    table = load_sales(path)
+    (bad, again) = table.excluded
+    assert len(bad.reason) < 200 and "(1,000,002 characters)" in bad.reason
+    assert again.reason == "duplicate sale id 'B' (first seen on row 3)"
+
+
+def test_too_many_columns_are_refused_before_any_is_cleaned(tmp_path):
+    path = tmp_path / "wide.csv"
+    n = limits.MAX_SALES_COLUMNS + 1
+    path.write_text(
+        ",".join(f"c{i}" for i in range(n - 1)) + ",price\n" + ",".join(["1"] * n) + "\n",
+        encoding="utf-8",
+    )
+    with pytest.raises(DataError, match=r"the file has 2,001 columns; the limit is 2,000"):
+        load_sales(path)
