@@ -18,11 +18,12 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QPoint, QTimer
+from PySide6.QtCore import QPoint, QThreadPool, QTimer
 from PySide6.QtWidgets import QGraphicsEllipseItem, QLabel, QMenu, QVBoxLayout, QWidget
 
 from appraise.engine.sales import Exclusion, SalesTable
 from appraise.report.plotdata import (
+    MAX_DRAWN,
     PlotData,
     SalePoints,
     group_order,
@@ -54,6 +55,7 @@ from .plot_items import (
     subject_marker,
 )
 from .sales_view import exclude_with_reason
+from .workers import Task, TaskSignals
 
 if TYPE_CHECKING:
     from appraise.engine.fitting import FitResult
@@ -178,23 +180,27 @@ def _scatter_sales(
     sp: SalePlot, pts: SalePoints, x: np.ndarray, y: np.ndarray, currency: str
 ) -> None:
     """Excluded sales hollow and grey underneath, used sales on top by region group
-    (beyond the readable number of colours the smallest regions share one "other")."""
-    drawn_mask = np.zeros(len(pts), dtype=bool)
-    drawn_mask[pts.drawn()] = True
-    finite = np.isfinite(x) & np.isfinite(y) & drawn_mask
-    order_idx = np.argsort(pts.rows, kind="stable")
-    order_rows = pts.rows[order_idx]
+    (beyond the readable number of colours the smallest regions share one "other").
+
+    Only the drawn positions (all sales, or the seeded subsample) are looked at, so a
+    county's million sales cost what its 20,000 drawn ones do."""
+    drawn_at = pts.drawn()  # positions, sorted
+    dx, dy, rows = x[drawn_at], y[drawn_at], pts.rows[drawn_at]
+    finite = np.isfinite(dx) & np.isfinite(dy)
+    used = pts.used[drawn_at]
+    order_idx = np.argsort(rows, kind="stable")
+    order_rows = rows[order_idx]
 
     def tip(x=None, y=None, data=None):
         i = int(np.searchsorted(order_rows, data))
-        return pts.describe(int(order_idx[i]), currency)
+        return pts.describe(int(drawn_at[order_idx[i]]), currency)
 
-    out = ~pts.used & finite
+    out = ~used & finite
     if out.any():
         s = sale_scatter(
-            x[out],
-            y[out],
-            pts.rows[out],
+            dx[out],
+            dy[out],
+            rows[out],
             colour=EXCLUDED_COLOUR,
             hollow=True,
             name=f"Excluded ({int((~pts.used).sum())})",
@@ -203,24 +209,25 @@ def _scatter_sales(
         s.setZValue(-1)
         sp.plot.addItem(s)
         sp.scatters.append(s)
-    keep = pts.used & finite
+    keep = used & finite
     if pts.groups is None:
         groups = [("Sales", keep, SINGLE_COLOUR, "o")]
     else:
-        styles = region_styles(group_order(pts.groups))
+        styles = region_styles(group_order(pts.groups))  # colours from every sale's group
+        drawn_groups = pts.groups[drawn_at]
         groups = [
-            (lvl, keep & (pts.groups == lvl), st.colour, st.symbol) for lvl, st in styles.items()
+            (lvl, keep & (drawn_groups == lvl), st.colour, st.symbol) for lvl, st in styles.items()
         ]
     for name, mask, colour, symbol in groups:
         if mask.any():
             s = sale_scatter(
-                x[mask], y[mask], pts.rows[mask], colour=colour, symbol=symbol, name=name, tip=tip
+                dx[mask], dy[mask], rows[mask], colour=colour, symbol=symbol, name=name, tip=tip
             )
             sp.plot.addItem(s)
             sp.scatters.append(s)
     drawn = order_idx[finite[order_idx]]
-    sp.rows = pts.rows[drawn]
-    sp.xy = np.column_stack([x[drawn], y[drawn]])
+    sp.rows = rows[drawn]
+    sp.xy = np.column_stack([dx[drawn], dy[drawn]])
     sp.roles = pts.roles
     sp.ring = selection_ring()
     sp.plot.addItem(sp.ring)
@@ -452,6 +459,10 @@ class PlotsView(QWidget):
     tens of thousands of sales, drawing them is the slow part). Moves the selection
     ring on ``selectionChanged``. A click selects a sale in the
     session; a right click offers to exclude it (asking why) or to use it again.
+
+    Beyond :data:`~appraise.report.plotdata.MAX_DRAWN` sales the points are collected
+    (:func:`~appraise.report.plotdata.sale_points`, half a second at a million sales) on
+    a pool thread; the plots shown stay until the new ones are drawn.
     """
 
     def __init__(self, session: Session, parent: QWidget | None = None) -> None:
@@ -460,6 +471,12 @@ class PlotsView(QWidget):
         self.figures: list[SalePlot] = []
         self._drawn_for: tuple = ()
         self._stale = True
+        self._points_gen = 0
+        self._points_pool = QThreadPool(self)
+        self._points_pool.setMaxThreadCount(1)
+        self._points_signals = TaskSignals(self)
+        self._points_signals.finished.connect(self._points_ready)
+        self.collecting = False  # points being collected on the pool thread
         self.legend = QLabel(self)
         self.legend.setWordWrap(True)
         self.canvas = pg.GraphicsLayoutWidget(self)
@@ -522,12 +539,47 @@ class PlotsView(QWidget):
                 f.set_subject(valuation, s.subject)
             return
         self._drawn_for = drawn_for
-        self.canvas.clear()
+        self._points_gen += 1  # points still being collected for older inputs are dropped
+        self.collecting = False
         if sales is None:
+            self.canvas.clear()
             self.figures = []
             self.legend.setText("Load a sales file to see the plots.")
             return
-        pts = sale_points(fit, sales=sales, user_exclusions=s.user_exclusions)
+        exclusions = s.user_exclusions
+        if len(sales.frame) > MAX_DRAWN:
+            gen = self._points_gen
+            job = Task(
+                gen,
+                lambda _r: sale_points(fit, sales=sales, user_exclusions=exclusions),
+                self._points_signals,
+            )
+            self.collecting = True
+            self._points_pool.start(job)
+            return
+        self._draw(fit, valuation, sales, sale_points(fit, sales=sales, user_exclusions=exclusions))
+
+    def _points_ready(self, gen: int, pts: object) -> None:
+        if gen != self._points_gen:
+            return
+        self.collecting = False
+        fit, valuation, sales = self._current()
+        self._draw(fit, valuation, sales, pts)  # type: ignore[arg-type]
+
+    def wait_for_points(self, timeout_ms: int = 60_000) -> None:
+        """Block until points being collected on the pool thread are in (closing, tests)."""
+        self._points_pool.waitForDone(timeout_ms)
+
+    def _draw(
+        self,
+        fit: FitResult | None,
+        valuation: Valuation | None,
+        sales: SalesTable,
+        pts: SalePoints,
+    ) -> None:
+        s = self.session
+        currency = s.import_settings.currency_symbol or "$"
+        self.canvas.clear()
         common = dict(
             user_exclusions=s.user_exclusions,
             currency=currency,

@@ -61,3 +61,31 @@ def test_flagged_rows_are_made_when_asked(sample_analysis):
     assert model.data(model.index(last, 1)) == expected[last][1]
     assert model.data(model.index(last, 2)) == expected[last][2]
     assert made == [last]  # made once, then kept
+
+
+def test_sale_plots_of_a_large_file_collect_their_points_on_the_pool(
+    qtbot, session, sample_copy, monkeypatch
+):
+    from conftest import WAIT_MS
+
+    import appraise.gui.plots as plots
+
+    monkeypatch.setattr(plotdata, "MAX_DRAWN", 100)  # the sample's 600 sales count as many
+    monkeypatch.setattr(plots, "MAX_DRAWN", 100)
+    view = plots.PlotsView(session)
+    qtbot.addWidget(view)
+    view.show()
+    with qtbot.waitSignals([session.fitFinished, session.valuationChanged], timeout=WAIT_MS):
+        session.load_with_companions(sample_copy)
+    qtbot.waitUntil(lambda: session.pending_tasks == 0, timeout=WAIT_MS)
+    view._drawn_for = ()  # forget what was drawn: the current inputs are collected afresh...
+    view.redraw()
+    assert view.collecting  # ...on the pool thread: redraw() returned before the points
+    qtbot.waitUntil(lambda: not view.collecting and len(view.figures) == 4, timeout=WAIT_MS)
+    price_area = view.figures[0]
+    drawn = {int(r) for sc in price_area.scatters for r in sc.data["data"]}
+    assert 0 < len(drawn) <= 100
+    assert "100 of 600 sales drawn (a seeded random sample)" in price_area.plot.titleLabel.text
+    expected = plotdata.sale_points(session.fit, user_exclusions=session.user_exclusions)
+    assert set(expected.rows[expected.drawn()].tolist()) >= drawn
+    view.wait_for_points()
