@@ -180,3 +180,25 @@ def test_a_large_table_searches_on_the_pool(qtbot, loaded, monkeypatch):
         assert model.rowCount() == N  # not a narrowing: every row until the search lands
     assert model.rowCount() == int((frame["Neighbourhood"] == "Old Mill").sum())
     model.wait_for_index()
+
+
+@pytest.mark.parametrize("descending", [False, True])
+@pytest.mark.parametrize("kind", ["float", "int", "int at its minimum", "text", "dates"])
+def test_stable_sort_gives_the_positions_pandas_gives(kind, descending):
+    from appraise.gui.table_sorting import stable_sort
+
+    rng = np.random.default_rng(3)
+    n = 20_000
+    keys = {
+        "float": pd.Series(np.where(rng.random(n) < 0.05, np.nan, rng.integers(0, 300, n) / 4)),
+        "int": pd.Series(rng.integers(-50, 50, n)),
+        "int at its minimum": pd.Series(np.r_[np.iinfo(np.int64).min, rng.integers(-5, 5, n - 1)]),
+        "text": pd.Series(rng.choice(["b", "a", None, "c"], n), dtype=object),
+        "dates": pd.Series(pd.to_datetime(rng.integers(0, 40, n), unit="D")).where(
+            rng.random(n) > 0.1
+        ),
+    }[kind]
+    # ties (few distinct keys) keep their original order; missing values last
+    expected = keys.sort_values(ascending=not descending, kind="stable", na_position="last")
+    got = stable_sort(keys, descending)
+    assert got.tolist() == expected.index.tolist()
