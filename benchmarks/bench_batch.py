@@ -108,13 +108,16 @@ def side_appraise(folder: Path, roll: str) -> dict:
     t0 = time.perf_counter()
     writer = _Writer(folder / "appraise_out.parquet", "parquet", {"caution": "estimate"})
     rows = valued = 0
+    during = []  # resident memory after each chunk: flat, however long the roll
     for chunk in value_file(fit, sales, folder / f"subjects.{roll}"):
         writer.write(chunk)
         rows += len(chunk)
         valued += int((chunk["reason"] == "").sum())
+        during.append(rss_mib())
     writer.close()
     seconds = time.perf_counter() - t0
-    return {"seconds": seconds, "fitted_rss_mib": before, "rows": rows, "valued": valued}
+    flat = {"first_chunk_rss_mib": during[0], "last_chunk_rss_mib": during[-1]}
+    return {"seconds": seconds, "fitted_rss_mib": before, "rows": rows, "valued": valued} | flat
 
 
 def side_statsmodels(folder: Path, roll_format: str) -> dict:
@@ -206,6 +209,10 @@ def main(argv: list[str] | None = None) -> int:
             f"{a['rows']:,} of {args.subjects:,}"
         )
         print(f"largest relative difference of the values: {compare_outputs(folder):.1e}")
+        print(
+            f"appraise's resident memory after its first chunk {a['first_chunk_rss_mib']:,.0f} "
+            f"MiB, after its last {a['last_chunk_rss_mib']:,.0f} MiB"
+        )
     return 0
 
 
