@@ -10,6 +10,23 @@ row 1, the first sale is row 2.
 
 from __future__ import annotations
 
+import re
+
+_LONGEST = 300  # characters of a file or column name, or of one quoted value, shown whole
+_QUOTED = re.compile("'([^']{" + str(_LONGEST + 1) + ",})'")
+
+
+def _cut(text: str) -> str:
+    return f"{text[: _LONGEST - 40]}… ({len(text):,} characters)"
+
+
+def _brief_quotes(message: str) -> str:
+    """``message`` with every quoted value longer than 300 characters cut (a value from a
+    file can be megabytes long; the message must stay one readable line)."""
+    if len(message) <= _LONGEST:
+        return message
+    return _QUOTED.sub(lambda m: f"'{_cut(m.group(1))}'", message)
+
 
 class AppraiseError(Exception):
     """Base of every user-facing error.
@@ -30,11 +47,12 @@ class AppraiseError(Exception):
         row: int | None = None,
         column: str | None = None,
     ) -> None:
+        message = _brief_quotes(message)
         super().__init__(message)
         self.message = message
-        self.file = file
+        self.file = file if file is None or len(str(file)) <= _LONGEST else _cut(str(file))
         self.row = row
-        self.column = column
+        self.column = column if column is None or len(column) <= _LONGEST else _cut(column)
 
     def __str__(self) -> str:
         where = []

@@ -574,3 +574,32 @@ def test_too_many_columns_are_refused_before_any_is_cleaned(tmp_path):
     )
     with pytest.raises(DataError, match=r"the file has 2,001 columns; the limit is 2,000"):
         load_sales(path)
+
+
+# the string patterns of the nesting count, written one character at a time: slow on long
+# strings, but plainly right; the unrolled patterns in limits.py must cut the same spans
+_JSON_STRING_PER_CHAR = r'"(?:[^"\\]|\\.)*"'
+_TOML_SKIP_PER_CHAR = (
+    r'"""[\s\S]*?"""|\'\'\'[\s\S]*?\'\'\'|"(?:[^"\\\n]|\\.)*"|\'[^\'\n]*\'|#[^\n]*'
+)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.text(alphabet="ab\"\\\n{}[]#' .=", max_size=60))
+def test_the_fast_string_patterns_cut_what_the_per_character_ones_cut(text):
+    import re
+
+    assert limits._JSON_STRING.sub("", text) == re.sub(_JSON_STRING_PER_CHAR, "", text, flags=re.S)
+    assert limits._TOML_SKIP.sub("", text) == re.sub(_TOML_SKIP_PER_CHAR, "", text)
+
+
+def test_a_subject_with_a_five_megabyte_value_is_refused_in_one_short_line(tmp_path):
+    import json
+
+    from appraise.engine.subject import read_subject_attributes
+
+    path = tmp_path / "subject.json"
+    path.write_text(json.dumps({"living_area": 1800, "region": "x" * 5_000_000}), "utf-8")
+    assert read_subject_attributes(path)["region"] == "x" * 5_000_000  # read as it stands
+    err = DataError(f"level '{'x' * 5_000_000}' is unknown", file="f" * 1000, column="c" * 500)
+    assert len(str(err)) < 1000 and "(5,000,000 characters)" in str(err)
