@@ -105,6 +105,7 @@ class StallMeter:
 
         self.trace_after = trace_after
         self.longest = 0.0
+        self.ticks = 0
         self.last = time.perf_counter()
         self.timer = QTimer()
         self.timer.setInterval(10)
@@ -115,6 +116,7 @@ class StallMeter:
         now = time.perf_counter()
         self.longest = max(self.longest, now - self.last)
         self.last = now
+        self.ticks += 1
         if self.trace_after is not None:  # re-armed on every tick: fires only in a stall
             faulthandler.dump_traceback_later(self.trace_after, file=sys.stderr)
 
@@ -173,6 +175,8 @@ def main(argv: list[str] | None = None) -> int:
                 profile.enable()
             start()
             took = wait_until(app, done, args.timeout)
+            ticks = meter.ticks  # one more tick, so that a stall at the very end counts
+            wait_until(app, lambda: meter.ticks > ticks, args.timeout)
             if profile is not None:
                 profile.disable()
             print(f"{name:<52}{took:>9.1f}{1e3 * meter.longest:>16.0f}", flush=True)
@@ -185,18 +189,27 @@ def main(argv: list[str] | None = None) -> int:
                 stats.sort_stats("tottime").print_stats(10)
                 print(out.getvalue())
 
+        def quiet() -> bool:
+            """No work left anywhere: the session's, the neighbourhood analysis, the
+            sales table's search index, the plots' points."""
+            return (
+                session.pending_tasks == 0
+                and window.regions_view.runner.pending == 0
+                and not window.sales_view.model.indexing
+                and not window.sales_view.model.searching
+                and not window.plots_view.collecting
+            )
+
         phase(
             "open, read, fit, value, checks",
             lambda: session.load_sales(sales_path, model_path=model_path),
-            lambda: (
-                session.sales is not None and session.fit is not None and session.pending_tasks == 0
-            ),
+            lambda: session.sales is not None and session.fit is not None and quiet(),
         )
         view = window.sales_view
         phase(
             "first filter keystrokes ('heron') until filtered",
             lambda: view.filter_edit.setText("heron"),
-            lambda: view.model.rowCount() < args.rows and session.pending_tasks == 0,
+            lambda: view.model.rowCount() < args.rows and quiet(),
         )
         phase(
             "clear the filter",
@@ -204,10 +217,17 @@ def main(argv: list[str] | None = None) -> int:
             lambda: view.model.rowCount() == session.sales.n_used,
         )
 
-        def settled(seconds: float):
-            """Done once the work is over and ``seconds`` have passed (a tab drawing)."""
-            t0 = time.perf_counter()
-            return lambda: time.perf_counter() - t0 > seconds and session.pending_tasks == 0
+        class settled:  # noqa: N801 (reads as a condition)
+            """Done once the work is over and ``seconds`` have passed since the first ask
+            (a tab drawing when shown)."""
+
+            def __init__(self, seconds: float) -> None:
+                self.seconds, self.t0 = seconds, None
+
+            def __call__(self) -> bool:
+                self.t0 = time.perf_counter() if self.t0 is None else self.t0
+                waited = time.perf_counter() - self.t0
+                return waited > self.seconds and quiet()
 
         for name in ("plots_view", "diagnostics_view", "comparables_view", "regions_view"):
             widget = getattr(window, name)
@@ -235,7 +255,7 @@ def main(argv: list[str] | None = None) -> int:
         phase(
             "edit the model (drop a feature): refit, value, checks",
             lambda: (session.set_model(spec), session.refit_now()),
-            lambda: session.fit is not fit_before and session.pending_tasks == 0,
+            lambda: session.fit is not fit_before and quiet(),
         )
         meter.timer.stop()
         faulthandler.cancel_dump_traceback_later()

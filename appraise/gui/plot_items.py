@@ -91,6 +91,36 @@ class SaleScatter(pg.ScatterPlotItem):
     saleClicked = Signal(int)
     saleMenuRequested = Signal(int, QPoint)
 
+    UNIFORM_FROM = 64
+    """From this many points the shared-style shortcut of :meth:`updateSpots` is taken."""
+
+    def updateSpots(self, dataSet=None):  # noqa: N802, N803 (pyqtgraph's names)
+        """Find each point's picture in the symbol atlas.
+
+        pyqtgraph looks the picture up point by point (a Python loop: 21 ms for a
+        plot's 20,000 sales, 9 ms this way; a county's four plots and two checks
+        plots draw some 30 scatters). Every sale of one scatter is drawn alike, so
+        while no point is hovered and none has a style of its own the picture is looked
+        up once and given to all of them; otherwise pyqtgraph's own lookup runs. Both
+        give the same atlas positions (tested).
+        """
+        data = self.data if dataSet is None else dataSet
+        if (
+            len(data) < self.UNIFORM_FROM
+            or not (self.opts["pxMode"] and self.opts["useCache"])
+            or not _shared_style(data)
+        ):
+            return super().updateSpots(dataSet)
+        missing = data["sourceRect"]["w"] == 0
+        if missing.any():
+            style = (self.opts["symbol"], self.opts["size"], self.opts["pen"], self.opts["brush"])
+            data["sourceRect"][missing] = self.fragmentAtlas[[style]][0]
+        self._maybeRebuildAtlas()
+        self._updateMaxSpotSizes(data=data)
+        if missing.any():
+            self.invalidate()
+        return None
+
     def mouseClickEvent(self, ev):  # noqa: N802
         button = ev.button()
         if button not in (Qt.MouseButton.LeftButton, Qt.MouseButton.RightButton):
@@ -107,6 +137,13 @@ class SaleScatter(pg.ScatterPlotItem):
             self.saleClicked.emit(row)
         else:
             self.saleMenuRequested.emit(row, ev.screenPos().toPoint())
+
+
+def _shared_style(data: np.ndarray) -> bool:
+    """No point of pyqtgraph's record array is hovered or has a style of its own."""
+    if data["hovered"].any() or (data["size"] != -1).any():
+        return False
+    return all(bool(np.equal(data[k], None).all()) for k in ("symbol", "pen", "brush"))
 
 
 def sale_scatter(

@@ -89,3 +89,30 @@ def test_sale_plots_of_a_large_file_collect_their_points_on_the_pool(
     expected = plotdata.sale_points(session.fit, user_exclusions=session.user_exclusions)
     assert set(expected.rows[expected.drawn()].tolist()) >= drawn
     view.wait_for_points()
+
+
+def test_shared_style_lookup_gives_pyqtgraphs_atlas_positions(qapp, monkeypatch):
+    import pyqtgraph as pg
+
+    from appraise.gui.plot_items import SaleScatter, sale_scatter
+
+    rng = np.random.default_rng(8)
+    x, y, rows = rng.normal(size=5_000), rng.normal(size=5_000), np.arange(5_000)
+    styles = [
+        dict(colour="#0072B2"),
+        dict(colour="#D55E00", symbol="d"),
+        dict(colour="#888888", hollow=True),
+    ]
+    fast = [sale_scatter(x, y, rows, tip=lambda **_k: "", **st) for st in styles]
+    monkeypatch.setattr(SaleScatter, "UNIFORM_FROM", 10**9)  # pyqtgraph's own lookup
+    slow = [sale_scatter(x, y, rows, tip=lambda **_k: "", **st) for st in styles]
+    for a, b in zip(fast, slow, strict=True):
+        assert np.array_equal(a.data["sourceRect"], b.data["sourceRect"])
+        assert (a.data["sourceRect"]["w"] > 0).all()
+        assert a._maxSpotPxWidth == b._maxSpotPxWidth
+    # a point with a style of its own: pyqtgraph's lookup, as a plain scatter does it
+    monkeypatch.setattr(SaleScatter, "UNIFORM_FROM", 64)
+    brushes = [pg.mkBrush("#0072B2" if i % 2 else "#D55E00") for i in range(len(x))]
+    own = SaleScatter(x=x, y=y, data=rows, brush=brushes, pen=None, size=7)
+    plain = pg.ScatterPlotItem(x=x, y=y, data=rows, brush=brushes, pen=None, size=7)
+    assert np.array_equal(own.data["sourceRect"], plain.data["sourceRect"])
