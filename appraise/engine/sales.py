@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import heapq
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
@@ -143,14 +142,20 @@ def _most_frequent(counts: pd.Series, k: int) -> list[tuple[object, int]]:
 
     Only the values that can be among the first ``k`` are sorted in Python: those counted
     more often than the ``k``-th count, and the smallest few of those counted exactly as
-    often (a column of two million different ids sorts ``k`` values, not two million).
+    often, chosen by Arrow (a column of two million different ids sorts ``k`` values in
+    Python, not two million).
     """
     values = counts.to_numpy()
     if len(values) > k:
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
         kth = np.partition(values, len(values) - k)[len(values) - k]
         above = counts[values > kth]
-        ties = heapq.nsmallest(k - len(above), counts.index[values == kth])
-        counts = pd.concat([above, counts[ties]])
+        ties = counts.index[values == kth]
+        keys = pa.table({"v": pa.array(np.asarray(ties, dtype=object), type=pa.string())})
+        smallest = pc.select_k_unstable(keys, k - len(above), sort_keys=[("v", "ascending")])
+        counts = pd.concat([above, counts[ties[smallest.to_numpy()]]])
     return sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))[:k]
 
 

@@ -334,3 +334,15 @@ def test_memory_is_set_by_a_chunk_not_by_the_file(monkeypatch, tmp_path):
     assert raw.n_rows == n and path.stat().st_size > 25 * 2**20
     assert all(isinstance(c, importing.CodedCells) for c in raw.columns)
     assert peak < 30 * 2**20, f"reading peaked at {peak / 2**20:.1f} MiB"
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.text(alphabet="abcé ", max_size=3), max_size=60), st.integers(1, 6))
+def test_the_most_frequent_levels_are_those_of_a_full_sort(values, k):
+    """A column's most frequent values (the summary of ``appraise data``) equal the first
+    ``k`` of all its distinct values sorted by count, then by value."""
+    from appraise.engine.sales import _most_frequent
+
+    counts = pd.Series(values, dtype="str").value_counts(sort=False)
+    full = sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))[:k]
+    assert _most_frequent(counts, k) == full
