@@ -20,7 +20,7 @@ import numpy as np
 
 from appraise.engine.diagnostics import Diagnostics
 from appraise.report.numbers import MISSING, money, number
-from appraise.report.plotdata import MAX_DRAWN, drawn_positions
+from appraise.report.plotdata import MAX_DRAWN, SUBSAMPLE_SEED, drawn_positions
 
 from .plot_items import (
     EXCLUDED_COLOUR,
@@ -38,6 +38,9 @@ from .plots import SalePlot, new_plot
 
 FLAG_COLOUR = OKABE_ITO["vermillion"]
 FLAG_SYMBOL = "d"
+MAX_FLAGS_DRAWN = 5_000
+"""Beyond this many flagged sales (a county's checks flag some 5% of its sales) a seeded
+random subsample of them is drawn, on top of the plain sales' subsample."""
 
 
 def positions_by_row(d: Diagnostics) -> Callable[[int], int | None]:
@@ -105,8 +108,8 @@ def _draw_sales(
     """Plain sales blue, flagged ones vermillion diamonds on top, all of one size.
 
     Beyond :data:`~appraise.report.plotdata.MAX_DRAWN` sales a seeded random subsample
-    of the plain sales is drawn, and every flagged sale (or, beyond that many flagged,
-    a seeded subsample of them too); the title says so. The counts in the names are of
+    of the plain sales is drawn, and every flagged sale (or, beyond
+    :data:`MAX_FLAGS_DRAWN` flagged, a seeded subsample of them too); the title says so. The counts in the names are of
     all sales, and the selection ring finds any sale, drawn or not.
     """
     rows = np.asarray(d.rows, dtype=np.int64)
@@ -118,9 +121,17 @@ def _draw_sales(
         picked = np.zeros(d.n, dtype=bool)
         picked[drawn_positions(d.n)] = True
         flag_at = np.flatnonzero(flagged)
-        picked[flag_at[drawn_positions(len(flag_at))]] = True
+        if len(flag_at) > MAX_FLAGS_DRAWN:
+            rng = np.random.default_rng(SUBSAMPLE_SEED)
+            flag_at = rng.choice(flag_at, size=MAX_FLAGS_DRAWN, replace=False)
+        picked[flag_at] = True
         shown = finite & picked
-        every = "every flagged sale" if len(flag_at) <= MAX_DRAWN else f"{MAX_DRAWN:,} flagged"
+        drawn_flags = int((picked & flagged).sum())
+        every = (
+            "every flagged sale"
+            if drawn_flags == int(flagged.sum())
+            else f"{drawn_flags:,} of the {int(flagged.sum()):,} flagged"
+        )
         note = f"{int(picked.sum()):,} of {d.n:,} sales drawn, a seeded random sample; {every}"
         sp.plot.setTitle(f"{sp.plot.titleLabel.text} ({note})", size="11pt", color=TEXT_COLOUR)
     hollow = np.zeros(d.n, dtype=bool) if hollow is None else hollow

@@ -562,9 +562,8 @@ class PlotsView(QWidget):
     def _points_ready(self, gen: int, pts: object) -> None:
         if gen != self._points_gen:
             return
-        self.collecting = False
         fit, valuation, sales = self._current()
-        self._draw(fit, valuation, sales, pts)  # type: ignore[arg-type]
+        self._draw(fit, valuation, sales, pts, one_per_turn=True)  # type: ignore[arg-type]
 
     def wait_for_points(self, timeout_ms: int = 60_000) -> None:
         """Block until points being collected on the pool thread are in (closing, tests)."""
@@ -576,7 +575,12 @@ class PlotsView(QWidget):
         valuation: Valuation | None,
         sales: SalesTable,
         pts: SalePoints,
+        *,
+        one_per_turn: bool = False,
     ) -> None:
+        """Build the four plots from ``pts``; with ``one_per_turn`` (a county's sales)
+        each in its own turn of the event loop, so the window answers in between;
+        ``collecting`` stays set until the last one is in."""
         s = self.session
         currency = s.import_settings.currency_symbol or "$"
         self.canvas.clear()
@@ -587,23 +591,48 @@ class PlotsView(QWidget):
             legend=False,
             points=pts,
         )
-        figures = [
-            price_area_figure(fit, valuation, sales=sales, **common),
-            predicted_actual_figure(fit, valuation, **common),
-            residual_figure(fit, valuation, **common),
-            location_figure(fit, valuation, sales=sales, subject=s.subject, **common),
+        builders = [
+            lambda: price_area_figure(fit, valuation, sales=sales, **common),
+            lambda: predicted_actual_figure(fit, valuation, **common),
+            lambda: residual_figure(fit, valuation, **common),
+            lambda: location_figure(fit, valuation, sales=sales, subject=s.subject, **common),
         ]
-        if fit is None:
-            msg = s.fit_error or ("Fitting…" if s.is_fitting else "No fit yet.")
-            for f in figures[1:3]:
-                show_message(f.plot, _clip(msg))
-        for k, f in enumerate(figures):
+        msg = (
+            None
+            if fit is not None
+            else _clip(s.fit_error or ("Fitting…" if s.is_fitting else "No fit yet."))
+        )
+        figures: list[SalePlot] = []
+        gen = self._points_gen
+        self.collecting = one_per_turn
+
+        def add_next() -> None:
+            if gen != self._points_gen:  # newer inputs: their own drawing has started
+                return
+            k = len(figures)
+            f = builders[k]()
+            if msg is not None and k in (1, 2):
+                show_message(f.plot, msg)
             self.canvas.addItem(f.plot, row=k // 2, col=k % 2)
             for scatter in f.scatters:
                 scatter.saleClicked.connect(self.session.select_sale)
                 scatter.saleMenuRequested.connect(self.open_sale_menu)
-        self.figures = figures
-        self.legend.setText(legend_html(pts))
+            figures.append(f)
+            if len(figures) < len(builders):
+                if one_per_turn:
+                    QTimer.singleShot(0, self, add_next)
+                else:
+                    add_next()
+                return
+            self.figures = figures
+            self.legend.setText(legend_html(pts))
+            self.collecting = False
+            if one_per_turn:  # the subject or the selection may have moved meanwhile
+                for f in figures:
+                    f.set_subject(self._current()[1], s.subject)
+                    f.select(s.selection)
+
+        add_next()
 
     def show_selection(self, row: int | None) -> None:
         for f in self.figures:

@@ -116,3 +116,18 @@ def test_shared_style_lookup_gives_pyqtgraphs_atlas_positions(qapp, monkeypatch)
     own = SaleScatter(x=x, y=y, data=rows, brush=brushes, pen=None, size=7)
     plain = pg.ScatterPlotItem(x=x, y=y, data=rows, brush=brushes, pen=None, size=7)
     assert np.array_equal(own.data["sourceRect"], plain.data["sourceRect"])
+
+
+def test_beyond_the_flag_limit_a_seeded_sample_of_flags_is_drawn(
+    qapp, sample_analysis, monkeypatch
+):
+    d = sample_analysis[0].diagnostics
+    monkeypatch.setattr(plotdata, "MAX_DRAWN", 100)
+    monkeypatch.setattr(diagnostics_plots, "MAX_DRAWN", 100)
+    monkeypatch.setattr(diagnostics_plots, "MAX_FLAGS_DRAWN", 3)
+    sp = influence_figure(d)
+    drawn = _drawn(sp)
+    flags = next(v for k, v in drawn.items() if k.startswith("Flagged"))
+    assert 3 <= len(flags) < len(d.flags)  # the 3 chosen, and any the plain sample caught
+    assert f"{len(flags)} of the {len(d.flags)} flagged" in sp.plot.titleLabel.text
+    assert np.array_equal(_drawn(influence_figure(d))["Flagged" + f" ({len(d.flags)})"], flags)
