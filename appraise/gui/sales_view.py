@@ -150,6 +150,27 @@ class SalesColumn:
         values = [python_cell(u) for u in uniques] + list(more)
         return np.concatenate([codes, more_codes]).astype(np.int64, copy=False), values
 
+    def search_texts(self) -> pa.Array | None:
+        """A text column's lines for the search index, lower-cased by Arrow in one pass
+        (what :func:`plain` shows: the text itself, a missing or empty cell as missing);
+        None for other columns (formatted once per distinct value instead)."""
+        if isinstance(self.dtype, np.dtype) or not pd.api.types.is_string_dtype(self.dtype):
+            return None
+        missing = plain(None).lower()
+        cells = pa.array(self.cells, type=pa.string(), from_pandas=True)
+        used = pc.utf8_lower(cells)
+        # Arrow's lower case differs from Python's for a few letters (İ): any cell that
+        # is not plain ASCII is lower-cased by Python, as the filter text is
+        other = pc.invert(pc.fill_null(pc.string_is_ascii(cells), True))
+        if pc.any(other).as_py():
+            fixed = [t.lower() for t in pc.filter(cells, other).to_pylist()]
+            used = pc.replace_with_mask(used, other, pa.array(fixed, type=pa.string()))
+        used = pc.fill_null(pc.if_else(pc.equal(used, ""), missing, used), missing)
+        extra = pa.array(
+            [missing if v is None else plain(v).lower() for v in self.extra], type=pa.string()
+        )
+        return pa.concat_arrays([used, extra])
+
     def sort_keys(self) -> pd.Series:
         """What the column sorts by: numbers as numbers (a text column whose every cell
         reads as a number too), dates in time order, other text case-blind; missing
@@ -202,6 +223,10 @@ def search_index(
     if len(reason_codes):
         add(np.asarray(reason_codes), [t.lower() for t in reason_texts], "")
     for column in columns:
+        texts = column.search_texts() if hasattr(column, "search_texts") else None
+        if texts is not None:
+            parts.append(texts)
+            continue
         codes, uniques = column.factorized()
         add(codes, [plain(u).lower() for u in uniques], plain(None).lower())
     if len(parts) == 1:

@@ -202,3 +202,34 @@ def test_stable_sort_gives_the_positions_pandas_gives(kind, descending):
     expected = keys.sort_values(ascending=not descending, kind="stable", na_position="last")
     got = stable_sort(keys, descending)
     assert got.tolist() == expected.index.tolist()
+
+
+def test_search_index_is_every_cell_as_shown_lower_cased(loaded):
+    """The index line of each row equals formatting its cells one by one with plain()."""
+    from appraise.gui.sales_view import SalesColumn, search_index
+    from appraise.report.numbers import plain
+
+    _session, model = loaded
+    got = search_index(model._rows, model._reason_codes, model._reason_texts, model._columns)
+    shown = [0, 17, 4_000, 29_876, N - 1]  # in file order; 17 and 4,000 are left out
+    for p in shown:
+        i = int(model._by_row[p])
+        cells = [str(model._rows[i]), model.reason_at(i)]
+        cells += [
+            plain(c.cell(i)) if c.cell(i) is not None else plain(None) for c in model._columns
+        ]
+        assert got[i].as_py() == "\t".join(cells).lower()
+    # a text column with letters Arrow and Python lower-case differently, and blanks
+    text = pd.Series(["İzmir Row", "ÉCOLE", "", None, "Old Mill"], dtype="str")
+    column = SalesColumn(text, np.array(["AV-9", None], dtype=object))
+    lines = search_index(np.arange(7), np.full(7, -1), [], [column]).to_pylist()
+    missing = plain(None).lower()
+    assert lines == [  # the row, an empty reason, the cell
+        f"0\t\t{'İzmir Row'.lower()}",
+        "1\t\técole",
+        f"2\t\t{missing}",
+        f"3\t\t{missing}",
+        "4\t\told mill",
+        "5\t\tav-9",
+        f"6\t\t{missing}",
+    ]
