@@ -15,6 +15,10 @@ import os
 import sys
 import time
 from pathlib import Path
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
 
 from ..engine.batch import (
     DEFAULT_CHUNK_ROWS,
@@ -27,6 +31,9 @@ from ..engine.errors import DataError
 from ..report.cautions import FULL_CAUTIONS, ONE_LINE_CAUTION
 from ..report.numbers import integer as fmt_int
 from .common import add_model_argument, add_sales_arguments, fit_from_args, import_settings
+
+if TYPE_CHECKING:  # pragma: no cover - typing only
+    import pyarrow as pa
 
 OUT_FORMATS = {".csv": "csv", ".parquet": "parquet", ".pq": "parquet"}
 PROGRESS_FROM_ROWS = 200_000
@@ -67,6 +74,113 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
+CSV_DECIMALS = 6
+"""Decimals of the numbers in a CSV result (``"%.6f"``)."""
+
+_EXACT_BELOW = 4e9
+"""Numbers of smaller magnitude are written by :func:`_fixed_decimals` (x 10^6 stays
+below 2^52, where its rounding below is exact); larger ones, NaN and infinities by
+Python's ``%`` formatting."""
+
+
+def _fixed_decimals(x: np.ndarray) -> pa.Array:
+    """Each number as ``"%.6f" % x`` writes it (``""`` for NaN, as pandas writes it), with
+    no Python call per number below :data:`_EXACT_BELOW`.
+
+    :math:`x \\cdot 10^6` is held exactly as ``hi + lo`` (Dekker's product: ``x`` split in
+    halves of 26 bits, each times :math:`10^6` exact), then rounded to the nearest integer,
+    a tie to the even one, exactly as the correctly rounded ``%`` does; the sign is the
+    sign bit (``-0.000000`` for -0.0 or -1e-9, as ``%`` writes them).
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    scale = 10.0**CSV_DECIMALS
+    fast = np.abs(x) < _EXACT_BELOW  # False for NaN and infinities
+    xf = np.where(fast, x, 0.0)
+    hi = xf * scale
+    split = 134217729.0 * xf  # 2^27 + 1
+    xh = split - (split - xf)
+    lo = (xh * scale - hi) + (xf - xh) * scale
+    r = np.rint(hi)  # ties to even
+    t = hi - r  # exact: r is the integer nearest hi
+    n = r + ((t == 0.5) & (lo > 0)) - ((t == -0.5) & (lo < 0))
+    whole, part = np.divmod(np.abs(n).astype(np.int64), 10**CSV_DECIMALS)
+    text = pc.binary_join_element_wise(
+        pc.cast(pa.array(whole), pa.large_string()),
+        pc.utf8_lpad(pc.cast(pa.array(part), pa.large_string()), CSV_DECIMALS, "0"),
+        pa.scalar(".", pa.large_string()),
+    )
+    minus = np.signbit(x) & fast
+    if minus.any():
+        sign, empty = pa.scalar("-", pa.large_string()), pa.scalar("", pa.large_string())
+        signed = pc.binary_join_element_wise(sign, text, empty)
+        text = pc.if_else(pa.array(minus), signed, text)
+    rest = np.flatnonzero(~fast)
+    if rest.size:
+        cells = np.asarray(text.to_numpy(zero_copy_only=False), dtype=object)
+        cells[rest] = ["" if v != v else f"%.{CSV_DECIMALS}f" % v for v in x[rest].tolist()]
+        text = pa.array(cells, type=pa.large_string())
+    return text
+
+
+def _csv_texts(values: pd.Series) -> pa.Array | None:
+    """Text cells as pandas' CSV writer writes them (quoted when they hold a comma, a
+    quote or a line feed; a quote doubled; ``""`` for a missing cell); None when the
+    column is not text only."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if values.dtype == object and pd.api.types.infer_dtype(values, skipna=True) not in (
+        "string",
+        "empty",
+    ):
+        return None
+    try:
+        arr = pa.array(values, type=pa.large_string(), from_pandas=True)
+    except (pa.ArrowInvalid, pa.ArrowTypeError):
+        return None
+    arr = pc.fill_null(arr, "")
+    needs = pc.or_(
+        pc.or_(pc.match_substring(arr, ","), pc.match_substring(arr, '"')),
+        pc.match_substring(arr, "\n"),
+    )
+    q, empty = pa.scalar('"', pa.large_string()), pa.scalar("", pa.large_string())
+    quoted = pc.binary_join_element_wise(q, pc.replace_substring(arr, '"', '""'), q, empty)
+    return pc.if_else(needs, quoted, arr)
+
+
+def csv_bytes(chunk: pd.DataFrame, header: bool) -> bytes | None:
+    """A result chunk as ``chunk.to_csv(index=False, float_format="%.6f")`` writes it, built
+    column by column in Arrow (pandas formats every number in Python, about 15 s a million
+    subjects); None for a column of another kind than numbers or text."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    cols = []
+    for name in chunk.columns:
+        values = chunk[name]
+        if pd.api.types.is_float_dtype(values.dtype):
+            cols.append(_fixed_decimals(values.to_numpy(dtype=np.float64)))
+        elif pd.api.types.is_integer_dtype(values.dtype):
+            cols.append(pc.cast(pa.array(values.to_numpy()), pa.large_string()))
+        elif (texts := _csv_texts(values)) is not None:
+            cols.append(texts)
+        else:
+            return None
+    head = (",".join(chunk.columns) + os.linesep).encode() if header else b""
+    if not len(chunk):
+        return head
+    comma, empty = pa.scalar(",", pa.large_string()), pa.scalar("", pa.large_string())
+    lines = pc.binary_join_element_wise(*cols, comma)
+    lines = pc.binary_join_element_wise(lines, empty, pa.scalar(os.linesep, pa.large_string()))
+    if isinstance(lines, pa.ChunkedArray):
+        lines = lines.combine_chunks()
+    offsets = np.frombuffer(lines.buffers()[1], dtype=np.int64)[lines.offset :]
+    data = lines.buffers()[2]
+    return head + data.to_pybytes()[offsets[0] : offsets[len(lines)]]
+
+
 class _Writer:
     """Chunks appended to a temporary file, moved into place only when all are written."""
 
@@ -78,13 +192,18 @@ class _Writer:
 
     def write(self, chunk) -> None:
         if self.fmt == "csv":
-            chunk.to_csv(
-                self.tmp,
-                mode="a" if self.started else "w",
-                header=not self.started,
-                index=False,
-                float_format="%.6f",
-            )
+            text = csv_bytes(chunk, header=not self.started)
+            if text is None:  # a column of another kind: pandas writes it
+                chunk.to_csv(
+                    self.tmp,
+                    mode="a" if self.started else "w",
+                    header=not self.started,
+                    index=False,
+                    float_format=f"%.{CSV_DECIMALS}f",
+                )
+            else:
+                with self.tmp.open("ab" if self.started else "wb") as fh:
+                    fh.write(text)
         else:
             import pyarrow as pa
             import pyarrow.parquet as pq

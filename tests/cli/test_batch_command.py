@@ -9,9 +9,12 @@ from pathlib import Path
 import pandas as pd
 import pyarrow.parquet as pq
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 from appraise.cli import main
+from appraise.commands.batch import csv_bytes
 
 SAMPLE = Path(__file__).resolve().parents[2] / "sample_data"
 SALES = str(SAMPLE / "ashcombe_sales.csv")
@@ -140,3 +143,38 @@ def test_missing_model_input_exits_2(capsys, tmp_path):
     )
     assert code == 2
     assert "lacks column(s) the model needs" in err
+
+
+# --- the CSV writer: pandas' to_csv(float_format="%.6f") byte for byte, built in Arrow -------
+_TEXT = st.one_of(
+    st.none(),
+    st.lists(
+        st.sampled_from(["a", ",", '"', "\n", "\r", " ", "é", ";", "x y", ""]), max_size=4
+    ).map("".join),
+)
+_NUMBER = st.one_of(
+    st.floats(allow_nan=True, allow_infinity=True),
+    st.floats(min_value=-5e9, max_value=5e9),
+    st.integers(-(10**6), 10**6).map(lambda k: k / 128),  # ties of the sixth decimal: k/128
+    st.integers(-(10**4), 10**4).map(lambda k: k / 2e6),
+    # near ties: x * 1e6 rounds to k + 0.5 in floating point, the exact product does not
+    st.integers(-(10**7), 10**7).map(lambda k: (k + 0.5) / 1e6),
+    st.sampled_from([0.0, -0.0, 5e-7, -5e-7, 1e-9, -1e-9, 3999999999.9999995, 4e9]),
+)
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(st.tuples(st.integers(0, 10**9), _TEXT, _NUMBER, _NUMBER), max_size=12))
+def test_csv_bytes_are_pandas_to_csv_bytes(rows):
+    frame = pd.DataFrame(rows, columns=["row", "id", "estimate", "low"])
+    frame = frame.astype({"row": "int64", "estimate": "float64", "low": "float64"})
+    for ids in (frame["id"].astype(object), frame["id"].astype("str")):
+        chunk = frame.assign(id=ids)
+        for header in (True, False):
+            want = chunk.to_csv(index=False, header=header, float_format="%.6f").encode()
+            assert csv_bytes(chunk, header) == want
+
+
+def test_csv_bytes_leave_other_columns_to_pandas():
+    assert csv_bytes(pd.DataFrame({"when": pd.to_datetime(["2026-01-02"])}), True) is None
+    assert csv_bytes(pd.DataFrame({"mixed": [1, "a"]}, dtype=object), True) is None
