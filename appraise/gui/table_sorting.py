@@ -40,6 +40,11 @@ class SortableTableModel:
     _sort: tuple[int, Qt.SortOrder] | None = None
 
     def sort(self, column: int, order: Qt.SortOrder = Qt.SortOrder.AscendingOrder) -> None:
+        """Order the rows by ``column``. Asked again for the order already shown, nothing
+        is done: ``QTableView.sortByColumn`` asks twice (once itself, once through the
+        header's indicator), and a model reorders its rows itself whenever they change."""
+        if self._sort == (column, order):
+            return
         self.layoutAboutToBeChanged.emit()
         self._sort = (column, order)
         self._apply_order()

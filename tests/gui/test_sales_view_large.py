@@ -233,3 +233,24 @@ def test_search_index_is_every_cell_as_shown_lower_cased(loaded):
         "5\t\tav-9",
         f"6\t\t{missing}",
     ]
+
+
+def test_a_header_click_sorts_once(qtbot, loaded, monkeypatch):
+    from PySide6.QtWidgets import QTableView
+
+    import appraise.gui.sales_view as sales_view
+
+    _session, model = loaded
+    table = QTableView()
+    qtbot.addWidget(table)
+    table.setModel(model)
+    table.setSortingEnabled(True)
+    calls: list[bool] = []
+    real = sales_view.stable_sort
+    monkeypatch.setattr(sales_view, "stable_sort", lambda k, d: calls.append(d) or real(k, d))
+    table.sortByColumn(_column(model, "Sale Price"), Qt.SortOrder.DescendingOrder)
+    assert calls == [True]  # Qt asks twice (the view, then the header's indicator)
+    first = model.data(model.index(0, _column(model, "Sale Price")), DISPLAY)
+    assert first == f"{int(_frame()['Sale Price'].max()):,}"
+    table.sortByColumn(_column(model, "Sale Price"), Qt.SortOrder.AscendingOrder)
+    assert calls == [True, False]
