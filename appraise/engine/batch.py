@@ -344,33 +344,41 @@ def _arrow_cells(series: pd.Series, kind: str, settings: ImportSettings, header:
 
 
 def _arrow_numbers(arr: pa.Array, settings: ImportSettings, header: str):
-    # Trimmed of spaces, a marker or a plain decimal holds printable ASCII only, so what
+    # A plain decimal, or (trimmed of spaces) a marker, holds printable ASCII only, so what
     # Python's str.strip and str.lower would do to it is what Arrow does here.
     n = len(arr)
-    pattern = _PLAIN_DECIMAL[settings.decimal]
-    if n == 0:
-        return np.full(0, np.nan), None
-    whole = pc.match_substring_regex(arr, pattern)
-    longest = pc.max(pc.binary_length(arr)).as_py()
-    if whole.null_count == 0 and pc.all(whole).as_py() and longest <= _PLAIN_LONGEST:
-        # every cell a plain decimal (a clean export): read at once
-        digits = arr if settings.decimal == "." else pc.replace_substring(arr, ",", ".")
-        return np.array(pc.cast(digits, pa.float64()).to_numpy(zero_copy_only=False)), None
-    trimmed = pc.utf8_trim(arr, " ")
-    marker = pc.is_in(pc.ascii_lower(trimmed), value_set=_MARKER_SET)
-    missing = pc.fill_null(marker, True)  # a null is missing
-    fast = pc.and_(
-        pc.match_substring_regex(trimmed, pattern),
-        pc.less_equal(pc.binary_length(trimmed), _PLAIN_LONGEST),
-    )
-    fast = pc.fill_null(fast, False)
-    digits = trimmed.filter(fast)
-    if settings.decimal == ",":
-        digits = pc.replace_substring(digits, ",", ".")
     values = np.full(n, np.nan)
-    at = fast.to_numpy(zero_copy_only=False)
-    values[at] = pc.cast(digits, pa.float64()).to_numpy(zero_copy_only=False)
-    rest = np.flatnonzero(~(at | missing.to_numpy(zero_copy_only=False)))
+    if n == 0:
+        return values, None
+    pattern = _PLAIN_DECIMAL[settings.decimal]
+
+    def plain(texts):
+        found = pc.and_(
+            pc.match_substring_regex(texts, pattern),
+            pc.less_equal(pc.binary_length(texts), _PLAIN_LONGEST),
+        )
+        return pc.fill_null(found, False).to_numpy(zero_copy_only=False)
+
+    def cast(texts) -> np.ndarray:
+        if settings.decimal == ",":
+            texts = pc.replace_substring(texts, ",", ".")
+        return pc.cast(texts, pa.float64()).to_numpy(zero_copy_only=False)
+
+    # 1. cells written as plain decimals (nearly all of a clean export), read at once
+    at = plain(arr)
+    if at.all():
+        values[:] = cast(arr)
+        return values, None
+    values[at] = cast(arr.filter(pa.array(at)))
+    # 2. the other cells trimmed of spaces: plain decimals and missing markers
+    rest = np.flatnonzero(~at)
+    trimmed = pc.utf8_trim(arr.take(pa.array(rest)), " ")
+    marker = pc.is_in(pc.ascii_lower(trimmed), value_set=_MARKER_SET)
+    missing = pc.fill_null(marker, True).to_numpy(zero_copy_only=False)  # null: missing
+    now = plain(trimmed)
+    values[rest[now]] = cast(trimmed.filter(pa.array(now)))
+    # 3. every cell still undecided by the per-cell rule
+    rest = rest[~(now | missing)]
     if not rest.size:
         return values, None
     cells = np.asarray(arr.take(pa.array(rest)).to_numpy(zero_copy_only=False), dtype=object)
