@@ -262,7 +262,9 @@ def model_from_dict(data: Mapping, *, source: str = "<model>") -> ModelSpec:
         raise err('spread terms need spread = "modelled"', "spread_terms")
     min_level = data.get("min_level_sales", DEFAULT_MIN_LEVEL_SALES)
     if isinstance(min_level, bool) or not isinstance(min_level, int) or min_level < 1:
-        raise err(f"must be a whole number of sales, at least 1, not {min_level!r}", "min_level_sales")
+        raise err(
+            f"must be a whole number of sales, at least 1, not {min_level!r}", "min_level_sales"
+        )
     return ModelSpec(
         target=target.strip(),
         features=tuple(f.strip() for f in feats),
