@@ -208,14 +208,16 @@ def test_a_tampered_workfile_on_the_command_line(workfile, tmp_path, capsys):
     _fails(capsys, ["value", str(bad)], str(bad), "import_settings.decimal")
 
 
-def test_a_sale_after_the_effective_date_is_excluded(tmp_path, capsys):
+def _late_sale_files(tmp_path, late_price: int):
+    """Eight sales in the first half of 2024 and one on 2024-09-01 priced ``late_price``,
+    with a one-feature model whose effective date is 2024-06-30."""
     rows = ["id,price,sale_date,living_area"]
     noise = [3, -5, 8, 0, -2, 6, -7, 1]  # thousands: the fit must not be exact
     rows += [
         f"t{i},{300_000 + 9_000 * i + 1_000 * noise[i]},2024-0{1 + i % 5}-15,{1_400 + 97 * i}"
         for i in range(8)
     ]
-    rows.append("late,999000,2024-09-01,1500")
+    rows.append(f"late,{late_price},2024-09-01,1500")
     sales = tmp_path / "s.csv"
     sales.write_text("\n".join(rows) + "\n", encoding="utf-8")
     model = tmp_path / "m.toml"
@@ -223,6 +225,11 @@ def test_a_sale_after_the_effective_date_is_excluded(tmp_path, capsys):
         'target = "price"\nfeatures = ["living_area"]\neffective_date = "2024-06-30"\n',
         encoding="utf-8",
     )
+    return sales, model
+
+
+def test_a_sale_after_the_effective_date_is_excluded(tmp_path, capsys):
+    sales, model = _late_sale_files(tmp_path, 999_000)
     fit = _json(capsys, ["fit", str(sales), "-m", str(model), "--json"])
     assert fit["n"] == 8
     reasons = [e["reason"] for e in fit["excluded"]]
@@ -236,20 +243,7 @@ def test_a_sale_after_the_effective_date_is_excluded(tmp_path, capsys):
 def test_the_subjects_effective_date_wins_over_the_models(tmp_path, capsys):
     """The same order as the valuation's: a subject dated 2024-12-31 keeps the September
     sale that the model's 2024-06-30 would exclude."""
-    rows = ["id,price,sale_date,living_area"]
-    noise = [3, -5, 8, 0, -2, 6, -7, 1]
-    rows += [
-        f"t{i},{300_000 + 9_000 * i + 1_000 * noise[i]},2024-0{1 + i % 5}-15,{1_400 + 97 * i}"
-        for i in range(8)
-    ]
-    rows.append("late,352000,2024-09-01,1500")
-    sales = tmp_path / "s.csv"
-    sales.write_text("\n".join(rows) + "\n", encoding="utf-8")
-    model = tmp_path / "m.toml"
-    model.write_text(
-        'target = "price"\nfeatures = ["living_area"]\neffective_date = "2024-06-30"\n',
-        encoding="utf-8",
-    )
+    sales, model = _late_sale_files(tmp_path, 352_000)
     later = tmp_path / "later.json"
     later.write_text('{"living_area": 1600, "effective_date": "2024-12-31"}', encoding="utf-8")
     plain = tmp_path / "plain.json"
