@@ -52,11 +52,6 @@ class CodedCells:
     def __repr__(self) -> str:
         return f"CodedCells({len(self)} cells, {len(self.uniques)} distinct)"
 
-    def to_objects(self) -> np.ndarray:
-        """Every cell as an object array (None where blanked): for small columns only."""
-        out = np.append(self.uniques, np.array([None], dtype=object))
-        return out[self.codes]
-
     def factorized(self) -> tuple[np.ndarray, np.ndarray]:
         """``(codes, uniques)`` as :func:`pandas.factorize` gives them for the cells.
 
