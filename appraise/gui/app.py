@@ -31,6 +31,7 @@ def run(
         return 2
     from PySide6.QtCore import QSettings
     from PySide6.QtWidgets import QApplication
+    from pyqtgraph.util.garbage_collector import GarbageCollector
 
     from .main_window import MainWindow
     from .preferences import Preferences
@@ -40,6 +41,9 @@ def run(
     app.setOrganizationName(ORGANISATION)
     app.setApplicationName(APPLICATION)
     app.setApplicationDisplayName("appraise")
+    # Python's cycle collector may run on whichever thread allocates; a Qt object
+    # collected on a pool thread can crash the process. Collect on the UI thread only.
+    collector = GarbageCollector(interval=1.0)
     prefs = Preferences(QSettings(ORGANISATION, APPLICATION))
     session = Session(import_settings=prefs.import_settings())
     window = MainWindow(session, prefs)
@@ -48,7 +52,10 @@ def run(
         window.open_sample()
     elif path is not None:
         window.open_path(path)
-    return int(app.exec())
+    try:
+        return int(app.exec())
+    finally:
+        collector.timer.stop()
 
 
 def open_sample(argv: Sequence[str] | None = None) -> int:

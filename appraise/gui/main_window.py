@@ -667,6 +667,18 @@ class MainWindow(QMainWindow):
                 event.ignore()
                 return
         self.prefs.save_window_geometry(self.saveGeometry())
-        self.model_file.wait()
-        self.session.shutdown()
+        self.stop_background_work()
         event.accept()
+
+    def stop_background_work(self) -> None:
+        """Wait for every pool thread of this window to end (closing, tests).
+
+        A widget must not be destroyed while a thread still reports to it.
+        """
+        dialog = getattr(self.model_editor, "suggest_dialog", None)
+        if dialog is not None:
+            dialog.wait(120_000)
+        self.model_file.wait()
+        self.sales_view.model.wait_for_index(120_000)
+        self.plots_view.wait_for_points(120_000)
+        self.session.shutdown()

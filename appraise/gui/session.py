@@ -864,11 +864,17 @@ class Session(QObject):
             self.notice.emit("reopened workfile: the saved results were reproduced exactly")
 
     # --- shutting down ---------------------------------------------------------------
-    def shutdown(self, timeout_ms: int = 10_000) -> None:
-        """Stop timers, drop pending work and wait for running tasks to end."""
+    def shutdown(self, timeout_ms: int = 120_000) -> None:
+        """Stop timers, drop pending work, stop running reads and wait for tasks to end.
+
+        Nothing of the session may be destroyed while a pool thread still reports to it.
+        """
         self._refit_timer.stop()
         self._generation += 1
         self._load_generation += 1
+        for stop in list(self._load_cancel.values()):
+            stop()  # a read stops at its next progress step
+        self._load_cancel.clear()
         self._pool.clear()
         self._pool.waitForDone(timeout_ms)
         self._grid_runner.cancel()

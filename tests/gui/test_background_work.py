@@ -181,3 +181,18 @@ def test_cancel_stops_the_reader_itself(big_sales):
     with pytest.raises(Cancelled):
         run_load_job(job, report)
     assert len(stages) == 3 and max(stages) < 1.0
+
+
+def test_shutdown_stops_a_running_read_and_waits_for_it(qtbot, big_sales):
+    # Closing the window while a file is being read: the read is stopped at its next
+    # step and no pool thread is left reporting to a session about to be destroyed.
+    from appraise.gui.session import Session
+
+    s = Session()
+    started: list[int] = []
+    s._load_signals.started.connect(started.append)
+    s.load_sales(big_sales)
+    qtbot.waitUntil(lambda: len(started) == 1, timeout=WAIT_MS)  # running on its thread
+    s.shutdown()
+    assert s._pool.activeThreadCount() == 0
+    assert s.sales is None  # nothing of the stopped read landed
