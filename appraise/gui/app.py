@@ -29,9 +29,9 @@ def run(
     if not has_display():
         print(NO_DISPLAY_MESSAGE, file=sys.stderr)
         return 2
+    from pyqtgraph.util.garbage_collector import GarbageCollector
     from PySide6.QtCore import QSettings
     from PySide6.QtWidgets import QApplication
-    from pyqtgraph.util.garbage_collector import GarbageCollector
 
     from .main_window import MainWindow
     from .preferences import Preferences
