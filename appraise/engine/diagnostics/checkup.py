@@ -182,9 +182,6 @@ def diagnose_arrays(
 
     qr = decompose(X, names)
     infl = influence(X, y, qr)
-    smearing = float(np.mean(np.exp(infl.resid))) if response == "log" else 1.0
-    limits = thresholds(n, p, settings)
-    flags = flag_sales(infl, limits, rows, sale_ids)
     coll = collinearity(
         X,
         names,
@@ -197,6 +194,45 @@ def diagnose_arrays(
     tests = residual_tests(
         infl.resid, X, alpha=settings.alpha, response=response, cov_type=cov_type, qr=qr
     )
+    folds = kfold(X, y, price, response=response, folds=settings.folds, seed=settings.seed, qr=qr)
+    return assemble_diagnostics(
+        infl,
+        coll,
+        tests,
+        folds,
+        price,
+        names=names,
+        response=response,
+        level=level,
+        rows=rows,
+        sale_ids=sale_ids,
+        settings=settings,
+        spread=spread,
+    )
+
+
+def assemble_diagnostics(
+    infl: Influence,
+    coll: Collinearity,
+    tests: ResidualTests,
+    folds: KFold,
+    price: np.ndarray,
+    *,
+    names: tuple[str, ...],
+    response: str,
+    level: float,
+    rows: np.ndarray,
+    sale_ids: tuple[str | None, ...],
+    settings: DiagnosticSettings,
+    spread=None,
+) -> Diagnostics:
+    """The rest of the check-up from its design-dependent parts (influence, collinearity,
+    residual tests, k-fold), however those were computed: flags, leave-one-out accuracy,
+    the ratio study and the warnings in words."""
+    n, p = infl.n, infl.p
+    smearing = float(np.mean(np.exp(infl.resid))) if response == "log" else 1.0
+    limits = thresholds(n, p, settings)
+    flags = flag_sales(infl, limits, rows, sale_ids)
     loo = leave_one_out(
         infl,
         price,
@@ -205,7 +241,6 @@ def diagnose_arrays(
         level=level,
         spread=spread,
     )
-    folds = kfold(X, y, price, response=response, folds=settings.folds, seed=settings.seed, qr=qr)
     study = ratio_study(
         loo.price_prediction, price, trim=settings.trim, rows=rows, sale_ids=sale_ids
     )
@@ -275,20 +310,25 @@ def diagnose(fit: FitResult, settings: DiagnosticSettings = DEFAULT_SETTINGS) ->
     """Check a fitted model: influence, collinearity, residual tests, accuracy, ratio study,
     and the coverage of the leave-one-out intervals by segment."""
     names = tuple(fit.design.names)
-    d = diagnose_arrays(
-        fit.X,
-        fit.y,
-        fit.price,
-        names=names,
-        groups=term_groups(names, fit.design.groups),
-        response=fit.spec.response,
-        level=fit.spec.level,
-        cov_type=fit.cov_type,
-        rows=fit.rows,
-        sale_ids=fit.sale_ids,
-        settings=settings,
-        spread=fit.spread,
-    )
+    if fit.structure is not None:  # absorbed region block: never the dense design
+        from .structured import diagnose_structured
+
+        d = diagnose_structured(fit, settings)
+    else:
+        d = diagnose_arrays(
+            fit.X,
+            fit.y,
+            fit.price,
+            names=names,
+            groups=term_groups(names, fit.design.groups),
+            response=fit.spec.response,
+            level=fit.spec.level,
+            cov_type=fit.cov_type,
+            rows=fit.rows,
+            sale_ids=fit.sale_ids,
+            settings=settings,
+            spread=fit.spread,
+        )
     coverage = coverage_by_segment(
         d.loo.inside,
         np.isfinite(d.loo.low),
