@@ -314,8 +314,9 @@ def fit_model(
     """Fit ``spec`` to ``sales`` by OLS and return a frozen :class:`FitResult`.
 
     ``path`` (:data:`FIT_PATHS`): ``"auto"`` absorbs the largest ``onehot`` term when it
-    has :data:`.absorb.ABSORB_MIN_COLUMNS` columns or more (the structured fit of
-    :mod:`.absorb`, equal to statsmodels on the dense design), else fits the dense design
+    has :data:`.absorb.ABSORB_MIN_COLUMNS` columns or more, or from :data:`ABSORB_MIN_SALES`
+    sales (the structured fit of :mod:`.absorb`, equal to statsmodels on the dense
+    design), else fits the dense design
     with statsmodels; ``"dense"`` and ``"structured"`` force one of them.
 
     Raises
@@ -361,7 +362,7 @@ def fit_model(
     design = learn_design(
         spec.features, frame, derived=spec.derived, roles=sales.roles, intercept=spec.intercept
     )
-    group = _absorbed_group(design, path)
+    group = _absorbed_group(design, path, len(frame))
     built = design.build(frame, codes_for=None if group is None else group.expression)
     for pos, reason, column in built.problems:
         excluded.append(
@@ -523,9 +524,16 @@ FIT_PATHS = ("auto", "dense", "structured")
 """``fit_model(path=...)``: choose by size, statsmodels on the dense design, or absorbed."""
 
 
-def _absorbed_group(design: DesignSpec, path: str) -> TermGroup | None:
+ABSORB_MIN_SALES = 100_000
+"""From this many sales ``path="auto"`` absorbs a ``onehot`` term however few its levels:
+statsmodels' pseudo-inverse of a tall design holds the interpreter lock for about a
+second a million rows (the window's thread stops turning while a pool thread fits)."""
+
+
+def _absorbed_group(design: DesignSpec, path: str, n: int = 0) -> TermGroup | None:
     """The ``onehot`` term to absorb: the one with the most columns, when it has at least
-    :data:`.absorb.ABSORB_MIN_COLUMNS` (``path="auto"``) or always (``"structured"``)."""
+    :data:`.absorb.ABSORB_MIN_COLUMNS` or there are :data:`ABSORB_MIN_SALES` sales
+    (``path="auto"``), or always (``"structured"``)."""
     if path not in FIT_PATHS:
         raise ValueError(f"path must be one of {', '.join(FIT_PATHS)}, not {path!r}")
     onehots = [g for g in design.groups if g.kind == "onehot" and g.columns]
@@ -534,7 +542,7 @@ def _absorbed_group(design: DesignSpec, path: str) -> TermGroup | None:
             raise FitError("the structured fit needs a onehot(...) term to absorb")
         return None
     big = max(onehots, key=lambda g: len(g.columns))
-    if path == "auto" and len(big.columns) < ABSORB_MIN_COLUMNS:
+    if path == "auto" and len(big.columns) < ABSORB_MIN_COLUMNS and n < ABSORB_MIN_SALES:
         return None
     return big
 

@@ -207,11 +207,41 @@ def _read_parquet(path: Path) -> RawTable:
         if pa.types.is_floating(kind) or (pa.types.is_integer(kind) and column.null_count == 0):
             columns.append(column.to_numpy())  # typed numbers taken as they are (null -> NaN)
             continue
-        values = column.to_pylist()
         if pa.types.is_nested(kind):  # lists and records: read as text
-            values = [None if v is None else str(v) for v in values]
-        columns.append(values)
+            columns.append([None if v is None else str(v) for v in column.to_pylist()])
+            continue
+        columns.append(_parquet_coded(column))
     return RawTable(list(table.column_names), columns, "parquet")
+
+
+_PY_SLICE = 50_000
+"""Cells made Python objects per call: each call holds the interpreter lock briefly, so
+the window's thread keeps turning while a pool thread reads a million-row file."""
+
+
+def _parquet_coded(column) -> CodedCells:
+    """A Parquet column of text, dates, flags or integers with gaps as codes into its
+    distinct cells (Arrow's dictionary encoding; only the distinct cells become Python
+    objects, in slices). A missing cell has code -1."""
+    import pyarrow as pa
+
+    try:
+        encoded = column.combine_chunks().dictionary_encode()
+    except (pa.ArrowNotImplementedError, pa.ArrowTypeError):  # a type Arrow cannot encode
+        cells = np.empty(len(column), dtype=object)
+        cells[:] = column.to_pylist()
+        codes, uniques = pd.factorize(cells, use_na_sentinel=True)
+        return CodedCells(codes.astype(np.int32), np.asarray(uniques, dtype=object))
+    codes = encoded.indices.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int32)
+    dictionary = encoded.dictionary
+    uniques = np.empty(len(dictionary), dtype=object)
+    for lo in range(0, len(dictionary), _PY_SLICE):
+        part = dictionary.slice(lo, _PY_SLICE)
+        if pa.types.is_string(part.type) or pa.types.is_large_string(part.type):
+            uniques[lo : lo + len(part)] = part.to_numpy(zero_copy_only=False)
+        else:  # dates, times, flags, integers, decimals, bytes: as Python values
+            uniques[lo : lo + len(part)] = part.to_pylist()
+    return CodedCells(codes, uniques)
 
 
 # --- headers -------------------------------------------------------------------------

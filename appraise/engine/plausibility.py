@@ -264,6 +264,8 @@ class DecimalDecision:
 def _distinct_texts(cells: Sequence[object]) -> dict[str, int]:
     """Each distinct text cell holding a separator, with its count, in order of first
     appearance (cells are hashed once by pandas; only distinct texts are searched)."""
+    if isinstance(cells, np.ndarray) and cells.dtype.kind in "biuf":
+        return {}  # a typed number column (Parquet, XLSX) holds no text
     if isinstance(cells, CodedCells):
         codes, uniques = cells.factorized()
     else:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -79,6 +80,34 @@ class SalesTable:
     @property
     def n_used(self) -> int:
         return len(self.frame)
+
+    @cached_property
+    def medians(self) -> Mapping[str, float]:
+        """The median of each number column of the used rows that has a value (computed
+        once a table: the subject form shows them as hints on every edit)."""
+        out: dict[str, float] = {}
+        for name in self.frame.columns:
+            column = self.frame[name]
+            if name == ROW_COLUMN or not pd.api.types.is_numeric_dtype(column):
+                continue
+            values = column.to_numpy(dtype=float, na_value=np.nan)
+            values = values[~np.isnan(values)]
+            if values.size:
+                out[name] = float(np.median(values))
+        return out
+
+    @cached_property
+    def _levels(self) -> dict[str, tuple[str, ...]]:
+        return {}
+
+    def levels_by_count(self, name: str) -> tuple[str, ...]:
+        """The distinct values of a column of the used rows as text, the most frequent
+        first (computed once a column)."""
+        hit = self._levels.get(name)
+        if hit is None:
+            counts = self.frame[name].dropna().astype(str).value_counts()
+            hit = self._levels[name] = tuple(counts.index)
+        return hit
 
     def column_summaries(self, max_levels: int = 20) -> tuple[ColumnSummary, ...]:
         """One :class:`ColumnSummary` per column of the used rows (``_row`` left out)."""

@@ -617,7 +617,7 @@ class ModelEditor(QWidget):
                 return
             category = text_cols[0]
             col = category
-        levels = sales.frame[col].dropna().astype(str).value_counts().index.tolist()
+        levels = list(sales.levels_by_count(col))
         self._ask(
             "Region indicators",
             [("&Reference level (the others are compared with it)", levels)],

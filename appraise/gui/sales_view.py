@@ -144,7 +144,10 @@ class SalesColumn:
 
     def factorized(self) -> tuple[np.ndarray, list]:
         """``codes`` (one per row, -1 where missing) into ``uniques`` (Python objects)."""
-        codes, uniques = pd.factorize(self.cells, use_na_sentinel=True)
+        if isinstance(self.dtype, np.dtype) and self.dtype.kind in "biuf":
+            codes, uniques = arrow_factorize(self.cells)
+        else:
+            codes, uniques = pd.factorize(self.cells, use_na_sentinel=True)
         more_codes, more = pd.factorize(self.extra, use_na_sentinel=True)
         more_codes = np.where(more_codes < 0, -1, more_codes + len(uniques))
         values = [python_cell(u) for u in uniques] + list(more)
@@ -197,6 +200,23 @@ class SalesColumn:
             rest = pd.Series(self.extra, dtype=object).map(_lower_key)
             return pd.concat([lower, rest]).reset_index(drop=True)
         return values.map(_lower_key)
+
+
+_PY_SLICE = 50_000
+"""Distinct cells made Python objects per call (each call holds the interpreter lock)."""
+
+
+def arrow_factorize(values: np.ndarray) -> tuple[np.ndarray, list]:
+    """:func:`pandas.factorize` of a number column (NaN as missing, -1), by Arrow's
+    dictionary encoding: it leaves the interpreter lock free while it hashes, so the
+    window's thread keeps turning while a pool thread indexes a million sales."""
+    encoded = pc.dictionary_encode(pa.array(values, from_pandas=True))
+    codes = encoded.indices.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int64)
+    dictionary = encoded.dictionary
+    uniques: list = []
+    for lo in range(0, len(dictionary), _PY_SLICE):
+        uniques.extend(dictionary.slice(lo, _PY_SLICE).to_pylist())
+    return codes, uniques
 
 
 def _lower_key(v: object) -> str | None:

@@ -196,15 +196,15 @@ class SubjectView(QWidget):
         ):
             combo = QComboBox()
             combo.setEditable(True)
-            combo.addItems([str(v) for v in column.dropna().astype(str).value_counts().index])
+            combo.addItems(list(sales.levels_by_count(header)))
             combo.setCurrentIndex(-1)
             combo.currentTextChanged.connect(lambda _t: self._edited())
             combo.setObjectName(f"subject_{name}")
             return combo
         edit = QLineEdit()
         edit.setObjectName(f"subject_{name}")
-        if column is not None and pd.api.types.is_numeric_dtype(column) and column.notna().any():
-            edit.setPlaceholderText(f"sales median {plain(column.median())}")
+        if header is not None and header in sales.medians:
+            edit.setPlaceholderText(f"sales median {plain(sales.medians[header])}")
         elif name == EFFECTIVE_DATE:
             edit.setPlaceholderText("YYYY-MM-DD, the date of value")
         edit.textChanged.connect(lambda _t: self._edited())
@@ -260,9 +260,8 @@ class SubjectView(QWidget):
             header = _header_of(sales, name)
             if header is None:
                 continue
-            column = sales.frame[header]
-            if pd.api.types.is_numeric_dtype(column) and column.notna().any():
-                out[name] = float(column.median())
+            if header in sales.medians:
+                out[name] = sales.medians[header]
         return out
 
     def fill_medians(self) -> dict[str, float]:

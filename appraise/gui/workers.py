@@ -142,6 +142,7 @@ def run_load_job(job: LoadJob, report: Report) -> LoadOutcome:
             "to start a new valuation with it",
             file=str(job.path),
         )
+    sales.medians  # noqa: B018 - computed here, on the pool thread, not by the subject form
     return LoadOutcome(sales, spec, subject, rules.reference_date)
 
 

@@ -247,6 +247,23 @@ def test_few_levels_stay_on_the_dense_path(hp2):
     assert "dense design" in format_fit(fit)
 
 
+def test_many_sales_take_the_structured_path_however_few_the_levels(hp2, monkeypatch):
+    # From ABSORB_MIN_SALES sales the auto path absorbs even a short onehot term (the
+    # pseudo-inverse of a tall design would hold the interpreter lock); same numbers.
+    from appraise.engine import fitting
+
+    few = hp2.assign(tract=hp2["tract"].str[:2])
+    toml = HP2.replace("t07", "t0")
+    monkeypatch.setattr(fitting, "ABSORB_MIN_SALES", len(few) - 10)
+    fit = _fit(few, toml)
+    assert fit.path == "structured"
+    dense = _fit(few, toml, path="dense")
+    assert_allclose(_col(fit, "coef"), _col(dense, "coef"), rtol=RTOL, atol=1e-12)
+    assert_allclose(fit.cov_params, dense.cov_params, rtol=RTOL, atol=1e-15)
+    monkeypatch.setattr(fitting, "ABSORB_MIN_SALES", len(few) + 10)
+    assert _fit(few, toml).path == "dense"
+
+
 # --- rank problems, found from the same factorisation --------------------------------------
 def test_a_region_level_covariate_is_collinear_with_the_regions(hp2):
     d = hp2.assign(tract_nox=hp2.groupby("tract")["nox"].transform("mean"))

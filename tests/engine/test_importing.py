@@ -566,3 +566,19 @@ def test_a_textbook_dataset_reads_back_unchanged(tmp_path):
     }
     for col in ref.columns:
         np.testing.assert_allclose(t.frame[col], ref[col].astype(float), rtol=1e-15, atol=0)
+
+
+def test_medians_and_levels_are_those_pandas_gives(tmp_path):
+    # The subject form's hints: reference is pandas' own median and value_counts.
+    path = Path(__file__).resolve().parents[2] / "sample_data" / "ashcombe_sales.csv"
+    sales = load_sales(path)
+    frame = sales.frame.drop(columns="_row")
+    numeric = [c for c in frame.columns if pd.api.types.is_numeric_dtype(frame[c])]
+    assert numeric and set(sales.medians) == {c for c in numeric if frame[c].notna().any()}
+    for c in sales.medians:
+        assert sales.medians[c] == float(frame[c].median())
+    text = "Neighbourhood"
+    assert sales.levels_by_count(text) == tuple(
+        frame[text].dropna().astype(str).value_counts().index
+    )
+    assert sales.levels_by_count(text) is sales.levels_by_count(text)  # computed once

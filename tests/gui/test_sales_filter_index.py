@@ -62,3 +62,26 @@ def test_large_table_filter_waits_for_the_index(qtbot, window, sample_copy, monk
     qtbot.waitUntil(
         lambda: model.rowCount() == window.session.sales.source.rows_in_file, timeout=WAIT_MS
     )
+
+
+def test_number_columns_factorised_by_arrow_read_as_pandas_would():
+    # A typed number column is hashed by Arrow (the interpreter lock stays free); each
+    # row must still map to its own value, NaN to missing, as pandas.factorize gives it.
+    from appraise.gui.sales_view import SalesColumn
+
+    rng = np.random.default_rng(8)
+    n = 2_000
+    columns = [
+        pd.Series(np.where(rng.random(n) < 0.1, np.nan, rng.normal(0, 1e5, n).round(1))),
+        pd.Series(rng.integers(-3, 40, n)),
+        pd.Series(rng.random(n) < 0.5),
+        pd.Series(np.array([0.0, np.inf, -np.inf, np.nan, 1e-7] * (n // 5))),
+    ]
+    for series in columns:
+        col = SalesColumn(series, np.array([None, 7], dtype=object))
+        codes, uniques = col.factorized()
+        got = [None if c < 0 else uniques[c] for c in codes]
+        want = [None if pd.isna(v) else v for v in [*series.tolist(), None, 7]]
+        assert [plain(v) for v in got] == [plain(v) for v in want]
+        ref_codes, _ = pd.factorize(series.to_numpy(), use_na_sentinel=True)
+        assert np.array_equal(codes[:n], ref_codes)  # numbered by first appearance, too
