@@ -441,7 +441,10 @@ def _read_column(s: pd.Series) -> _ColumnData:
         )
         if missing.all():
             return _ColumnData("empty", np.full(len(s), np.nan), missing)
-        v = s.to_numpy(dtype=object, na_value=None)
+        # each distinct text made a Python string once (Arrow hashes the column), not
+        # once a sale: a county's region column is a million cells and a few names
+        codes, uniques = pd.factorize(s, use_na_sentinel=True)
+        v = np.append(np.asarray(uniques, dtype=object), None)[codes]
         v[missing] = None
         return _ColumnData("text", v, missing)
     obj = s.to_numpy(dtype=object)

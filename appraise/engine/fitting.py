@@ -252,9 +252,11 @@ def _model_exclusions(
     notes: list[str] = []
     rows = frame[ROW_COLUMN].to_numpy()
     id_col = sales.roles.column("sale_id")
+    user_exclusions = tuple(user_exclusions)
+    # the ids as Arrow text (no Python string per sale), only when something is excluded
     ids = (
-        frame[id_col].astype("string").fillna("").str.strip().to_numpy()
-        if id_col in frame.columns
+        frame[id_col].astype("string").fillna("").str.strip()
+        if id_col in frame.columns and (spec.exclude or user_exclusions)
         else None
     )
     if spec.exclude:
@@ -264,7 +266,7 @@ def _model_exclusions(
                 file=sales.source.path,
             )
         for e in spec.exclude:
-            hit = np.flatnonzero((ids == e.sale_id) & keep)
+            hit = np.flatnonzero(ids.eq(e.sale_id).to_numpy(dtype=bool) & keep)
             if hit.size == 0:
                 notes.append(
                     f"model file excludes sale {e.sale_id!r}, which is not among the sales used"
@@ -272,14 +274,13 @@ def _model_exclusions(
             for i in hit:
                 keep[i] = False
                 out.append(Exclusion(int(rows[i]), e.sale_id, e.reason, None, "model"))
-    user_exclusions = tuple(user_exclusions)
     row_pos = {int(r): i for i, r in enumerate(rows)} if user_exclusions else {}
     for e in user_exclusions:
         i = row_pos.get(int(e.row))
         if i is None or not keep[i]:
             continue
         keep[i] = False
-        sid = None if ids is None else (ids[i] or None)
+        sid = None if ids is None else (ids.iloc[i] or None)
         out.append(Exclusion(int(rows[i]), sid, e.reason, e.column, "user"))
     return keep, out, notes
 

@@ -78,7 +78,8 @@ def test_strata_and_map(view):
     assert np.isfinite(effect).all()
     by_level = {e.level: e.effect.value for e in ra.effects}
     assert set(np.round(effect, 12)) == set(np.round(list(by_level.values()), 12))
-    assert len(view.map_sales.data) == ra.n
+    assert sum(len(item.data) for item in view.map_sales) == ra.n
+    assert len(view.map_sales) == len(by_level)  # one colour, one scatter per region
     assert view.pages.count() == 6
     # price per unit of living area in each region, as the engine computes it
     assert view.area_prices.rowCount() == 6

@@ -345,13 +345,20 @@ def diagnose(fit: FitResult, settings: DiagnosticSettings = DEFAULT_SETTINGS) ->
     return dataclasses.replace(d, coverage=coverage, warnings=(*d.warnings, *extra))
 
 
+def _labels(column: pd.Series) -> np.ndarray:
+    """A column as an object array (None where missing), each distinct value made a
+    Python object once: pandas hashes the column (Arrow for text), not a loop per sale."""
+    codes, uniques = pd.factorize(column, use_na_sentinel=True)
+    return np.append(np.asarray(uniques, dtype=object), None)[codes]
+
+
 def coverage_splits(fit: FitResult, term: str | None) -> dict[str, np.ndarray]:
     """The splits of :func:`.coverage.coverage_by_segment` for ``fit``: fifths of the
     predicted price, the regions, and ``term`` (a column or role) when given."""
     splits: dict[str, np.ndarray] = {"predicted price": fifths(fit.fitted)}
     region = fit.sales.roles.column("region")
     if region is not None and region in fit.frame.columns:
-        splits["region"] = fit.frame[region].to_numpy(dtype=object)
+        splits["region"] = _labels(fit.frame[region])
     if term:
         col = term if term in fit.frame.columns else fit.sales.roles.column(term)
         if col is not None and col in fit.frame.columns:
@@ -359,7 +366,7 @@ def coverage_splits(fit: FitResult, term: str | None) -> dict[str, np.ndarray]:
             if values.notna().mean() > 0.95 and values.nunique() > 5:
                 splits[term] = fifths(values.to_numpy(dtype=float))
             else:
-                splits[term] = fit.frame[col].to_numpy(dtype=object)
+                splits[term] = _labels(fit.frame[col])
         else:  # a derived variable or an expression with one number per sale
             from ..design import learn_design
 

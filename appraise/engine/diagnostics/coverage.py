@@ -96,10 +96,13 @@ def fifths(values: np.ndarray, unit: str = "") -> np.ndarray:
     ok = np.isfinite(values)
     if ok.sum() < 5:
         return out
-    ranks = pd.Series(values[ok]).rank(method="first").to_numpy()
+    # ranks as pandas' rank(method="first") gives them: ties in order of appearance
+    order = np.argsort(values[ok], kind="stable")
+    ranks = np.empty(len(order), dtype=float)
+    ranks[order] = np.arange(1, len(order) + 1)
     k = np.minimum((5 * (ranks - 1) / ok.sum()).astype(int), 4)
-    names = ["1 of 5 (lowest)", "2 of 5", "3 of 5", "4 of 5", "5 of 5 (highest)"]
-    out[ok] = [names[i] for i in k]
+    names = np.array(["1 of 5 (lowest)", "2 of 5", "3 of 5", "4 of 5", "5 of 5 (highest)"], object)
+    out[ok] = names[k]
     return out
 
 
@@ -127,12 +130,21 @@ def coverage_by_segment(
     segments: list[Segment] = []
     for by, labels in splits.items():
         labels = np.asarray(labels, dtype=object)
-        keep = usable & np.array([lab is not None and not pd.isna(lab) for lab in labels])
+        keep = usable & ~pd.isna(labels)
         if not keep.any():
             continue
-        frame = pd.DataFrame({"label": labels[keep].astype(str), "inside": inside[keep]})
-        for label, grp in frame.groupby("label", sort=True):
-            segments.append(Segment(by, str(label), int(len(grp)), int(grp["inside"].sum())))
+        # each distinct label hashed by pandas, counted with bincount (a county's split is
+        # a million labels and a handful of segments); labels alike as text are one
+        codes, uniques = pd.factorize(labels[keep])
+        n = np.bincount(codes, minlength=len(uniques))
+        hits = np.bincount(codes, weights=inside[keep], minlength=len(uniques))
+        by_text: dict[str, list[int]] = {}
+        for u, count, hit in zip(uniques, n.tolist(), hits.tolist(), strict=True):
+            tally = by_text.setdefault(str(u), [0, 0])
+            tally[0] += count
+            tally[1] += round(hit)
+        for label in sorted(by_text):
+            segments.append(Segment(by, label, by_text[label][0], by_text[label][1]))
     return SegmentCoverage(level=float(level), spread=spread, segments=tuple(segments))
 
 

@@ -87,3 +87,28 @@ def test_a_chosen_term_splits_by_fifths_or_levels():
     assert sum(s.n for s in d.coverage.segments if s.by == "log(area)") == fit.n
     with pytest.raises(AppraiseError, match="coverage term"):
         diagnose(fit, DiagnosticSettings(coverage_term="no_such_column"))
+
+
+def test_fifths_and_segments_as_pandas_groups_them():
+    # Reference: pandas' rank(method="first") for the fifths (ties in order of
+    # appearance) and a groupby over the labels as text for the counts.
+    rng = np.random.default_rng(5)
+    values = np.round(rng.normal(0, 1, 1_003), 1)  # many ties
+    values[[4, 40, 400]] = np.nan
+    ok = np.isfinite(values)
+    ranks = pd.Series(values[ok]).rank(method="first").to_numpy()
+    k = np.minimum((5 * (ranks - 1) / ok.sum()).astype(int), 4)
+    names = ["1 of 5 (lowest)", "2 of 5", "3 of 5", "4 of 5", "5 of 5 (highest)"]
+    assert fifths(values)[ok].tolist() == [names[i] for i in k]
+    assert all(v is None for v in fifths(values)[~ok])
+
+    labels = np.array(rng.choice(["East", "West", None, 3, "3"], 1_003).tolist(), dtype=object)
+    inside = rng.random(1_003) < 0.9
+    usable = rng.random(1_003) < 0.97
+    got = coverage_by_segment(inside, usable, {"r": labels}, level=0.9, spread="constant")
+    keep = usable & np.array([v is not None for v in labels])
+    frame = pd.DataFrame({"label": labels[keep].astype(str), "inside": inside[keep]})
+    want = [
+        (str(lab), len(g), int(g["inside"].sum())) for lab, g in frame.groupby("label", sort=True)
+    ]
+    assert [(s.label, s.n, s.inside) for s in got.segments] == want
