@@ -213,6 +213,11 @@ def structured_sales(rows: int, regions: int, seed: int):
     return sales, spec
 
 
+def _plain(v: float) -> str:
+    """Ten significant digits without an exponent."""
+    return np.format_float_positional(v, precision=10, unique=False, fractional=False, trim="-")
+
+
 def _status_kib(key: str) -> int:
     with open("/proc/self/status", encoding="ascii") as f:
         for line in f:
@@ -311,18 +316,19 @@ def structured_cases(args: argparse.Namespace) -> int:
             print(
                 f"    {side + ' path':<16} fit {r['fit_s']:7.2f} s   check-up "
                 f"{r['diagnose_s']:7.2f} s   process {r['wall']:6.1f} s, peak "
-                f"{r['peak_mib']:7,.0f} MiB; the check-up's own peak above the fit "
+                f"{r['peak_mib']:7,.0f} MiB; the check-up's own peak above what the process held "
                 + ("n/a" if extra is None else f"{extra:6,.0f} MiB")
             )
         keys = ("bp_lm", "condition", "kfold_rmse", "loo_press", "max_cooks", "region_gvif_root")
         for side, r in results.items():
             if r["ok"]:
-                print(f"    {side:<16} " + "  ".join(f"{k} {r[k]:.10g}" for k in keys))
+                print(f"    {side:<16} " + "  ".join(f"{k} {_plain(r[k])}" for k in keys))
         if all(r["ok"] for r in results.values()) and len(results) == 2:
             s, d = results["structured"], results["dense"]
             worst = max(abs(s[k] - d[k]) / abs(d[k]) for k in keys)
+            digits = int(-np.log10(worst)) if worst > 0 else 16
             ratio = (d["diagnose_s"] / s["diagnose_s"], d["peak_mib"] / s["peak_mib"])
-            print(f"    largest relative difference of these numbers {worst:.1e}; the dense "
+            print(f"    these numbers agree to {digits} significant digits; the dense "
                   f"check-up takes {ratio[0]:.1f}x the time, its process {ratio[1]:.1f}x "
                   "the memory")  # fmt: skip
     return status
