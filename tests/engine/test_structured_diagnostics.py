@@ -238,3 +238,11 @@ def test_the_condition_number_is_skipped_in_words_beyond_its_size(ames, monkeypa
     assert any("condition number not computed" in w for w in d.warnings)
     # everything else is still there
     assert len(d.collinearity.columns) == fit.p - 1 and d.kfold.n_predicted > 0
+
+
+def test_modelled_spread_intervals_equal_the_dense_path():
+    # The leave-one-out intervals of a modelled spread (engine/spread.py) on both paths.
+    frame = _simulated(n=800, regions=45, seed=4)
+    fit, s, _ = _check_equal(frame, SIM + 'spread = "modelled"\n', DiagnosticSettings(folds=4))
+    assert fit.spread is not None
+    assert s.to_dict()["overall"]["accuracy"]["coverage_by_segment"] is not None

@@ -97,7 +97,8 @@ class WithinBlock:
     Parameters
     ----------
     Z:
-        (n, k) numeric block.
+        (n, k) numeric block, or a sequence of (n, k_i) and (n,) arrays whose columns side
+        by side make it (never copied whole: rows are put together a block at a time).
     codes, reference, counts:
         Level of each row, the level without an indicator, rows per level.
     names:
@@ -112,7 +113,7 @@ class WithinBlock:
 
     def __init__(
         self,
-        Z: np.ndarray,
+        Z: np.ndarray | Sequence[np.ndarray],
         codes: np.ndarray,
         reference: int,
         counts: np.ndarray,
@@ -120,15 +121,19 @@ class WithinBlock:
         *,
         check: bool = True,
     ) -> None:
-        self.Z = Z
+        parts = [Z] if isinstance(Z, np.ndarray) else list(Z)
+        self._parts = [p[:, None] if p.ndim == 1 else p for p in parts]
         self.codes = codes
         self.reference = int(reference)
         self.counts = np.asarray(counts)
-        n, k = Z.shape
+        n = self._parts[0].shape[0]
+        k = sum(p.shape[1] for p in self._parts)
+        self._n = int(n)
         G = len(self.counts)
+        columns = [p[:, j] for p in self._parts for j in range(p.shape[1])]
         sums = np.empty((G, k))
-        for j in range(k):
-            sums[:, j] = np.bincount(codes, weights=Z[:, j], minlength=G)
+        for j, col in enumerate(columns):
+            sums[:, j] = np.bincount(codes, weights=col, minlength=G)
         self.sums = sums
         means = sums / np.maximum(self.counts, 1)[:, None]
         means[self.reference] = 0.0
@@ -138,7 +143,7 @@ class WithinBlock:
             r = _tsqr(r, self.within(lo, hi))
         self.r22 = np.zeros((k, k)) if r is None else r
         d = np.abs(np.diag(self.r22))
-        norms = np.sqrt(np.einsum("ij,ij->j", Z, Z))
+        norms = np.array([np.sqrt(col @ col) for col in columns])
         rel = d / np.where(norms > 0, norms, 1.0)
         if check and k and rel.min() <= max(n, k) * np.finfo(float).eps:
             labels = list(names) or [f"column {j + 1}" for j in range(k)]
@@ -151,11 +156,17 @@ class WithinBlock:
 
     @property
     def n(self) -> int:
-        return int(self.Z.shape[0])
+        return self._n
+
+    def rows(self, lo: int, hi: int) -> np.ndarray:
+        """Rows lo:hi of :math:`Z`."""
+        if len(self._parts) == 1:
+            return self._parts[0][lo:hi]
+        return np.hstack([p[lo:hi] for p in self._parts])
 
     def within(self, lo: int, hi: int) -> np.ndarray:
         """Rows lo:hi of :math:`\\tilde Z = M_DZ` (level means off, reference rows as they are)."""
-        return self.Z[lo:hi] - self.means[self.codes[lo:hi]]
+        return self.rows(lo, hi) - self.means[self.codes[lo:hi]]
 
     def level_means(self, v: np.ndarray) -> np.ndarray:
         """(G,) level means of ``v``, zero for the reference level."""
@@ -168,7 +179,7 @@ class WithinBlock:
         """Fitted values of ``v`` regressed by least squares on :math:`[Z, D]`."""
         v = np.asarray(v, dtype=float)
         vt = v - self.level_means(v)[self.codes]
-        g = np.zeros(self.Z.shape[1])
+        g = np.zeros(self.sums.shape[1])
         for lo, hi in _blocks(self.n):
             g += self.within(lo, hi).T @ vt[lo:hi]
         b = scipy.linalg.cho_solve((self.r22, False), g)
@@ -187,7 +198,7 @@ class _Projection:
         self._fit, self._block = fit, block
 
     def hat_diagonal(self) -> np.ndarray:
-        return np.asarray(self._fit.leverage())
+        return np.array(self._fit.leverage())  # a copy: the fit's own is read-only
 
     def project(self, v: np.ndarray) -> np.ndarray:
         return self._block.project(v)
@@ -393,8 +404,7 @@ def structured_residual_tests(
     e = np.asarray(resid, dtype=float)
     n = e.size
     if design.const.size == 0:
-        Z1 = np.column_stack([np.ones(n), a.Z])
-        block = WithinBlock(Z1, a.codes, a.reference, a.counts)
+        block = WithinBlock([np.ones(n), a.Z], a.codes, a.reference, a.counts)
         df = a.p
     else:
         block = design.block
@@ -464,9 +474,7 @@ def structured_kfold(
     ref = fit.reference
     K = int(min(folds, n))
     fold = assign_folds(n, K, seed)
-    W = WithinBlock(
-        np.column_stack([Z, y]), codes, ref, fit.counts, check=False
-    )  # [Z, y] with level means
+    W = WithinBlock([Z, y], codes, ref, fit.counts, check=False)  # [Z, y], level means
     # The triangle of [Z~, y~] and, per fold, sums over its held-out rows.
     fl = fold * G + codes
     n_h = np.bincount(fl, minlength=K * G).reshape(K, G)  # held-out sales per level
