@@ -501,8 +501,16 @@ def fit_model(
 def _id_texts(column: pd.Series) -> tuple[str | None, ...]:
     """Each sale id as text, None where missing (a text column without a Python loop)."""
     if isinstance(column.dtype, pd.StringDtype):
-        return tuple(column.to_numpy(dtype=object, na_value=None))
+        out: list[str | None] = []
+        for lo in range(0, len(column), _ID_SLICE):  # the lock is free between slices
+            out.extend(column.iloc[lo : lo + _ID_SLICE].to_numpy(dtype=object, na_value=None))
+        return tuple(out)
     return tuple(None if pd.isna(v) else str(v) for v in column.tolist())
+
+
+_ID_SLICE = 50_000
+"""Sale ids made Python strings per call: a call holds the interpreter lock, so a pool
+thread fitting a million sales leaves the window's thread a turn every few milliseconds."""
 
 
 def _matrix_names(names: tuple[str, ...], group: TermGroup | None) -> tuple[str, ...]:

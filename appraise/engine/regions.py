@@ -661,10 +661,10 @@ def _is_name(text: str) -> bool:
 def level_labels(values: pd.Series) -> np.ndarray:
     """Each value written as the design writes a level (3.0 -> '3', dates ISO), so rows
     can be matched with the levels of a ``onehot`` term; missing values become ''."""
-    out = np.full(len(values), "", dtype=object)
-    present = values.notna().to_numpy()
-    out[present] = [level_label(v) for v in values[present].tolist()]
-    return out
+    # each distinct value labelled once (a county: a million sales, a few regions)
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    labels = [level_label(v) for v in np.asarray(uniques, dtype=object).tolist()]
+    return np.array([*labels, ""], dtype=object)[codes]
 
 
 def has_region_term(fit: FitResult) -> bool:

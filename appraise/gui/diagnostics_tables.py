@@ -464,13 +464,14 @@ class SaleChecksModel(SortableTableModel, QAbstractTableModel):
         else:
             infl, loo = d.influence, d.loo
             codes = np.full(d.n, "", dtype=object)
-            for f in d.flags:
-                codes[f.position] = ", ".join(f.codes)
+            at = np.fromiter((f.position for f in d.flags), dtype=np.intp, count=len(d.flags))
+            codes[at] = [", ".join(f.codes) for f in d.flags]
             with np.errstate(divide="ignore", invalid="ignore"):
                 ratio = loo.price_prediction / d.price
             cash = _money_cell(currency)
             self._rows = np.asarray(d.rows, dtype=np.int64)
-            self._flagged = codes != ""
+            self._flagged = np.zeros(d.n, dtype=bool)
+            self._flagged[at] = True
             self._columns = [
                 SaleColumn("Row", self._rows, str),
                 SaleColumn("Sale", np.asarray(d.sale_ids, dtype=object), _text, numeric=False),
