@@ -2,7 +2,9 @@
 
 :func:`diagnose_arrays` works on plain arrays; :func:`diagnose` reads them from a
 :class:`~appraise.engine.fitting.FitResult`. Neither forms an n x n matrix or refits
-the model n times (k-fold cross-validation refits it k times).
+the model n times (k-fold cross-validation refits it k times). A structured fit (a
+region block absorbed, ``fit.structure``) is checked by :mod:`.structured` without its
+dense design, to the same numbers; both end in :func:`assemble_diagnostics`.
 """
 
 from __future__ import annotations
