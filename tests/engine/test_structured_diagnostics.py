@@ -51,7 +51,7 @@ def _same(a, b, where: str = "") -> None:
         if math.isnan(a) or math.isnan(b):
             assert math.isnan(a) and math.isnan(b), where
         else:
-            assert_allclose(a, b, rtol=RTOL, atol=ATOL, err_msg=where)
+            assert abs(a - b) <= ATOL + RTOL * abs(b), f"{where}: {a!r} != {b!r}"
     else:
         assert a == b, f"{where}: {a!r} != {b!r}"
 
@@ -172,7 +172,7 @@ def test_without_intercept_and_linear_response_equals_the_dense_path():
 
 
 # --- simulated sales: many regions, known truth ------------------------------------------------
-def _simulated(n: int = 2500, regions: int = 120, seed: int = 7) -> pd.DataFrame:
+def _simulated(n: int = 1500, regions: int = 80, seed: int = 7) -> pd.DataFrame:
     rng = np.random.default_rng(seed)
     region = rng.integers(1, regions, n)
     region[:3] = 0  # the reference level: three sales only, often absent from a fold
@@ -199,16 +199,13 @@ def test_simulated_regions_equal_the_dense_path_and_find_the_truth():
     frame = _simulated()
     settings = DiagnosticSettings(folds=5, seed=3)
     fit, s, d = _check_equal(frame, SIM, settings)
-    assert fit.p == 2 + 1 + 120
+    assert fit.p == 2 + 1 + 80
     # known truth: the planted outlier is flagged, the uneven spread found
     assert "outlier" in s.flag_for_row(int(fit.rows[100])).codes
     assert s.residual_tests.heteroskedastic
-    # folds without the reference level's three sales or the lone level's sale: those
-    # sales cannot be predicted from the other folds, on both paths alike
-    ref_sales = np.flatnonzero(fit.frame["region"].to_numpy() == "r000")
+    # the lone level's sale cannot be predicted from the other folds, on both paths alike
+    # (a fold without the reference level: the next test)
     assert np.isnan(s.kfold.price_prediction[3])
-    held_alone = [i for i in ref_sales if np.sum(s.kfold.fold[ref_sales] == s.kfold.fold[i]) == 3]
-    assert all(np.isnan(s.kfold.price_prediction[held_alone]))
     assert s.kfold.n_unpredictable == d.kfold.n_unpredictable
 
 

@@ -89,7 +89,7 @@ def _blocks(n: int):
 def _tsqr(r: np.ndarray | None, block: np.ndarray) -> np.ndarray:
     """The triangle of the rows of ``r`` stacked on ``block`` (QR over blocks of rows)."""
     stacked = block if r is None else np.vstack([r, block])
-    return scipy.linalg.qr(stacked, mode="r", check_finite=False)[0][: stacked.shape[1]]
+    return np.linalg.qr(stacked, mode="r")
 
 
 class WithinBlock:
