@@ -243,3 +243,32 @@ def test_modelled_spread_intervals_equal_the_dense_path():
     fit, s, _ = _check_equal(frame, SIM + 'spread = "modelled"\n', DiagnosticSettings(folds=4))
     assert fit.spread is not None
     assert s.to_dict()["overall"]["accuracy"]["coverage_by_segment"] is not None
+
+
+def test_the_diagnose_command_checks_a_structured_fit(tmp_path):
+    # ``appraise diagnose --json`` on sales whose 80 regions take the structured path by
+    # themselves: the JSON equals the dense path's check-up of the same sales.
+    import contextlib
+    import io
+    import json
+
+    from appraise.cli import main
+    from appraise.engine.importing import load_sales
+
+    sales_csv, model = tmp_path / "sales.csv", tmp_path / "model.toml"
+    _simulated(n=900, regions=60, seed=5).to_csv(sales_csv, index=False)
+    model.write_text(SIM, encoding="utf-8")
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf):
+        code = main(["diagnose", str(sales_csv), "--model", str(model), "--json",
+                     "--folds", "4", "--seed", "2"])  # fmt: skip
+    assert code == 0
+    out = json.loads(buf.getvalue())
+    sales = load_sales(sales_csv)
+    spec = parse_model(SIM)
+    assert fit_model(sales, spec).path == "structured"
+    ref = diagnose(fit_model(sales, spec, path="dense"), DiagnosticSettings(folds=4, seed=2))
+    ref = json.loads(json.dumps(ref.to_dict(), default=float))
+    for key in ("n", "p", "terms", "columns", "overall", "warnings"):
+        _same(out[key], ref[key], key)
+    _same(_by_row(out)["flagged"], _by_row(ref)["flagged"], "flagged")
