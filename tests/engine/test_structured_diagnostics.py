@@ -272,3 +272,20 @@ def test_the_diagnose_command_checks_a_structured_fit(tmp_path):
     for key in ("n", "p", "terms", "columns", "overall", "warnings"):
         _same(out[key], ref[key], key)
     _same(_by_row(out)["flagged"], _by_row(ref)["flagged"], "flagged")
+
+
+def test_a_rare_level_of_a_small_onehot_term_in_the_numeric_block():
+    # A small category term stays in Z; its rare level (two sales, in one fold) is lost by
+    # that fold's training fit, and those sales go unpredicted on both paths.
+    from appraise.engine.diagnostics.crossval import assign_folds
+
+    frame = _simulated(n=700, regions=45, seed=8)
+    rng = np.random.default_rng(0)
+    kind = rng.choice(["detached", "semi", "terrace"], len(frame)).astype(object)
+    seed = next(s for s in range(100) if len(set(assign_folds(700, 4, s)[[10, 11]])) == 1)
+    kind[[10, 11]] = "flat"
+    toml = SIM.replace('"age", ', '"age", "onehot(kind, ref=\'detached\')", ')
+    fit, s, d = _check_equal(frame.assign(kind=kind), toml, DiagnosticSettings(folds=4, seed=seed))
+    assert "kind[flat]" in fit.names and fit.structure.term.startswith("onehot(region")
+    assert np.isnan(s.kfold.price_prediction[[10, 11]]).all()
+    assert s.kfold.n_unpredictable == d.kfold.n_unpredictable
