@@ -58,6 +58,12 @@ class CodedCells:
         The distinct cells that occur, numbered by first appearance; -1 for a None cell.
         """
         present = self.codes >= 0
+        c = self.codes[present]
+        if len(c):  # already numbered by first appearance (Arrow's and the coder's
+            # codes are, until a cell is blanked) with every distinct cell in use: as is
+            top = np.maximum.accumulate(c)
+            if int(top[-1]) == len(self.uniques) - 1 and int(np.diff(top, prepend=-1).max()) <= 1:
+                return np.where(present, self.codes, -1).astype(np.intp), self.uniques
         if present.all():
             sub, order = pd.factorize(self.codes)
             return sub.astype(np.intp, copy=False), self.uniques[np.asarray(order)]

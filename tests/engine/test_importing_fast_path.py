@@ -379,3 +379,25 @@ def test_parquet_text_and_date_columns_read_as_codes_like_python_values(monkeypa
         by_cell = importing.load_sales(path)
     _same(fast, by_cell)
     assert fast.n_used + len(fast.excluded) == n
+
+
+@settings(max_examples=150, deadline=None)
+@given(
+    st.lists(st.integers(min_value=-1, max_value=4), max_size=14),
+    st.integers(min_value=1, max_value=5),
+)
+def test_coded_cells_factorise_as_pandas_does(codes, k):
+    # Reference: pandas.factorize of the cells themselves (codes by first appearance,
+    # only the distinct cells that occur, -1 for a missing cell), whether or not the
+    # codes were in that order already (the shortcut) or a cell was blanked.
+    from appraise.engine.coded_cells import CodedCells
+
+    codes = [min(c, k - 1) for c in codes]
+    uniques = np.array([f"v{i}" for i in range(k)], dtype=object)
+    cells = CodedCells(np.array(codes, dtype=np.int32), uniques)
+    got_codes, got_uniques = cells.factorized()
+    values = np.empty(len(codes), dtype=object)
+    values[:] = [None if c < 0 else uniques[c] for c in codes]
+    want_codes, want_uniques = pd.factorize(values, use_na_sentinel=True)
+    assert got_codes.tolist() == want_codes.tolist()
+    assert list(got_uniques) == list(want_uniques)
