@@ -238,6 +238,16 @@ OWN_FIT_TEXT = (
 )
 
 
+def _sig(v: float, digits: int = 3) -> str:
+    """``v`` to ``digits`` significant digits, never in scientific notation (a county's
+    Cook's distance limit is 4/n = 0.000004, which ``:.3g`` writes as 4e-06)."""
+    if not np.isfinite(v):
+        return str(v)
+    return np.format_float_positional(
+        float(v), precision=digits, unique=False, fractional=False, trim="-"
+    )
+
+
 def flag_sales(
     infl: Influence,
     limits: Thresholds,
@@ -256,11 +266,11 @@ def flag_sales(
         checks = (
             (own, "own_fit", h, 1.0, lambda v: OWN_FIT_TEXT),
             (~own & (h > lev), "leverage", h, lev,
-             lambda v: f"unusual attributes (leverage {v:.3f} > {lev:.3f})"),
+             lambda v: f"unusual attributes (leverage {_sig(v)} > {_sig(lev)})"),
             (~own & (np.abs(t) > stu), "outlier", t, stu,
              lambda v: f"price far from the model (studentized residual {v:+.2f}, limit ±{stu:g})"),
             (~own & (d > coo), "cooks", d, coo,
-             lambda v: f"moves the coefficients (Cook's distance {v:.3g} > {coo:.3g})"),
+             lambda v: f"moves the coefficients (Cook's distance {_sig(v)} > {_sig(coo)})"),
             (~own & np.isfinite(dff) & (np.abs(f) > dff), "dffits", f, dff,
              lambda v: f"moves its own fitted value (DFFITS {v:+.3f}, limit ±{dff:.3f})"),
         )  # fmt: skip
