@@ -134,3 +134,22 @@ def test_dffits_tracks_cooks_distance(windsor_influence):
     p = ref.k_vars
     s_loo2 = ref.sigma2_not_obsi
     assert_allclose(ref.dffits[0] ** 2, p * ref.cooks_distance[0] * s2 / s_loo2, rtol=1e-8)
+
+
+def test_flag_reasons_of_a_large_fit_have_no_scientific_notation():
+    # 200,000 sales: the limits 3p/n and 4/n are 0.000045 and 0.00002; a reason must read
+    # them as a person does, not as 4.5e-05 or 0.000 (simulated, a planted far sale).
+    rng = np.random.default_rng(2)
+    n = 200_000
+    X = np.column_stack([np.ones(n), rng.normal(size=n), rng.normal(size=n)])
+    X[7, 1] = 40.0  # far attributes: leverage and Cook's distance flag it
+    y = X @ np.array([1.0, 0.5, -0.2]) + rng.normal(0, 0.1, n)
+    y[7] += 3.0
+    infl = influence(X, y)
+    limits = thresholds(n, 3, DiagnosticSettings())
+    flags = flag_sales(infl, limits, np.arange(2, n + 2), [None] * n)
+    first = next(f for f in flags if f.position == 7)
+    text = first.reason
+    assert "leverage" in text and "Cook's distance" in text
+    assert "e-0" not in text and "> 0.000)" not in text
+    assert "> 0.000045)" in text and "> 0.00002)" in text  # 3*3/200,000 and 4/200,000
