@@ -152,6 +152,18 @@ class FitResult:
         col = int(np.flatnonzero(a.d_pos == j)[0])
         return (a.col_of_level[a.codes] == col).astype(float)
 
+    @cached_property
+    def _medians(self) -> dict[str, float]:
+        return {}
+
+    def design_median(self, name: str) -> float:
+        """The median of one design column over the sales used (computed once a column:
+        the coefficient table reads a polynomial's slope there on every redraw)."""
+        hit = self._medians.get(name)
+        if hit is None:
+            hit = self._medians[name] = float(np.median(self.design_column(name)))
+        return hit
+
     def design_row(self, pos: int) -> np.ndarray:
         """The design row (p,) of the sale at position ``pos``, without the whole design."""
         a = self.structure

@@ -43,10 +43,18 @@ MAX_FLAGS_DRAWN = 5_000
 random subsample of them is drawn, on top of the plain sales' subsample."""
 
 
+def ascending_order(rows: np.ndarray) -> np.ndarray:
+    """The stable order that sorts ``rows``: no sort when they are in order already (the
+    checks hold the sales in file order; a million of them sort in 60 ms)."""
+    if len(rows) < 2 or bool(np.all(rows[1:] >= rows[:-1])):
+        return np.arange(len(rows))
+    return np.argsort(rows, kind="stable")
+
+
 def positions_by_row(d: Diagnostics) -> Callable[[int], int | None]:
     """File row -> position in the diagnostics' arrays (None when not there)."""
     rows = np.asarray(d.rows, dtype=np.int64)
-    order = np.argsort(rows, kind="stable")
+    order = ascending_order(rows)
     sorted_rows = rows[order]
 
     def find(row: int) -> int | None:

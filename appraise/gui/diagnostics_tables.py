@@ -39,7 +39,7 @@ from appraise.report.numbers import (
     unscientific,
 )
 
-from .diagnostics_plots import FLAG_COLOUR, number_text, positions_by_row
+from .diagnostics_plots import FLAG_COLOUR, ascending_order, number_text, positions_by_row
 from .plot_items import OKABE_ITO
 from .table_sorting import SortableTableModel, stable_sort
 
@@ -493,7 +493,7 @@ class SaleChecksModel(SortableTableModel, QAbstractTableModel):
 
     def _apply_order(self) -> None:
         n = len(self._rows)
-        order = np.argsort(self._rows, kind="stable")
+        order = ascending_order(self._rows)
         if self._sort is not None and n and self._sort[0] < len(self._columns):
             col = self._columns[self._sort[0]]
             if col.numeric:

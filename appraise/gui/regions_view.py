@@ -393,7 +393,7 @@ class RegionsView(QWidget):
         cmap, span = effect_colour_map(float(np.nanmin(effect)), float(np.nanmax(effect)))
         # a county's sales: a seeded subsample beyond MAX_DRAWN, said in the title; one
         # brush per region (the effect is the region's), not one per sale
-        keep = drawn_positions(len(east))
+        keep = drawn_positions(len(east), MAP_MAX_DRAWN)
         east, north, effect = east[keep], north[keep], effect[keep]
         shade = np.clip(0.5 + 0.5 * np.nan_to_num(effect, nan=0.0) / span, 0.0, 1.0)
         values, inverse = np.unique(shade, return_inverse=True)
@@ -410,7 +410,7 @@ class RegionsView(QWidget):
             )
             plot.addItem(item)
             self.map_sales.append(item)
-        note = subsample_note(len(pts[0]))
+        note = subsample_note(len(pts[0]), MAP_MAX_DRAWN)
         lat0, lon0 = self._map_origin
         for c in ra.centroids:
             x = (c.longitude - lon0) * KM_PER_DEGREE * math.cos(math.radians(lat0))
@@ -426,6 +426,11 @@ class RegionsView(QWidget):
             f"{ra.term.reference}); labels at each region's centre" + (f"; {note}" if note else "")
         )
 
+
+MAP_MAX_DRAWN = 5_000
+"""Most sales drawn on the map (a seeded subsample beyond, said in the title): pyqtgraph
+spends about 7 ms of the window's thread on every thousand points, and a map of a few
+thousand dots shows where each region lies as well as twenty thousand would."""
 
 MAP_SHADES = 64
 """Most distinct colours on the map; beyond them the effect scale is drawn in steps."""

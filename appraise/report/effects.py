@@ -28,8 +28,6 @@ import re
 from dataclasses import dataclass
 from typing import Any
 
-import numpy as np
-
 from .labels import area_unit_label, field_label
 from .numbers import money_rate, plain, signed_percent
 
@@ -229,7 +227,7 @@ class _Reader:
             powers[int(m.group(2) or 1)] = c
         if column != powers.get(1):
             return Effect(column, f"with {base} (curvature)", None, "")
-        x = float(np.median(self.fit.design_column(column)))
+        x = self.fit.design_median(column)
         slope = sum(k * self.coef.get(c, 0.0) * x ** (k - 1) for k, c in powers.items())
         s = self.step(base)
         value, text = self.change(slope * s.size)

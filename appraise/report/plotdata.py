@@ -54,20 +54,23 @@ TITLES = {
 
 
 # --- the numbers behind the plots -------------------------------------------------------------
-def drawn_positions(n: int) -> np.ndarray:
+def drawn_positions(n: int, most: int | None = None) -> np.ndarray:
     """Positions of the points drawn out of ``n``: all, or a seeded random subsample of
-    :data:`MAX_DRAWN` beyond that (sorted, the same on every call)."""
-    if n <= MAX_DRAWN:
+    ``most`` (None: :data:`MAX_DRAWN`) beyond that (sorted, the same on every call)."""
+    most = MAX_DRAWN if most is None else most
+    if n <= most:
         return np.arange(n)
     rng = np.random.default_rng(SUBSAMPLE_SEED)
-    return np.sort(rng.choice(n, size=MAX_DRAWN, replace=False))
+    return np.sort(rng.choice(n, size=most, replace=False))
 
 
-def subsample_note(n: int) -> str | None:
-    """What a plot of ``n`` sales says when it draws a subsample, else None."""
-    if n <= MAX_DRAWN:
+def subsample_note(n: int, most: int | None = None) -> str | None:
+    """What a plot of ``n`` sales says when it draws a subsample of ``most`` (None:
+    :data:`MAX_DRAWN`), else None."""
+    most = MAX_DRAWN if most is None else most
+    if n <= most:
         return None
-    return f"{MAX_DRAWN:,} of {n:,} sales drawn (a seeded random sample)"
+    return f"{most:,} of {n:,} sales drawn (a seeded random sample)"
 
 
 @dataclass(frozen=True, eq=False)

@@ -94,3 +94,16 @@ def test_a_model_without_regions_says_so(qtbot, view, session):
     session.set_model(plain)
     qtbot.waitUntil(lambda: view.summary.text() == NO_REGIONS, timeout=WAIT_MS)
     assert view.analysis is None
+
+
+def test_the_map_draws_a_seeded_subsample_beyond_its_limit(view, monkeypatch):
+    from appraise.gui import regions_view
+
+    ra = view.analysis
+    monkeypatch.setattr(regions_view, "MAP_MAX_DRAWN", 100)
+    view._draw_map(ra)
+    assert sum(len(item.data) for item in view.map_sales) == 100
+    assert (
+        f"100 of {ra.n:,} sales drawn (a seeded random sample)"
+        in view.map.getPlotItem().titleLabel.text
+    )
