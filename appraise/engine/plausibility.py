@@ -96,7 +96,10 @@ class PlausibilityRules:
     def latest_sale(self, today: _dt.date | None = None) -> _dt.date:
         """The last plausible sale date: reference (or today) plus the margin."""
         ref = self.reference_date or today or _dt.date.today()
-        return ref + _dt.timedelta(days=self.future_margin_days)
+        try:
+            return ref + _dt.timedelta(days=self.future_margin_days)
+        except OverflowError:  # past 9999-12-31 (or before year 1): the calendar's end
+            return _dt.date.max if self.future_margin_days >= 0 else _dt.date.min
 
 
 DEFAULT_RULES = PlausibilityRules()
