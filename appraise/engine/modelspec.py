@@ -27,7 +27,7 @@ Example::
 from __future__ import annotations
 
 import hashlib
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
@@ -196,6 +196,37 @@ def parse_model(text: str, *, source: str = "<model>") -> ModelSpec:
     return model_from_dict(data, source=source)
 
 
+def _effective_date(value: object, err: Callable[[str, str], ModelFileError]) -> str:
+    """The model file's ``effective_date`` as ISO text ``YYYY-MM-DD``: a TOML date, or a
+    string a sales file could hold as a date, with a year in 1678-2261 (the range every
+    date of the app is held in). An impossible date (``2023-02-29``, ``0000-00-00``) or a
+    time of day is refused, never ignored: the date decides which sales are plausible."""
+    import datetime as _dt
+
+    from .cells import parse_date
+
+    if isinstance(value, _dt.datetime | _dt.time) or not isinstance(value, str | _dt.date):
+        raise err(f"must be a date such as 2026-06-30, not {_brief_repr(value)}", "effective_date")
+    try:
+        reading = parse_date(value)
+    except ValueError as exc:
+        raise err(f"{exc} (write the date as YYYY-MM-DD)", "effective_date") from None
+    if reading.value is None:
+        raise err(
+            f"'{value}' could be read day-first or month-first; write it as YYYY-MM-DD",
+            "effective_date",
+        )
+    day = reading.value.date()
+    if not 1678 <= day.year <= 2261:  # a TOML date is not range-checked by parse_date
+        raise err(f"'{day.isoformat()}' is outside the years 1678-2261", "effective_date")
+    return day.isoformat()
+
+
+def _brief_repr(value: object) -> str:
+    text = repr(value)
+    return text if len(text) <= 80 else f"{text[:60]}… ({len(text):,} characters)"
+
+
 def model_from_dict(data: Mapping, *, source: str = "<model>") -> ModelSpec:
     """Validate a mapping (from TOML or a workfile) into a :class:`ModelSpec`."""
 
@@ -249,7 +280,7 @@ def model_from_dict(data: Mapping, *, source: str = "<model>") -> ModelSpec:
         raise err("must be a string", "title")
     eff = data.get("effective_date")
     if eff is not None:
-        eff = str(eff)  # TOML dates arrive as datetime.date
+        eff = _effective_date(eff, err)
     spread = data.get("spread", DEFAULT_SPREAD)
     if spread not in SPREAD_METHODS:
         raise err(f"must be one of {', '.join(SPREAD_METHODS)}, not {spread!r}", "spread")
