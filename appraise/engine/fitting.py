@@ -12,6 +12,7 @@ The steps, each of which records what it leaves out:
 
 from __future__ import annotations
 
+from collections import Counter
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from functools import cached_property
@@ -29,6 +30,7 @@ from .absorb import (
 )
 from .design import DesignSpec, TermGroup, learn_design
 from .errors import FitError, ModelFileError
+from .exclusions import reason_kind
 from .levels import (
     LevelCount,
     level_counts,
@@ -369,6 +371,15 @@ def fit_model(
             )
         )
     frame = _rows(frame, ~bad_price)
+    if len(frame) == 0:  # every sale excluded: say why instead of building an empty design
+        left_out = [*sales.excluded, *excluded]
+        counts = Counter(reason_kind(e.reason) for e in left_out)
+        why = ", ".join(f"{kind} {k:,}" for kind, k in counts.most_common(3))
+        raise FitError(
+            f"no sale is left to fit: all {sales.source.rows_in_file:,} rows are excluded"
+            + (f" (by reason: {why})" if why else ""),
+            file=sales.source.path,
+        )
 
     # learn_design learns category levels only from rows whose inputs are all usable, so
     # one learn and one build settle both the design and the rows it can use.

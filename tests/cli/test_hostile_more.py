@@ -1,0 +1,91 @@
+"""More hostile files through the command line, variations the first hostile tests lacked.
+
+Each case failed before its fix (a traceback, a hang, a silent use of a bad value) and must
+now end with exit 2 and one line naming the file (and the field, row or column), or with
+the bad rows excluded by row number. Expected values are properties of the files written
+here (their names, the rows and limits they break); no number is taken from elsewhere.
+"""
+
+from __future__ import annotations
+
+import os
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+import json  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+import pytest  # noqa: E402
+
+from appraise.cli import main  # noqa: E402
+
+SAMPLE = Path(__file__).resolve().parents[2] / "sample_data"
+SALES = str(SAMPLE / "ashcombe_sales.csv")
+MODEL = str(SAMPLE / "ashcombe_model.toml")
+SUBJECT = str(SAMPLE / "subject.json")
+
+
+def _fails(capsys, argv: list[str], *needles: str) -> str:
+    capsys.readouterr()
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    lines = err.strip().splitlines()
+    assert len(lines) == 1, err  # one line, no traceback, no warning
+    assert lines[0].startswith("appraise: error: ")
+    for n in needles:
+        assert n in lines[0], (n, lines[0])
+    return lines[0]
+
+
+def _model(tmp_path: Path, text: str) -> str:
+    p = tmp_path / "m.toml"
+    p.write_text(text, encoding="utf-8")
+    return str(p)
+
+
+# --- dates at the ends of the calendar ----------------------------------------------------
+def test_a_subject_dated_9999_12_31_is_refused_not_overflowed(tmp_path, capsys):
+    # the plausibility rules added 31 days to the effective date: OverflowError
+    subject = json.loads(Path(SUBJECT).read_text(encoding="utf-8"))
+    subject["effective_date"] = "9999-12-31"
+    s = tmp_path / "s.json"
+    s.write_text(json.dumps(subject), encoding="utf-8")
+    _fails(
+        capsys, ["value", SALES, "-m", MODEL, "-s", str(s)], str(s), "effective_date", "1678-2261"
+    )
+
+
+@pytest.mark.parametrize(
+    ("value", "needle"),
+    [
+        ('"0000-00-00"', "outside the years"),  # was ignored: no effective date at all
+        ('"2023-02-29"', "is not a date"),  # was ignored
+        ('"9999-12-31"', "outside the years"),  # was accepted
+        ("0001-01-01", "outside the years"),  # a TOML date: every sale after it, traceback
+        ("1979-05-27T07:32:00Z", "must be a date"),  # a TOML date-time: traceback
+        ("20240101", "must be a date"),  # an integer, read as text
+    ],
+)
+def test_a_model_effective_date_that_is_no_date_is_refused(tmp_path, capsys, value, needle):
+    m = _model(
+        tmp_path, f'target = "price"\nfeatures = ["living_area"]\neffective_date = {value}\n'
+    )
+    _fails(capsys, ["fit", SALES, "-m", m], m, "'effective_date'", needle)
+
+
+def test_every_sale_excluded_is_one_line_not_a_traceback(tmp_path, capsys):
+    # learn_design got an empty frame: "cannot reshape array of size 0"
+    rules = tmp_path / "rules.toml"
+    rules.write_text("earliest_sale = 2099-01-01\n", encoding="utf-8")
+    line = _fails(
+        capsys, ["fit", SALES, "-m", MODEL, "--plausibility", str(rules)], SALES, "no sale is left"
+    )
+    assert "all 606 rows are excluded" in line  # the sample file has 606 rows
+    sales = tmp_path / "two.csv"
+    sales.write_text("id,price,living_area\na,300000,1500\nb,310000,1600\n", encoding="utf-8")
+    m = _model(
+        tmp_path,
+        'target = "price"\nfeatures = ["living_area"]\n'
+        'exclude = [{id = "a", reason = "gift"}, {id = "b", reason = "gift"}]\n',
+    )
+    _fails(capsys, ["fit", str(sales), "-m", m], str(sales), "all 2 rows are excluded", "gift 2")
