@@ -89,3 +89,27 @@ def test_every_sale_excluded_is_one_line_not_a_traceback(tmp_path, capsys):
         'exclude = [{id = "a", reason = "gift"}, {id = "b", reason = "gift"}]\n',
     )
     _fails(capsys, ["fit", str(sales), "-m", m], str(sales), "all 2 rows are excluded", "gift 2")
+
+
+# --- workbooks ----------------------------------------------------------------------------
+def test_a_workbook_with_a_damaged_style_is_one_line_without_warnings(tmp_path, capsys):
+    # openpyxl printed a UserWarning (two lines) and then a TypeError traceback
+    import zipfile
+
+    from openpyxl import Workbook
+
+    base = tmp_path / "base.xlsx"
+    wb = Workbook()
+    wb.active.append(["price", "living_area"])
+    wb.active.append([300_000, 1_500])
+    wb.save(base)
+    bad = tmp_path / "bad.xlsx"
+    styles = (
+        b'<?xml version="1.0"?><styleSheet xmlns="http://schemas.openxmlformats.org/'
+        b'spreadsheetml/2006/main"><fills count="1"><fill/></fills></styleSheet>'
+    )
+    with zipfile.ZipFile(base) as src, zipfile.ZipFile(bad, "w") as out:
+        for info in src.infolist():
+            data = styles if info.filename == "xl/styles.xml" else src.read(info.filename)
+            out.writestr(info, data)
+    _fails(capsys, ["data", str(bad)], str(bad), "cannot be read as an .xlsx workbook")
