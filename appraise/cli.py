@@ -90,7 +90,8 @@ def _run(func, args: argparse.Namespace) -> int:
     try:
         return int(func(args) or 0)
     except AppraiseError as exc:
-        print(f"appraise: error: {exc}", file=sys.stderr)
+        # one line: a reader's own message (Arrow's, openpyxl's) may span several
+        print("appraise: error: " + " ".join(str(exc).split("\n")), file=sys.stderr)
         return 2
     except (RecursionError, MemoryError) as exc:  # a last guard: the readers check limits first
         print(

@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import io
 import re
-import zipfile
+import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from functools import partial
@@ -44,8 +44,8 @@ from .coded_cells import CodedCells
 from .csv_reading import DELIMITERS as DELIMITERS  # re-exported: part of this module's API
 from .csv_reading import CsvScan, file_sha256, read_csv_cells, scan_csv
 from .csv_reading import sniff_delimiter as sniff_delimiter
-from .errors import DataError, RoleError
-from .limits import check_columns, check_parquet, check_xlsx
+from .errors import AppraiseError, DataError, RoleError
+from .limits import check_columns, check_parquet, check_xlsx, sheet_rows
 from .plausibility import DEFAULT_RULES, PlausibilityRules, RowChecks, decide_decimal_mark
 from .roles import AREA_ROLES, ROLE_KINDS, RoleMap, guess_roles, list_headers, resolve_roles
 from .sales import ROW_COLUMN, Exclusion, SalesTable, SourceInfo
@@ -143,20 +143,21 @@ def _csv_table(
     return RawTable(cells.header, cells.columns, "csv", cells.notes, cells.long_rows)
 
 
-def _read_xlsx(path: Path, sheet: str | int) -> RawTable:
+def _xlsx_rows(path: Path, sheet: str | int) -> tuple[list[str], str, list[list[object]]]:
+    """The sheet names, the chosen sheet and its rows; any failure of the reader on a
+    damaged or hand-made part (TypeError on a style, ParseError on the XML, IndexError on
+    a shared string, ValueError on a cell) is a DataError naming the file and sheet."""
     from openpyxl import load_workbook
-    from openpyxl.utils.exceptions import InvalidFileException
 
-    check_xlsx(path)  # size and extent limits, before any sheet is parsed
     try:
         wb = load_workbook(path, read_only=True, data_only=True)
-    except (zipfile.BadZipFile, InvalidFileException, KeyError, OSError, ValueError) as exc:
+    except Exception as exc:  # noqa: BLE001 - whatever the reader meets in a hostile file
         raise DataError(
             f"cannot be read as an .xlsx workbook ({type(exc).__name__}: {exc})", file=str(path)
         ) from None
+    name: str | None = None
     try:
         names = list(wb.sheetnames)
-        name: str | None = None
         if isinstance(sheet, str) and sheet in names:
             name = sheet
         elif isinstance(sheet, int) or (isinstance(sheet, str) and sheet.strip().isdigit()):
@@ -171,9 +172,22 @@ def _read_xlsx(path: Path, sheet: str | int) -> RawTable:
         ws = wb[name]
         if hasattr(ws, "reset_dimensions"):
             ws.reset_dimensions()  # do not trust the size a writer recorded
-        rows = [list(r) for r in ws.iter_rows(values_only=True)]
+        return names, name, sheet_rows(ws.iter_rows(values_only=True), str(path), name)
+    except AppraiseError:
+        raise
+    except Exception as exc:  # noqa: BLE001 - a cell or part the reader cannot decode
+        raise DataError(
+            f"sheet '{name}' cannot be read ({type(exc).__name__}: {exc})", file=str(path)
+        ) from None
     finally:
         wb.close()
+
+
+def _read_xlsx(path: Path, sheet: str | int) -> RawTable:
+    check_xlsx(path)  # size and extent limits, before any sheet is parsed
+    with warnings.catch_warnings():  # openpyxl warns on stderr about parts it repairs
+        warnings.simplefilter("ignore")
+        names, name, rows = _xlsx_rows(path, sheet)
     notes: list[str] = [f"sheet '{name}'"] if len(names) > 1 else []
     _trim_trailing_blank_rows(rows, notes)
     if not rows:

@@ -37,6 +37,7 @@ import json
 import re
 import tomllib
 import zipfile
+from collections.abc import Iterable, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -166,6 +167,8 @@ def load_toml_text(
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise error(f"not valid TOML: {exc}", file=source) from None
+    except ValueError as exc:  # an integer past Python's 4,300-digit conversion limit
+        raise error(f"{what} holds a number too long to read ({exc})", file=source) from None
     except RecursionError:
         raise error(f"{what} is nested too deeply", file=source) from None
 
@@ -182,9 +185,15 @@ def decode_utf8(data: bytes, *, source: str, error: type[AppraiseError], what: s
 
 
 # --- XLSX ---------------------------------------------------------------------------------
-_DIMENSION = re.compile(rb'<(?:\w+:)?dimension\s+ref="([A-Z]+)?(\d+)?(?::([A-Z]+)(\d+))?"')
-_CELL_REF = re.compile(rb'<(?:\w+:)?c\s[^>]*?\br="([A-Z]+)(\d+)"')
-_ROW_REF = re.compile(rb'<(?:\w+:)?row\s[^>]*?\br="(\d+)"')
+# XML lets an attribute be quoted with ' or ", with white space around the =, and openpyxl
+# reads a reference in any letter case (and with $ signs): each form is matched, or a far
+# cell written r='XFD1048576' or r="xfd1048576" would pass unseen
+_Q = rb"""\s*=\s*["']"""
+_DIMENSION = re.compile(
+    rb"<(?:\w+:)?dimension\s+ref" + _Q + rb"\$?([A-Za-z]+)?\$?(\d+)?(?::\$?([A-Za-z]+)\$?(\d+))?"
+)
+_CELL_REF = re.compile(rb"<(?:\w+:)?c\s[^>]*?\br" + _Q + rb"\$?([A-Za-z]+)\$?(\d+)")
+_ROW_REF = re.compile(rb"<(?:\w+:)?row\s[^>]*?\br" + _Q + rb"(\d+)")
 _ROW_TAG = re.compile(rb"<(?:\w+:)?row[\s>/]")
 _CHUNK = 1 << 20
 
@@ -192,7 +201,7 @@ _CHUNK = 1 << 20
 def column_number(letters: bytes | str) -> int:
     """Spreadsheet column letters as a 1-based number: ``A`` = 1, ``Z`` = 26, ``XFD`` = 16384."""
     n = 0
-    for ch in letters.decode("ascii") if isinstance(letters, bytes) else letters:
+    for ch in (letters.decode("ascii") if isinstance(letters, bytes) else letters).upper():
         n = n * 26 + (ord(ch) - 64)
     return n
 
@@ -227,8 +236,66 @@ def check_xlsx(path: Path) -> None:
                 f"{MAX_XLSX_UNCOMPRESSED:,} bytes (a damaged or hostile file?)",
                 file=file,
             )
+        for info in infos:
+            _check_ratio(info, file)
         for name in [i.filename for i in infos if _is_sheet(i.filename)]:
             _check_sheet_extent(zf, name, file)
+
+
+MAX_XLSX_RATIO = 100
+"""Most times a large part of a workbook (:data:`XLSX_RATIO_FROM` bytes or more unzipped)
+may unzip to its stored size: sheets of real sales compress 5 to 15 times; a sheet or
+shared-string table of the same few bytes repeated (a zip bomb that stays under the size
+limit) compresses hundreds of times and would keep the reader busy for minutes."""
+
+XLSX_RATIO_FROM = 32 * 1024 * 1024
+"""Unzipped size from which :data:`MAX_XLSX_RATIO` applies (small parts compress freely)."""
+
+
+def _check_ratio(info: zipfile.ZipInfo, file: str) -> None:
+    if info.file_size < XLSX_RATIO_FROM:
+        return
+    ratio = info.file_size / max(info.compress_size, 1)
+    if ratio > MAX_XLSX_RATIO:
+        raise DataError(
+            f"the workbook part '{info.filename}' unzips to {info.file_size:,} bytes, "
+            f"{ratio:,.0f} times its stored size; the limit is {MAX_XLSX_RATIO} times "
+            "for parts over 32 MiB (a zip bomb?)",
+            file=file,
+        )
+
+
+def sheet_rows(rows: Iterable[Sequence[object]], file: str, sheet: str) -> list[list[object]]:
+    """The rows a sheet reader yields, as lists, stopped at the first row that passes a limit.
+
+    A second guard behind :func:`check_xlsx`: the reader pads a row with empty cells up to
+    its last written cell and yields an empty row for every row number it skips, so a
+    reference the scan did not recognise would still cost a row of 16,384 cells, or a
+    million empty rows; here the columns of one row (:data:`MAX_SALES_COLUMNS`), the rows
+    (:data:`MAX_XLSX_ROWS`) and the cells together (:data:`MAX_XLSX_CELLS`) are counted as
+    they arrive.
+    """
+    out: list[list[object]] = []
+    cells = 0
+    for row in rows:
+        width = len(row)
+        if width > MAX_SALES_COLUMNS:
+            raise DataError(
+                f"row {len(out) + 1:,} of sheet '{sheet}' reaches column {width:,}; "
+                f"the limit is {MAX_SALES_COLUMNS:,} columns",
+                file=file,
+                row=len(out) + 1,
+            )
+        cells += width
+        if len(out) >= MAX_XLSX_ROWS or cells > MAX_XLSX_CELLS:
+            raise DataError(
+                f"sheet '{sheet}' passes {MAX_XLSX_ROWS:,} rows or {MAX_XLSX_CELLS:,} cells "
+                f"at row {len(out) + 1:,}",
+                file=file,
+                row=len(out) + 1,
+            )
+        out.append(list(row))
+    return out
 
 
 def _is_sheet(name: str) -> bool:

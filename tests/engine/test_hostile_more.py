@@ -1,0 +1,199 @@
+"""More hostile files for the readers, variations the first hostile tests lacked.
+
+Every case failed before its fix: a hang or gigabytes (a far cell the scan did not
+recognise, a shared-string table of one short string repeated), a traceback from the
+workbook reader (a damaged style, a shared-string index past the table, an entity bomb),
+a header of a million columns read for minutes. Each must now be one ``DataError`` naming
+the file and the limit or the damage. Expected texts are properties of the files built
+here.
+"""
+
+from __future__ import annotations
+
+import zipfile
+from collections.abc import Callable, Iterator
+from pathlib import Path
+
+import pytest
+
+from appraise.engine import limits
+from appraise.engine.errors import DataError, ModelFileError
+from appraise.engine.importing import load_sales
+from appraise.engine.modelspec import parse_model
+from appraise.engine.settings import ImportSettings
+
+SHEET = "xl/worksheets/sheet1.xml"
+STRINGS = "xl/sharedStrings.xml"
+NS = b'xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main"'
+HEAD = b'<?xml version="1.0" encoding="UTF-8"?><worksheet ' + NS + b"><sheetData>"
+TAIL = b"</sheetData></worksheet>"
+
+
+def _rows(n: int = 12) -> bytes:
+    """A header and ``n`` ordinary sales as sheet rows (inline strings, plain numbers)."""
+    out = [b'<row r="1"><c r="A1" t="inlineStr"><is><t>price</t></is></c>']
+    out.append(b'<c r="B1" t="inlineStr"><is><t>living_area</t></is></c></row>')
+    for k in range(2, n + 2):
+        out.append(
+            f'<row r="{k}"><c r="A{k}"><v>{300_000 + 1_000 * k}</v></c>'
+            f'<c r="B{k}"><v>{1_400 + 9 * k}</v></c></row>'.encode()
+        )
+    return b"".join(out)
+
+
+def _workbook(path: Path, parts: dict[str, bytes | Callable[[], Iterator[bytes]]]) -> Path:
+    """A workbook saved by openpyxl with the named parts replaced (or added)."""
+    from openpyxl import Workbook
+
+    base = path.with_suffix(".base.xlsx")
+    wb = Workbook()
+    wb.active.append(["price", "living_area"])
+    wb.active.append(["x", "y"])  # a shared string table is written
+    wb.save(base)
+    with zipfile.ZipFile(base) as src, zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as out:
+        names = {i.filename for i in src.infolist()}
+        for name in names | set(parts):
+            if name not in parts:
+                out.writestr(src.getinfo(name), src.read(name))
+                continue
+            part = parts[name]
+            with out.open(name, "w", force_zip64=True) as fh:
+                for piece in [part] if isinstance(part, bytes) else part():
+                    fh.write(piece)
+    base.unlink()
+    return path
+
+
+def _read(path: Path) -> None:
+    load_sales(path, ImportSettings())
+
+
+@pytest.mark.parametrize(
+    "far",
+    [
+        b"<row r='1048576'><c r='XFD1048576'><v>1</v></c></row>",  # single quotes
+        b'<row r="1048576"><c r="xfd1048576"><v>1</v></c></row>',  # lower case
+        b'<row r = "1048576"><c r = "XFD1048576"><v>1</v></c></row>',  # spaces around =
+        b'<row r="1048576"><c r="$XFD$1048576"><v>1</v></c></row>',  # dollar signs
+    ],
+)
+def test_a_far_cell_in_any_spelling_is_refused_by_the_scan(tmp_path, far):
+    # each spelling passed the scan, and openpyxl then padded a row to 16,384 cells and
+    # yielded a million empty rows: over 60 s and gigabytes
+    f = _workbook(tmp_path / "far.xlsx", {SHEET: HEAD + _rows() + far + TAIL})
+    with pytest.raises(DataError) as info:
+        _read(f)
+    assert "17,179,869,184 cells" in info.value.message
+    assert info.value.file == str(f)
+
+
+def test_a_far_cell_the_scan_cannot_see_is_stopped_by_the_row_guard(tmp_path):
+    # references written with character entities (&#x58; is X) are decoded by the XML
+    # parser but invisible to a byte scan: the rows are counted as they arrive instead
+    far = b'<row r="14"><c r="A14"><v>1</v></c><c r="&#x58;FD14"><v>1</v></c></row>'
+    f = _workbook(tmp_path / "entity.xlsx", {SHEET: HEAD + _rows() + far + TAIL})
+    with pytest.raises(DataError) as info:
+        _read(f)
+    assert "row 14 of sheet 'Sheet' reaches column 16,384" in info.value.message
+    assert info.value.row == 14
+
+
+def test_sheet_rows_counts_rows_and_cells_as_they_arrive(monkeypatch):
+    monkeypatch.setattr(limits, "MAX_XLSX_CELLS", 10)
+    with pytest.raises(DataError, match="at row 6"):
+        limits.sheet_rows(iter([(1, 2)] * 8), "f.xlsx", "S")
+    assert limits.sheet_rows(iter([(1, 2)] * 5), "f.xlsx", "S") == [[1, 2]] * 5
+
+
+def test_a_shared_string_bomb_is_refused_from_the_zip_directory(tmp_path):
+    # 2,000,000 copies of one short string: 34 MB stored in about 80 kB. Nothing refused
+    # such a table (the size limit is 512 MiB), and 25,000,000 copies (1 MB stored) kept
+    # the reader busy past 60 s; the ratio rule refuses both from the zip directory
+    def strings() -> Iterator[bytes]:
+        yield b'<?xml version="1.0" encoding="UTF-8"?><sst ' + NS + b">"
+        for _ in range(20):
+            yield b"<si><t>a</t></si>" * 100_000
+        yield b"</sst>"
+
+    f = _workbook(tmp_path / "sst.xlsx", {STRINGS: strings})
+    with pytest.raises(DataError) as info:
+        _read(f)
+    assert "'xl/sharedStrings.xml' unzips to 34,000,115 bytes, 412 times" in info.value.message
+    assert "the limit is 100 times" in info.value.message
+
+
+def test_a_large_part_that_compresses_like_real_sales_is_not_refused(tmp_path):
+    # a 40 MB sheet of varied numbers stores at about a tenth: the ratio rule leaves it
+    import random
+
+    rng = random.Random(7)
+
+    def sheet() -> Iterator[bytes]:
+        yield HEAD + _rows(1)
+        for k in range(3, 400_003, 1_000):
+            yield b"".join(
+                f'<row r="{j}"><c r="A{j}"><v>{rng.randint(10**5, 10**6)}</v></c>'
+                f'<c r="B{j}"><v>{rng.random() * 3000:.6f}</v></c></row>'.encode()
+                for j in range(k, k + 1_000)
+            )
+        yield TAIL
+
+    f = _workbook(tmp_path / "big.xlsx", {SHEET: sheet})
+    with zipfile.ZipFile(f) as z:
+        info = z.getinfo(SHEET)
+    assert info.file_size > limits.XLSX_RATIO_FROM
+    assert info.file_size / info.compress_size < limits.MAX_XLSX_RATIO
+    limits.check_xlsx(f)  # no DataError
+
+
+def _entity_bomb() -> bytes:
+    """A sheet whose one text cell is an entity expanding to 10**9 characters."""
+    defs = [b'<!ENTITY a "aaaaaaaaaa">']
+    for i in range(8):
+        ref = "&" + ("b" * i if i else "a") + ";"
+        defs.append(f'<!ENTITY {"b" * (i + 1)} "{ref * 10}">'.encode())
+    cell = b'<row r="14"><c r="A14" t="inlineStr"><is><t>&bbbbbbbb;</t></is></c></row>'
+    doctype = b"<!DOCTYPE worksheet [" + b"".join(defs) + b"]>"
+    return b'<?xml version="1.0"?>' + doctype + HEAD[38:] + _rows() + cell + TAIL
+
+
+@pytest.mark.parametrize(
+    ("parts", "needle"),
+    [
+        # a fill without its pattern: openpyxl raised TypeError
+        (
+            {
+                "xl/styles.xml": b'<?xml version="1.0"?><styleSheet ' + NS + b"><fills "
+                b'count="1"><fill/></fills></styleSheet>'
+            },
+            "TypeError",
+        ),
+        # a shared-string index past the table: IndexError
+        (
+            {SHEET: HEAD + _rows() + b'<row r="14"><c r="A14" t="s"><v>99999</v></c></row>' + TAIL},
+            "sheet 'Sheet' cannot be read (IndexError",
+        ),
+        # a number cell holding NaN: ValueError in openpyxl's cast
+        (
+            {SHEET: HEAD + _rows() + b'<row r="14"><c r="A14"><v>NaN</v></c></row>' + TAIL},
+            "ValueError",
+        ),
+        # an entity bomb in the sheet: expat's amplification limit, a ParseError
+        ({SHEET: _entity_bomb()}, "ParseError"),
+    ],
+)
+def test_a_damaged_workbook_part_is_a_data_error(tmp_path, parts, needle):
+    f = _workbook(tmp_path / "bad.xlsx", parts)
+    with pytest.raises(DataError) as info:
+        _read(f)
+    assert needle in info.value.message
+    assert info.value.file == str(f)
+
+
+def test_a_toml_integer_past_pythons_digit_limit_is_a_model_file_error():
+    # tomllib raised ValueError ("Exceeds the limit (4300 digits)"): a traceback
+    with pytest.raises(ModelFileError, match="number too long"):
+        parse_model(
+            'target = "price"\nfeatures = ["living_area"]\nlevel = ' + "9" * 5_000 + "\n",
+            source="m.toml",
+        )
