@@ -228,6 +228,7 @@ def read_csv_cells(
     notes = list(scan.notes)
     if delimiter != ",":
         notes.append(f"values separated by {_DELIMITER_NAMES[delimiter]}")
+    _check_header_width(open_binary, scan, delimiter, file)
     report = step or (lambda fraction, rows: None)
     fast = None if scan.has_nul else _read_csv_columns(open_binary, scan, delimiter, report)
     if fast is not None:
@@ -237,6 +238,33 @@ def read_csv_cells(
             notes.append(f"{k} blank row{'s' if k > 1 else ''} after the last sale ignored")
         return CsvCells(header, columns, notes, {})
     return _read_csv_rows(open_binary, scan, delimiter, file, notes, report)
+
+
+_WIDTH_PIECE = 1 << 20  # characters of the first line read at a time
+
+
+def _check_header_width(open_binary: Opener, scan: CsvScan, delimiter: str, file: str) -> None:
+    """Refuse a file whose first line holds more delimiters than a sales file may have
+    columns (:data:`~appraise.engine.limits.MAX_SALES_COLUMNS`), before it is parsed.
+
+    The check is made after reading the first line only as far as the limit: a header
+    of a million columns (or a 200 MB line of ``a,a,a...``) was otherwise split by the
+    parser into a million columns, each built as an array of its own, for minutes. A
+    delimiter inside a quoted header cell counts too, so the count is an upper bound.
+    """
+    from .limits import MAX_SALES_COLUMNS, check_columns
+
+    raw, text = _text(open_binary, scan)
+    seen = 0
+    with text:
+        while True:
+            piece = text.readline(_WIDTH_PIECE)
+            seen += piece.count(delimiter)
+            if len(piece) < _WIDTH_PIECE or piece.endswith(("\n", "\r")):
+                check_columns(seen + 1, file)  # the whole line counted
+                return
+            if seen >= MAX_SALES_COLUMNS:
+                check_columns(seen + 1, file, at_least=True)
 
 
 def _read_csv_columns(

@@ -456,11 +456,13 @@ MAX_SALES_COLUMNS = 2_000
 is cleaned on its own, so twenty thousand of them would take a minute)."""
 
 
-def check_columns(n: int, file: str) -> None:
-    """DataError when a sales file has more than :data:`MAX_SALES_COLUMNS` columns."""
+def check_columns(n: int, file: str, *, at_least: bool = False) -> None:
+    """DataError when a sales file has more than :data:`MAX_SALES_COLUMNS` columns
+    (``at_least``: ``n`` was counted only as far as the limit)."""
     if n > MAX_SALES_COLUMNS:
         raise DataError(
-            f"the file has {n:,} columns; the limit is {MAX_SALES_COLUMNS:,} "
+            f"the file has {'at least ' if at_least else ''}{n:,} columns; "
+            f"the limit is {MAX_SALES_COLUMNS:,} "
             "(keep the columns the valuation needs)",
             file=file,
         )

@@ -197,3 +197,33 @@ def test_a_toml_integer_past_pythons_digit_limit_is_a_model_file_error():
             'target = "price"\nfeatures = ["living_area"]\nlevel = ' + "9" * 5_000 + "\n",
             source="m.toml",
         )
+
+
+# --- CSV ------------------------------------------------------------------------------------
+@pytest.mark.parametrize(
+    ("header", "counted"),
+    [
+        (",".join(f"c{i}" for i in range(1_000_000)) + "\n", "at least 144,961 columns"),
+        ("a," * 3_000_000, "at least 524,289 columns"),  # one 6 MB line, no line end
+        (
+            ",".join("n" * 70 for _ in range(30_000)) + "\nx\n",
+            "at least 14,769 columns",
+        ),  # 1 MiB / 71
+    ],
+)
+def test_a_csv_header_wider_than_the_limit_is_refused_before_parsing(tmp_path, header, counted):
+    # a header of a million columns was split into a million pandas columns: over 60 s
+    f = tmp_path / "wide.csv"
+    f.write_text(header, encoding="utf-8")
+    with pytest.raises(DataError) as info:
+        _read(f)
+    assert counted in info.value.message
+    assert "the limit is 2,000" in info.value.message
+
+
+def test_a_header_at_the_column_limit_is_read(tmp_path):
+    f = tmp_path / "ok.csv"
+    names = ["price", *(f"c{i}" for i in range(1_999))]
+    f.write_text(",".join(names) + "\n" + ",".join(["300000"] + ["1"] * 1_999) + "\n")
+    table = load_sales(f, ImportSettings())
+    assert table.frame.shape[0] == 1
