@@ -10,6 +10,7 @@ from __future__ import annotations
 from collections import Counter
 from collections.abc import Iterable
 
+from .cells import brief
 from .sales import Exclusion
 
 EXCLUSION_FIELDS: tuple[str, ...] = ("row", "id", "reason", "column", "source")
@@ -22,12 +23,20 @@ def exclusion_records(excluded: Iterable[Exclusion]) -> list[dict]:
     return [{k: e.to_dict()[k] for k in EXCLUSION_FIELDS} for e in ordered]
 
 
+_LINE_BREAKS = str.maketrans({"\n": "\\n", "\r": "\\r", "\t": "\\t"})
+
+
 def describe_exclusion(e: Exclusion) -> str:
-    """One line: ``row 14 (S-0107): price 'call agent' is not a number [Sale Price]``."""
-    who = f" ({e.sale_id})" if e.sale_id else ""
+    """One line: ``row 14 (S-0107): price 'call agent' is not a number [Sale Price]``.
+
+    One line whatever the file held: line breaks and tabs (a sale id that swallowed the
+    rest of the file through an unclosed quote) are written ``\\n``, ``\\r``, ``\\t``, and
+    the sale id is cut as a quoted cell is (:func:`.cells.brief`).
+    """
+    who = f" ({brief(e.sale_id)})" if e.sale_id else ""
     where = f" [{e.column}]" if e.column else ""
     by = "" if e.source == "import" else f" (excluded by {e.source})"
-    return f"row {e.row}{who}: {e.reason}{where}{by}"
+    return f"row {e.row}{who}: {e.reason}{where}{by}".translate(_LINE_BREAKS)
 
 
 def reason_kind(reason: str) -> str:

@@ -113,3 +113,19 @@ def test_a_workbook_with_a_damaged_style_is_one_line_without_warnings(tmp_path, 
             data = styles if info.filename == "xl/styles.xml" else src.read(info.filename)
             out.writestr(info, data)
     _fails(capsys, ["data", str(bad)], str(bad), "cannot be read as an .xlsx workbook")
+
+
+# --- what the terminal shows ----------------------------------------------------------------
+def test_a_sale_id_that_swallowed_the_file_is_one_cut_line(tmp_path, capsys):
+    # an unclosed quote makes the rest of the file one sale id: it was printed whole, line
+    # breaks and all (here 2,000 lines; a 200 MB id printed 200 MB)
+    body = "".join(f"s{i},{300_000 + i},2024-01-02,1500\n" for i in range(2_000))
+    f = tmp_path / "quote.csv"
+    f.write_text('id,price,sale_date,living_area\n"s,1,2024-01-01,1500\n' + body, encoding="utf-8")
+    capsys.readouterr()
+    assert main(["data", str(f)]) == 0
+    out = capsys.readouterr().out
+    line = next(x for x in out.splitlines() if x.startswith("  row 2 ("))
+    assert line.endswith("): price is missing [price]")
+    assert "\\n" in line and "characters)" in line and len(line) < 200
+    assert "s1999,301999" not in out  # the swallowed rows are not printed
