@@ -208,6 +208,12 @@ def _table_page(table: QTableView, note: QLabel) -> QWidget:
     return page
 
 
+DEFER_TABLES_FROM = 200_000
+"""From this many sales the tables are filled in the event loop's next turn after the
+plots: each half takes about 0.2 s of the window's thread at a million sales, together
+they would hold the window still for 0.4 s."""
+
+
 class DiagnosticsView(QWidget):
     """The checks of the session's current fit; follows ``session`` through its signals."""
 
@@ -477,6 +483,16 @@ class DiagnosticsView(QWidget):
         advice = spread_advice(d)
         self.advice.setText(advice)
         self.advice.setVisible(bool(advice))
+        if d.n >= DEFER_TABLES_FROM:  # the tables in the next turn of the event loop
+            QTimer.singleShot(0, lambda: self._show_tables(d))
+        else:
+            self._show_tables(d)
+
+    def _show_tables(self, d: Diagnostics) -> None:
+        """The sale, term and measure tables of ``d`` (if it is still the one shown)."""
+        if d is not self.diagnostics:
+            return
+        cur = self.currency
         flags = d.flags  # formatted when shown: a county's checks flag tens of thousands
         self.flagged_model.set_rows(
             LazyRows(len(flags), lambda k: flagged_row(flags[k])),

@@ -58,3 +58,22 @@ def test_checks_tab_reads_plainly_and_its_tables_keep_their_rows(qtbot, window, 
     assert rows_visible >= 8
     # the side panels still keep their width (the tab scrolls instead)
     assert window.width() <= 1366
+
+
+def test_a_county_size_check_up_fills_its_tables_in_the_next_turn(
+    qtbot, window, sample_copy, monkeypatch
+):
+    # From DEFER_TABLES_FROM sales the plots are drawn first and the tables a turn of the
+    # event loop later, so the window never holds still for both; the tables still come.
+    from appraise.gui import diagnostics_view
+
+    monkeypatch.setattr(diagnostics_view, "DEFER_TABLES_FROM", 1)
+    open_and_wait(qtbot, window, sample_copy, companions=True)
+    view = window.diagnostics_view
+    qtbot.waitUntil(lambda: window.session.diagnostics is not None, timeout=20_000)
+    view.figures = []  # force a redraw of the same check-up
+    view.sales_model.set_diagnostics(None)
+    view.refresh()
+    assert view.figures and view.sales_model.rowCount() == 0  # plots now, tables not yet
+    d = window.session.diagnostics
+    qtbot.waitUntil(lambda: view.sales_model.rowCount() == d.n, timeout=20_000)
