@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 from ..engine.jsonable import to_jsonable
@@ -247,13 +249,46 @@ def load_model_from_args(args: argparse.Namespace) -> ModelSpec:
     raise ModelFileError("no model: give --model MODEL.toml (or a workfile as SALES)")
 
 
+def model_file(args: argparse.Namespace) -> str | None:
+    """The file the model came from: ``--model``, else a workfile given as SALES."""
+    given = getattr(args, "model", None)
+    if isinstance(given, str) and given:
+        return given
+    return args.sales if is_workfile(args.sales) else None
+
+
+def subject_file(args: argparse.Namespace) -> str | None:
+    """The file the subject came from: ``--subject``, else a workfile given as SALES."""
+    given = getattr(args, "subject", None)
+    if given:
+        return str(given)
+    return args.sales if is_workfile(args.sales) else None
+
+
+@contextmanager
+def errors_name(file: str | None, *kinds: type) -> Iterator[None]:
+    """Give an error that names no file the one the failing step read (``kinds``: only
+    errors of these types; default every :class:`AppraiseError`). An expression error
+    found while fitting belongs to the model file, a subject the model cannot value to the
+    subject file: the line printed must say which file to open."""
+    from ..engine.errors import AppraiseError
+
+    try:
+        yield
+    except AppraiseError as exc:
+        if exc.file is None and file and isinstance(exc, kinds or (AppraiseError,)):
+            exc.file = file
+        raise
+
+
 def fit_from_args(args: argparse.Namespace, spec: ModelSpec | None = None):
     """Read sales and model, fit; returns ``(sales, spec, fit)``."""
     from .. import pipeline
 
     sales = load_sales_from_args(args)
     spec = spec if spec is not None else load_model_from_args(args)
-    return sales, spec, pipeline.fit(sales, spec, workfile_exclusions(args))
+    with errors_name(model_file(args)):
+        return sales, spec, pipeline.fit(sales, spec, workfile_exclusions(args))
 
 
 def read_subject_from_args(args: argparse.Namespace, sales):
@@ -262,7 +297,8 @@ def read_subject_from_args(args: argparse.Namespace, sales):
     source = subject_source(args)
     if isinstance(source, dict):
         source = pipeline.filled(source)
-    return pipeline.subject_frame(source, sales, import_settings(args))
+    with errors_name(subject_file(args)):
+        return pipeline.subject_frame(source, sales, import_settings(args))
 
 
 def print_json(obj) -> None:

@@ -18,10 +18,13 @@ from .common import (
     add_model_argument,
     add_sales_arguments,
     add_subject_arguments,
+    errors_name,
     import_settings,
     load_model_from_args,
     load_sales_from_args,
+    model_file,
     read_subject_from_args,
+    subject_file,
     subject_source,
     workfile_exclusions,
 )
@@ -97,16 +100,23 @@ def run(args: argparse.Namespace) -> int:
             raise ReportError("the folder does not exist", file=str(target))
     from .. import pipeline
     from ..engine.diagnostics import DiagnosticSettings
+    from ..engine.errors import ExpressionError, ModelFileError, SubjectError
 
     sales = load_sales_from_args(args)
-    run_ = pipeline.analyse(
-        sales,
-        load_model_from_args(args),
-        subject=read_subject_from_args(args, sales),
-        level=args.level,
-        diagnostics=None if args.no_diagnostics else DiagnosticSettings(),
-        user_exclusions=workfile_exclusions(args),
-    )
+    spec = load_model_from_args(args)
+    subject = read_subject_from_args(args, sales)
+    with (
+        errors_name(model_file(args), ExpressionError, ModelFileError),
+        errors_name(subject_file(args), SubjectError),
+    ):
+        run_ = pipeline.analyse(
+            sales,
+            spec,
+            subject=subject,
+            level=args.level,
+            diagnostics=None if args.no_diagnostics else DiagnosticSettings(),
+            user_exclusions=workfile_exclusions(args),
+        )
     fit, valuation, diagnostics = run_.fit, run_.valuation, run_.diagnostics
     from ..report.paper import default_page_size
 

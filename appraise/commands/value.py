@@ -12,9 +12,11 @@ from .common import (
     add_model_argument,
     add_sales_arguments,
     add_subject_arguments,
+    errors_name,
     fit_from_args,
     print_json,
     read_subject_from_args,
+    subject_file,
 )
 
 
@@ -32,7 +34,8 @@ def register(sub) -> None:
 def run(args: argparse.Namespace) -> int:
     sales, _, fit = fit_from_args(args)
     subject = read_subject_from_args(args, sales)
-    val = pipeline.value(fit, subject, level=args.level)
+    with errors_name(subject_file(args)):  # what the model cannot value is the subject's
+        val = pipeline.value(fit, subject, level=args.level)
     if args.json:
         d = val.to_dict()
         d["caution"] = SHORT_CAUTION

@@ -129,3 +129,26 @@ def test_a_sale_id_that_swallowed_the_file_is_one_cut_line(tmp_path, capsys):
     assert line.endswith("): price is missing [price]")
     assert "\\n" in line and "characters)" in line and len(line) < 200
     assert "s1999,301999" not in out  # the swallowed rows are not printed
+
+
+# --- which file to open ---------------------------------------------------------------------
+def test_an_expression_error_names_the_model_file(tmp_path, capsys):
+    # "appraise: error: in 'open(...)': unknown function 'open'" named no file at all
+    m = _model(tmp_path, 'target = "price"\nfeatures = ["open(\'/etc/passwd\')"]\n')
+    _fails(capsys, ["fit", SALES, "-m", m], f"error: {m}: in 'open('/etc/passwd')'", "'open'")
+    m = _model(tmp_path, 'target = "price"\nfeatures = ["a"]\n[derived]\na = "b"\nb = "a"\n')
+    _fails(capsys, ["value", SALES, "-m", m, "-s", SUBJECT], f"error: {m}: ", "a -> b -> a")
+
+
+def test_a_subject_the_model_cannot_value_names_the_subject_file(tmp_path, capsys):
+    # "appraise: error: column 'Living Area (sq ft)': cannot value the subject: ..." named
+    # the sales' column but not the subject file
+    subject = json.loads(Path(SUBJECT).read_text(encoding="utf-8"))
+    subject["living_area"] = -1_840
+    s = tmp_path / "s.json"
+    s.write_text(json.dumps(subject), encoding="utf-8")
+    _fails(
+        capsys,
+        ["value", SALES, "-m", MODEL, "-s", str(s)],
+        f"error: {s}, column 'Living Area (sq ft)': cannot value the subject",
+    )
