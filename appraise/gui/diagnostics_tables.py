@@ -504,8 +504,11 @@ class SaleChecksModel(SortableTableModel, QAbstractTableModel):
                 )
             order = stable_sort(keys, self._sort[1] == Qt.SortOrder.DescendingOrder)
         self._order = np.asarray(order, dtype=np.int64)
-        self._where = np.empty(n, dtype=np.int64)
-        self._where[self._order] = np.arange(n)
+        if n and self._order[0] == 0 and bool(np.all(np.diff(self._order) == 1)):
+            self._where = self._order  # in file order: a position is its own place
+        else:
+            self._where = np.empty(n, dtype=np.int64)
+            self._where[self._order] = np.arange(n)
 
     def position_of(self, row: int) -> int | None:
         """Where file row ``row`` is shown, or None."""

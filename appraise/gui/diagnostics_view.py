@@ -212,6 +212,9 @@ DEFER_TABLES_FROM = 200_000
 """From this many sales the tables are filled in the event loop's next turn after the
 plots: each half takes about 0.2 s of the window's thread at a million sales, together
 they would hold the window still for 0.4 s."""
+DEFER_MS = 30
+"""The pause before the tables: a zero-time timer runs before the paint and the clicks
+waiting in the queue (Qt serves those first), a short one after them."""
 
 
 class DiagnosticsView(QWidget):
@@ -483,8 +486,8 @@ class DiagnosticsView(QWidget):
         advice = spread_advice(d)
         self.advice.setText(advice)
         self.advice.setVisible(bool(advice))
-        if d.n >= DEFER_TABLES_FROM:  # the tables in the next turn of the event loop
-            QTimer.singleShot(0, lambda: self._show_tables(d))
+        if d.n >= DEFER_TABLES_FROM:  # the tables after the plots are painted
+            QTimer.singleShot(DEFER_MS, lambda: self._show_tables(d))
         else:
             self._show_tables(d)
 
