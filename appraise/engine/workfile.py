@@ -727,7 +727,7 @@ def restore(state: WorkfileState, *, confirm: Callable[[Path], bool] | None = No
             if refused
             else f"the sales file was not found ({', '.join(str(p) for p in tried) or 'no path'})"
         )
-        sales = _load_embedded(embedded, settings, roles, rules)
+        sales = _load_embedded(embedded, settings, roles, rules, src)
         original = str(tried[-1]) if tried else embedded.name
         sales = replace(
             sales,
@@ -766,12 +766,26 @@ def _exists(p: Path) -> bool:
 
 
 def _load_embedded(
-    embedded: EmbeddedSales, settings: ImportSettings, roles: RoleMap, rules: PlausibilityRules
+    embedded: EmbeddedSales,
+    settings: ImportSettings,
+    roles: RoleMap,
+    rules: PlausibilityRules,
+    src: str | None = None,
 ) -> SalesTable:
+    """The embedded sales read through the importer from a temporary copy; an error names
+    the workfile and the embedded file's name, never the temporary path (which the user
+    cannot open and which is gone by the time they read the message)."""
     with tempfile.TemporaryDirectory(prefix="appraise-") as folder:
         tmp = Path(folder) / embedded.name
         tmp.write_bytes(embedded.data)
-        return load_sales(tmp, settings, roles, rules=rules)
+        try:
+            return load_sales(tmp, settings, roles, rules=rules)
+        except AppraiseError as exc:
+            if exc.file is None or exc.file == str(tmp):
+                exc.file = f"{src or 'the workfile'} (its embedded copy of '{embedded.name}')"
+            exc.message = exc.message.replace(str(tmp), embedded.name)
+            exc.args = (exc.message,)
+            raise
 
 
 def _restore_exclusions(state: WorkfileState, sales: SalesTable) -> tuple[Exclusion, ...]:

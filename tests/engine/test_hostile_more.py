@@ -227,3 +227,40 @@ def test_a_header_at_the_column_limit_is_read(tmp_path):
     f.write_text(",".join(names) + "\n" + ",".join(["300000"] + ["1"] * 1_999) + "\n")
     table = load_sales(f, ImportSettings())
     assert table.frame.shape[0] == 1
+
+
+# --- workfiles ------------------------------------------------------------------------------
+def test_an_embedded_copy_that_fails_to_read_names_the_workfile(tmp_path):
+    # the error named the temporary copy (/tmp/appraise-xxxx/s.csv), gone once printed
+    import base64
+    import hashlib
+    import json
+
+    from appraise.engine.modelspec import parse_model
+    from appraise.engine.workfile import load_workfile, make_state, restore, save_workfile
+
+    sales_file = tmp_path / "s.csv"
+    sales_file.write_text(
+        "id,price,living_area\n" + "".join(f"s{i},{300_000 + i},{1_400 + i}\n" for i in range(9))
+    )
+    wf = tmp_path / "w.appraise.json"
+    spec = parse_model('target = "price"\nfeatures = ["living_area"]\n')
+    state = make_state(
+        sales=load_sales(sales_file, ImportSettings()),
+        spec=spec,
+        subject={"living_area": 1_500},
+        import_settings=ImportSettings(),
+        workfile_path=wf,
+    )
+    save_workfile(wf, state)
+    sales_file.unlink()  # only the embedded copy is left
+    doc = json.loads(wf.read_text(encoding="utf-8"))
+    hostile = ",".join(f"c{i}" for i in range(5_000)).encode() + b"\n"
+    doc["sales"]["embedded"]["data"] = base64.b64encode(hostile).decode()
+    doc["sales"]["sha256"] = hashlib.sha256(hostile).hexdigest()
+    wf.write_text(json.dumps(doc), encoding="utf-8")
+    with pytest.raises(DataError) as info:
+        restore(load_workfile(wf))
+    assert info.value.file == f"{wf} (its embedded copy of 's.csv')"
+    assert "5,000 columns" in info.value.message
+    assert "appraise-" not in str(info.value)
