@@ -54,7 +54,14 @@ def ascending_order(rows: np.ndarray) -> np.ndarray:
 def positions_by_row(d: Diagnostics) -> Callable[[int], int | None]:
     """File row -> position in the diagnostics' arrays (None when not there)."""
     rows = np.asarray(d.rows, dtype=np.int64)
-    order = ascending_order(rows)
+    if len(rows) < 2 or bool(np.all(rows[1:] >= rows[:-1])):  # file order: no sort, no copy
+
+        def found(row: int) -> int | None:
+            i = int(np.searchsorted(rows, row))
+            return i if i < len(rows) and rows[i] == row else None
+
+        return found
+    order = np.argsort(rows, kind="stable")
     sorted_rows = rows[order]
 
     def find(row: int) -> int | None:

@@ -131,3 +131,17 @@ def test_beyond_the_flag_limit_a_seeded_sample_of_flags_is_drawn(
     assert 3 <= len(flags) < len(d.flags)  # the 3 chosen, and any the plain sample caught
     assert f"{len(flags)} of the {len(d.flags)} flagged" in sp.plot.titleLabel.text
     assert np.array_equal(_drawn(influence_figure(d))["Flagged" + f" ({len(d.flags)})"], flags)
+
+
+def test_positions_by_row_in_file_order_and_shuffled():
+    # The file-order shortcut and the sorted search must find the same positions.
+    from types import SimpleNamespace
+
+    from appraise.gui.diagnostics_plots import positions_by_row
+
+    rows = np.arange(2, 2_002) * 3
+    shuffled = np.random.default_rng(1).permutation(rows)
+    for held in (rows, shuffled):
+        find = positions_by_row(SimpleNamespace(rows=held))
+        assert [find(int(r)) for r in held[::97]] == list(range(0, len(held), 97))
+        assert find(4) is None and find(int(rows[-1]) + 3) is None and find(1) is None
