@@ -928,9 +928,12 @@ def _exclusions(
         # an id seen again among the rows still open, in file order (hashed by pandas)
         at = np.flatnonzero(open_rows & ~cleaned[id_col].missing)
         codes, uniques = pd.factorize(ids[at])  # each distinct id hashed once
-        texts = np.array([u if type(u) is str else str(u) for u in uniques], dtype=object)
-        same, keys = pd.factorize(texts)  # ids that print the same are the same id
-        key = same[codes]
+        if cleaned[id_col].kind == "text":  # every id a text: distinct ids print apart
+            key, keys = codes, np.asarray(uniques, dtype=object)
+        else:
+            texts = np.array([u if type(u) is str else str(u) for u in uniques], dtype=object)
+            same, keys = pd.factorize(texts)  # ids that print the same are the same id
+            key = same[codes]
         _, first = np.unique(key, return_index=True)  # each id's first open row
         again = np.ones(len(at), dtype=bool)
         again[first] = False
