@@ -57,7 +57,8 @@ from pathlib import Path
 from typing import Any, NamedTuple
 
 from .. import __version__
-from .errors import AppraiseError, WorkfileError
+from .errors import AppraiseError, SubjectError, WorkfileError
+from .expressions import parse_expression
 from .importing import load_sales
 from .jsonable import to_jsonable
 from .limits import MAX_NESTING, MAX_WORKFILE_BYTES, limited_int, nesting_depth
@@ -66,6 +67,7 @@ from .plausibility import PlausibilityRules, effective_date_of, rules_at
 from .roles import RoleMap
 from .sales import ROW_COLUMN, Exclusion, SalesTable
 from .settings import ImportSettings
+from .subject import read_subject
 from .workfile_schema import plain_sales_file, safe_base_name, validate_workfile_document
 
 FORMAT_NAME = "appraise-workfile"
@@ -692,6 +694,8 @@ def restore(state: WorkfileState, *, confirm: Callable[[Path], bool] | None = No
     roles = RoleMap(columns=dict(state.roles))
     try:
         spec = model_from_dict(state.model, source=src or "<workfile>")
+        for expr in (*spec.features, *spec.derived.values(), *spec.spread_terms):
+            parse_expression(expr)  # syntax, length and the function whitelist, no data needed
     except AppraiseError as exc:
         raise WorkfileError(f"the model it holds is invalid: {exc.message}", file=src) from None
 
@@ -755,6 +759,12 @@ def restore(state: WorkfileState, *, confirm: Callable[[Path], bool] | None = No
             file=sales.source.path,
         )
     exclusions = _restore_exclusions(state, sales)
+    try:  # a value no subject editor could have saved (inf, a date that is no date)
+        read_subject(dict(state.subject), sales, settings)
+    except SubjectError as exc:
+        raise WorkfileError(
+            f"the subject it holds is invalid: {exc.message}", file=src, column=exc.column
+        ) from None
     return Restored(sales, spec, dict(state.subject), exclusions)
 
 

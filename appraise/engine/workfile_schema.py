@@ -222,7 +222,58 @@ def _build_nested(doc: Mapping[str, Any], source: str) -> None:
         _build("settings.checks", lambda: DiagnosticSettings.from_dict(dict(checks)), source)
     comps = doc.get("comparables")
     if comps is not None:
+        _check_comparables(comps, source)
         _build("comparables", lambda: ComparablesChoice.from_dict(comps), source)
+
+
+def _check_comparables(comps: Mapping[str, Any], source: str) -> None:
+    """The values of the sales-comparison choices that the window uses later, on a pool
+    thread (the grid): a date that is no date, or a limit that is no finite number, failed
+    there with a traceback after the workfile had been opened."""
+    import datetime as _dt
+    import math
+
+    def fail(where: str, what: str, value: Any) -> WorkfileError:
+        return WorkfileError(
+            f"'comparables.{where}' must be {what}, not {_short(value)}", file=source
+        )
+
+    def number(where: str, value: Any) -> None:
+        if value is None:
+            return
+        if (
+            isinstance(value, bool)
+            or not isinstance(value, int | float)
+            or not math.isfinite(value)
+        ):
+            raise fail(where, "a finite number", value)
+        if value < 0:
+            raise fail(where, "zero or more", value)
+
+    eff = comps.get("effective_date")
+    if eff is not None:
+        try:
+            day = _dt.date.fromisoformat(eff) if isinstance(eff, str) and len(eff) == 10 else None
+        except ValueError:
+            day = None
+        if day is None or not 1678 <= day.year <= 2261:
+            raise fail("effective_date", "a date YYYY-MM-DD in the years 1678-2261", eff)
+    filters = comps.get("filters") or {}
+    if not isinstance(filters, dict):
+        raise fail("filters", "an object", filters)
+    for key in ("max_km", "max_months"):
+        number(f"filters.{key}", filters.get(key))
+    limits = comps.get("limits") or {}
+    if not isinstance(limits, dict):
+        raise fail("limits", "an object", limits)
+    for key in ("net_pct", "gross_pct"):
+        number(f"limits.{key}", limits.get(key))
+    weights = comps.get("weights")
+    if weights is not None:
+        if not isinstance(weights, list):
+            raise fail("weights", "a list of numbers", weights)
+        for i, w in enumerate(weights):
+            number(f"weights[{i}]", w)
 
 
 def _build(where: str, make: Callable[[], Any], source: str) -> None:

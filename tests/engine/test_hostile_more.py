@@ -230,37 +230,97 @@ def test_a_header_at_the_column_limit_is_read(tmp_path):
 
 
 # --- workfiles ------------------------------------------------------------------------------
-def test_an_embedded_copy_that_fails_to_read_names_the_workfile(tmp_path):
-    # the error named the temporary copy (/tmp/appraise-xxxx/s.csv), gone once printed
-    import base64
-    import hashlib
-    import json
-
-    from appraise.engine.modelspec import parse_model
-    from appraise.engine.workfile import load_workfile, make_state, restore, save_workfile
+def _saved_workfile(tmp_path: Path) -> tuple[Path, Path]:
+    """A workfile of nine sales (embedded) and a one-feature model; its path and the sales'."""
+    from appraise.engine.workfile import make_state, save_workfile
 
     sales_file = tmp_path / "s.csv"
     sales_file.write_text(
         "id,price,living_area\n" + "".join(f"s{i},{300_000 + i},{1_400 + i}\n" for i in range(9))
     )
     wf = tmp_path / "w.appraise.json"
-    spec = parse_model('target = "price"\nfeatures = ["living_area"]\n')
     state = make_state(
         sales=load_sales(sales_file, ImportSettings()),
-        spec=spec,
+        spec=parse_model('target = "price"\nfeatures = ["living_area"]\n'),
         subject={"living_area": 1_500},
         import_settings=ImportSettings(),
         workfile_path=wf,
     )
     save_workfile(wf, state)
-    sales_file.unlink()  # only the embedded copy is left
+    return wf, sales_file
+
+
+def _tampered(wf: Path, edit: Callable[[dict], None]) -> Path:
+    import json
+
     doc = json.loads(wf.read_text(encoding="utf-8"))
+    edit(doc)
+    bad = wf.with_name("bad.appraise.json")
+    bad.write_text(json.dumps(doc, allow_nan=True), encoding="utf-8")
+    return bad
+
+
+def test_an_embedded_copy_that_fails_to_read_names_the_workfile(tmp_path):
+    # the error named the temporary copy (/tmp/appraise-xxxx/s.csv), gone once printed
+    import base64
+    import hashlib
+
+    from appraise.engine.workfile import load_workfile, restore
+
+    wf, sales_file = _saved_workfile(tmp_path)
+    sales_file.unlink()  # only the embedded copy is left
     hostile = ",".join(f"c{i}" for i in range(5_000)).encode() + b"\n"
-    doc["sales"]["embedded"]["data"] = base64.b64encode(hostile).decode()
-    doc["sales"]["sha256"] = hashlib.sha256(hostile).hexdigest()
-    wf.write_text(json.dumps(doc), encoding="utf-8")
+
+    def edit(doc: dict) -> None:
+        doc["sales"]["embedded"]["data"] = base64.b64encode(hostile).decode()
+        doc["sales"]["sha256"] = hashlib.sha256(hostile).hexdigest()
+
+    bad = _tampered(wf, edit)
     with pytest.raises(DataError) as info:
-        restore(load_workfile(wf))
-    assert info.value.file == f"{wf} (its embedded copy of 's.csv')"
+        restore(load_workfile(bad))
+    assert info.value.file == f"{bad} (its embedded copy of 's.csv')"
     assert "5,000 columns" in info.value.message
     assert "appraise-" not in str(info.value)
+
+
+@pytest.mark.parametrize(
+    ("edit", "needle"),
+    [
+        # the window opened these and failed later, on a pool thread (the grid: a
+        # DateParseError traceback) or in the fit and valuation, the session changed
+        (
+            lambda d: d.update(comparables={"effective_date": "9999-99-99"}),
+            "'comparables.effective_date' must be a date",
+        ),
+        (
+            lambda d: d.update(comparables={"filters": {"max_km": "far"}}),
+            "'comparables.filters.max_km' must be a finite number",
+        ),
+        (
+            lambda d: d.update(comparables={"weights": [float("nan")]}),
+            "'comparables.weights[0]' must be a finite number",
+        ),
+        (
+            lambda d: d["model"].update(features=["__import__('os').system('id')"]),
+            "the model it holds is invalid: in '__import__",
+        ),
+        (
+            lambda d: d["model"].update(derived={"a": "living_area.__class__"}),
+            "attribute access is not allowed",
+        ),
+        (
+            lambda d: d["subject"].update(living_area=float("inf")),
+            "the subject it holds is invalid: 'living_area': 'inf' is not a finite number",
+        ),
+    ],
+)
+def test_a_workfile_refused_before_anything_is_applied(tmp_path, edit, needle):
+    from appraise.engine.errors import WorkfileError
+    from appraise.engine.workfile import load_workfile, restore
+
+    wf, _ = _saved_workfile(tmp_path)
+    bad = _tampered(wf, edit)
+    with pytest.raises(WorkfileError) as info:
+        restore(load_workfile(bad))
+    assert needle in info.value.message
+    assert info.value.file == str(bad)
