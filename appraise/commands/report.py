@@ -98,6 +98,8 @@ def run(args: argparse.Namespace) -> int:
     for target in (out, *(Path(x) for x in (args.html,) if x)):
         if not target.parent.is_dir():  # fail before the fit, not after it
             raise ReportError("the folder does not exist", file=str(target))
+    if args.sales_out and args.no_diagnostics:  # before anything is written, not after the PDF
+        raise ReportError("--sales-out needs the model check (drop --no-diagnostics)")
     from .. import pipeline
     from ..engine.diagnostics import DiagnosticSettings
     from ..engine.errors import ExpressionError, ModelFileError, SubjectError

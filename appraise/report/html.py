@@ -11,14 +11,22 @@ from __future__ import annotations
 import base64
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from html import escape
+from html import escape as _html_escape
 
 from .content import Facts, Figure, Notice, Paragraph, SignatureBlock, Table, Worksheet
+from .safe_text import terminal_text
 
 ImageSource = Callable[[int, Figure], str]
 """``(index, figure) -> src`` for the ``<img>`` of the figure at that index."""
 
 BREAK = ' style="page-break-before: always"'
+
+
+def escape(text: str, quote: bool = True) -> str:
+    """HTML-escaped text with control characters (an ESC or BEL from a sale id, a
+    bidirectional override) shown as visible escapes like ``\\x1b``, as on the terminal:
+    HTML may not carry them, and a reader of the worksheet must see what the file held."""
+    return _html_escape(terminal_text(str(text)), quote)
 
 
 @dataclass(frozen=True)

@@ -152,3 +152,45 @@ def test_a_subject_the_model_cannot_value_names_the_subject_file(tmp_path, capsy
         ["value", SALES, "-m", MODEL, "-s", str(s)],
         f"error: {s}, column 'Living Area (sq ft)': cannot value the subject",
     )
+
+
+# --- exports --------------------------------------------------------------------------------
+def _ids_file(tmp_path: Path) -> Path:
+    rows = ["id,price,sale_date,living_area"]
+    noise = [3, -5, 8, 0, -2, 6, -7, 1, 4, -3]  # thousands: the fit must not be exact
+    rows += [
+        f"\x1b[31mS{i}\x07,{300_000 + 9_000 * i + 1_000 * noise[i]},2024-0{1 + i % 5}-15,"
+        f"{1_400 + 97 * i}"
+        for i in range(10)
+    ]
+    f = tmp_path / "s.csv"
+    f.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    return f
+
+
+def test_the_html_worksheet_shows_control_characters_as_escapes(tmp_path, capsys):
+    # sale ids and the currency went into the HTML with their raw ESC and BEL bytes
+    sales = _ids_file(tmp_path)
+    m = _model(tmp_path, 'target = "price"\nfeatures = ["living_area"]\n')
+    s = tmp_path / "subject.json"
+    s.write_text('{"living_area": 1500}', encoding="utf-8")
+    html = tmp_path / "w.html"
+    argv = ["report", str(sales), "-m", m, "-s", str(s), "-o", str(tmp_path / "w.pdf")]
+    argv += ["--html", str(html), "--no-diagnostics", "--currency", "\x1b[2J$"]
+    capsys.readouterr()
+    assert main(argv) == 0
+    text = html.read_text(encoding="utf-8")
+    assert "\x1b" not in text and "\x07" not in text
+    assert "\\x1b[2J$" in text  # the currency as the file and the option gave it, visibly
+
+
+def test_a_conflicting_option_fails_before_anything_is_written(tmp_path, capsys):
+    # "--sales-out needs the model check" came after the PDF, HTML and tables were written
+    sales = _ids_file(tmp_path)
+    m = _model(tmp_path, 'target = "price"\nfeatures = ["living_area"]\n')
+    s = tmp_path / "subject.json"
+    s.write_text('{"living_area": 1500}', encoding="utf-8")
+    pdf = tmp_path / "w.pdf"
+    argv = ["report", str(sales), "-m", m, "-s", str(s), "-o", str(pdf), "--no-diagnostics"]
+    _fails(capsys, [*argv, "--sales-out", str(tmp_path / "x.csv")], "--sales-out needs")
+    assert not pdf.exists()
