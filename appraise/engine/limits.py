@@ -371,8 +371,8 @@ def design_scale_problem(X: np.ndarray, names: tuple[str, ...]) -> str | None:
     """A message naming the design columns whose values exceed :data:`MAX_DESIGN_MAGNITUDE`."""
     if X.size == 0:
         return None
-    with np.errstate(invalid="ignore"):
-        peak = np.nanmax(np.abs(X), axis=0)
+    # fmax/fmin skip NaN like nanmax, without nanmax's copy of |X| (0.4 s at 1M x 22)
+    peak = np.maximum(np.fmax.reduce(X, axis=0), -np.fmin.reduce(X, axis=0))
     bad = [(n, v) for n, v in zip(names, peak, strict=True) if v > MAX_DESIGN_MAGNITUDE]
     if not bad:
         return None
