@@ -180,11 +180,13 @@ def _most_frequent(counts: pd.Series, k: int) -> list[tuple[object, int]]:
         import pyarrow.compute as pc
 
         kth = np.partition(values, len(values) - k)[len(values) - k]
-        above = counts[values > kth]
-        ties = counts.index[values == kth]
+        # by position: a boolean or label lookup on two million text labels hashes them all
+        above = counts.iloc[np.flatnonzero(values > kth)]
+        tie_at = np.flatnonzero(values == kth)
+        ties = counts.index[tie_at]
         keys = pa.table({"v": pa.array(np.asarray(ties, dtype=object), type=pa.string())})
         smallest = pc.select_k_unstable(keys, k - len(above), sort_keys=[("v", "ascending")])
-        counts = pd.concat([above, counts[ties[smallest.to_numpy()]]])
+        counts = pd.concat([above, counts.iloc[tie_at[smallest.to_numpy()]]])
     return sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))[:k]
 
 
