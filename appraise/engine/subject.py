@@ -26,7 +26,7 @@ from .importing import (
     read_file_bytes,
     read_raw_table,
 )
-from .limits import load_json_text
+from .limits import MAX_SALES_COLUMNS, load_json_text
 from .roles import ROLE_KINDS, ROLES
 from .sales import ROW_COLUMN, SalesTable, column_kind
 from .settings import ImportSettings
@@ -164,6 +164,12 @@ def read_subject(
     else:
         file = str(source)
         values = read_subject_attributes(source, settings)
+    if len(values) > MAX_SALES_COLUMNS:  # each key a column of a one-row frame: 100,000 took 13 s
+        raise SubjectError(
+            f"the subject has {len(values):,} attributes; the limit is {MAX_SALES_COLUMNS:,} "
+            "(as for the columns of a sales file)",
+            file=file,
+        )
     landed: dict[str, tuple[str, object, str | None]] = {}  # column -> (key, value, kind)
     for key, value in values.items():
         key = str(key).strip()

@@ -194,3 +194,17 @@ def test_a_conflicting_option_fails_before_anything_is_written(tmp_path, capsys)
     argv = ["report", str(sales), "-m", m, "-s", str(s), "-o", str(pdf), "--no-diagnostics"]
     _fails(capsys, [*argv, "--sales-out", str(tmp_path / "x.csv")], "--sales-out needs")
     assert not pdf.exists()
+
+
+def test_a_subject_of_100000_attributes_is_refused(tmp_path, capsys):
+    # each key became a column of a one-row frame: 13 s and 540 MB before any check
+    subject = json.loads(Path(SUBJECT).read_text(encoding="utf-8"))
+    subject.update({f"k{i}": i for i in range(100_000)})
+    s = tmp_path / "s.json"
+    s.write_text(json.dumps(subject), encoding="utf-8")
+    _fails(
+        capsys,
+        ["value", SALES, "-m", MODEL, "-s", str(s)],
+        str(s),
+        "100,012 attributes; the limit is 2,000",
+    )
