@@ -281,6 +281,26 @@ def errors_name(file: str | None, *kinds: type) -> Iterator[None]:
         raise
 
 
+def effective_date_option(text: str | None) -> str | None:
+    """``--effective-date`` checked before any work: a real day ``YYYY-MM-DD`` in the years
+    1678-2261 (``9999-99-99`` raised a DateParseError traceback after the fit), as ISO text."""
+    if text is None:
+        return None
+    import datetime as _dt
+
+    from ..engine.errors import SubjectError
+
+    try:
+        day = _dt.date.fromisoformat(text.strip()) if len(text.strip()) == 10 else None
+    except ValueError:
+        day = None
+    if day is None or not 1678 <= day.year <= 2261:
+        raise SubjectError(
+            f"--effective-date '{text}' is not a date YYYY-MM-DD in the years 1678-2261"
+        )
+    return day.isoformat()
+
+
 def fit_from_args(args: argparse.Namespace, spec: ModelSpec | None = None):
     """Read sales and model, fit; returns ``(sales, spec, fit)``."""
     from .. import pipeline
@@ -294,6 +314,11 @@ def fit_from_args(args: argparse.Namespace, spec: ModelSpec | None = None):
 def read_subject_from_args(args: argparse.Namespace, sales):
     from .. import pipeline
 
+    level = getattr(args, "level", None)
+    if level is not None and not 0 < level < 1:  # an option, not the subject file's fault
+        from ..engine.errors import SubjectError
+
+        raise SubjectError(f"--level must be strictly between 0 and 1, not {level}")
     source = subject_source(args)
     if isinstance(source, dict):
         source = pipeline.filled(source)

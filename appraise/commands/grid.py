@@ -19,6 +19,7 @@ from .common import (
     add_model_argument,
     add_sales_arguments,
     add_subject_arguments,
+    effective_date_option,
     fit_from_args,
     import_settings,
     print_json,
@@ -62,6 +63,7 @@ def register(sub) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    args.effective_date = effective_date_option(args.effective_date)
     sales, _, fit = fit_from_args(args)
     weights = _ids(args.weights)
     result, _ = pipeline.grid(

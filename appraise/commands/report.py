@@ -18,6 +18,7 @@ from .common import (
     add_model_argument,
     add_sales_arguments,
     add_subject_arguments,
+    effective_date_option,
     errors_name,
     import_settings,
     load_model_from_args,
@@ -100,6 +101,9 @@ def run(args: argparse.Namespace) -> int:
             raise ReportError("the folder does not exist", file=str(target))
     if args.sales_out and args.no_diagnostics:  # before anything is written, not after the PDF
         raise ReportError("--sales-out needs the model check (drop --no-diagnostics)")
+    if args.tables_dir and Path(args.tables_dir).exists() and not Path(args.tables_dir).is_dir():
+        raise ReportError("--tables-dir names a file, not a folder", file=str(args.tables_dir))
+    args.effective_date = effective_date_option(args.effective_date)
     from .. import pipeline
     from ..engine.diagnostics import DiagnosticSettings
     from ..engine.errors import ExpressionError, ModelFileError, SubjectError

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 
 from .. import pipeline
+from ..engine.errors import DesignError, SubjectError
 from ..report.text import format_valuation
 from .common import (
     SHORT_CAUTION,
@@ -34,7 +35,8 @@ def register(sub) -> None:
 def run(args: argparse.Namespace) -> int:
     sales, _, fit = fit_from_args(args)
     subject = read_subject_from_args(args, sales)
-    with errors_name(subject_file(args)):  # what the model cannot value is the subject's
+    # what the model cannot value is the subject's (a bad --level is no one's file)
+    with errors_name(subject_file(args), SubjectError, DesignError):
         val = pipeline.value(fit, subject, level=args.level)
     if args.json:
         d = val.to_dict()

@@ -208,3 +208,29 @@ def test_a_subject_of_100000_attributes_is_refused(tmp_path, capsys):
         str(s),
         "100,012 attributes; the limit is 2,000",
     )
+
+
+# --- options ----------------------------------------------------------------------------------
+@pytest.mark.parametrize("when", ["9999-99-99", "2023-02-29", "1500-01-01"])
+def test_an_effective_date_option_that_is_no_date_is_one_line(tmp_path, capsys, when):
+    # report --effective-date 9999-99-99 raised DateParseError after the fit
+    pdf = tmp_path / "w.pdf"
+    argv = ["report", SALES, "-m", MODEL, "-s", SUBJECT, "-o", str(pdf), "--effective-date", when]
+    _fails(capsys, argv, f"--effective-date '{when}' is not a date")
+    _fails(capsys, ["grid", SALES, "-m", MODEL, "-s", SUBJECT, "--effective-date", when], when)
+    assert not pdf.exists()
+
+
+def test_a_level_option_out_of_range_names_no_file(capsys):
+    # "subject.json: level must be strictly between 0 and 1" blamed the subject file
+    line = _fails(capsys, ["value", SALES, "-m", MODEL, "-s", SUBJECT, "--level", "1.5"])
+    assert line == "appraise: error: --level must be strictly between 0 and 1, not 1.5"
+
+
+def test_a_tables_dir_that_is_a_file_fails_before_the_pdf(tmp_path, capsys):
+    taken = tmp_path / "taken"
+    taken.write_text("x", encoding="utf-8")
+    pdf = tmp_path / "w.pdf"
+    argv = ["report", SALES, "-m", MODEL, "-s", SUBJECT, "-o", str(pdf), "--tables-dir", str(taken)]
+    _fails(capsys, argv, str(taken), "names a file, not a folder")
+    assert not pdf.exists()
