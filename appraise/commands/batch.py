@@ -30,7 +30,13 @@ from ..engine.batch import (
 from ..engine.errors import DataError
 from ..report.cautions import FULL_CAUTIONS, ONE_LINE_CAUTION
 from ..report.numbers import integer as fmt_int
-from .common import add_model_argument, add_sales_arguments, fit_from_args, import_settings
+from .common import (
+    add_model_argument,
+    add_sales_arguments,
+    errors_name,
+    fit_from_args,
+    import_settings,
+)
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
     import pyarrow as pa
@@ -293,9 +299,10 @@ def run(args: argparse.Namespace) -> int:
     writer = _Writer(out, fmt, {"caution": ONE_LINE_CAUTION, "model": str(args.model)})
     parts = []  # one small summary per chunk: memory stays flat however long the roll
     try:
-        for chunk in results:
-            writer.write(chunk)
-            parts.append(summarise(chunk, fit))
+        with errors_name(args.subjects):  # a column the roll lacks: name the roll
+            for chunk in results:
+                writer.write(chunk)
+                parts.append(summarise(chunk, fit))
         if not writer.started:
             raise DataError("the subjects file has a header but no rows", file=args.subjects)
         writer.close()

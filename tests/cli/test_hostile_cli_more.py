@@ -234,3 +234,11 @@ def test_a_tables_dir_that_is_a_file_fails_before_the_pdf(tmp_path, capsys):
     argv = ["report", SALES, "-m", MODEL, "-s", SUBJECT, "-o", str(pdf), "--tables-dir", str(taken)]
     _fails(capsys, argv, str(taken), "names a file, not a folder")
     assert not pdf.exists()
+
+
+def test_a_roll_lacking_a_column_names_the_roll(tmp_path, capsys):
+    # "column 'Living Area (sq ft)': the subjects file lacks column(s)..." named no file
+    roll = tmp_path / "roll.csv"
+    roll.write_text("foo,bar\n1,2\n", encoding="utf-8")
+    argv = ["batch", SALES, "-m", MODEL, "--subjects", str(roll), "-o", str(tmp_path / "o.csv")]
+    _fails(capsys, argv, f"error: {roll}, column ", "lacks column(s)")
