@@ -133,6 +133,23 @@ class _Decoding:
         )
 
 
+def _unmarked_utf16(block: bytes) -> str | None:
+    """``"utf-16-le"`` or ``"utf-16-be"`` when the first bytes look like UTF-16 text
+    written without a byte-order mark: at least 64 bytes, every other byte NUL (ASCII text
+    in UTF-16) and the bytes between not. Read as UTF-8 such a file had a NUL in every
+    header and no column was found."""
+    head = block[:4096]
+    if len(head) < 64:
+        return None
+    head = head[: len(head) // 2 * 2]
+    even, odd = head[0::2], head[1::2]
+    if odd.count(0) >= 0.9 * len(odd) and even.count(0) == 0:
+        return "utf-16-le"
+    if even.count(0) >= 0.9 * len(even) and odd.count(0) == 0:
+        return "utf-16-be"
+    return None
+
+
 def scan_csv(open_binary: Opener, file: str) -> CsvScan:
     """Hash the bytes and decide how they are read as text (see the module docstring)."""
     h, size = hashlib.sha256(), 0
@@ -141,9 +158,15 @@ def scan_csv(open_binary: Opener, file: str) -> CsvScan:
     for block in _blocks(open_binary):
         h.update(block)
         if first is None:
-            if block.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+            if block.startswith((codecs.BOM_UTF32_LE, codecs.BOM_UTF32_BE)):  # before UTF-16:
+                first = _Decoding("utf-32", 0)  # FF FE 00 00 also starts with FF FE
+                notes.append("file is UTF-32 text")
+            elif block.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
                 first = _Decoding("utf-16", 0)
                 notes.append("file is UTF-16 text")
+            elif (unmarked := _unmarked_utf16(block)) is not None:
+                first = _Decoding(unmarked, 0)
+                notes.append(f"file is UTF-16 text without a byte-order mark ({unmarked[-2:]})")
             else:
                 skip = len(codecs.BOM_UTF8) if block.startswith(codecs.BOM_UTF8) else 0
                 first = _Decoding("utf-8", skip)
@@ -158,9 +181,9 @@ def scan_csv(open_binary: Opener, file: str) -> CsvScan:
     first.feed(b"", final=True)
     if first.failed_at is None:
         return first.scan(sha, size, notes)
-    if notes:  # a UTF-16 mark on bytes that are not UTF-16 text
+    if notes:  # a UTF-16/32 mark (or pattern) on bytes that are not such text
         raise DataError(
-            f"the file starts with a UTF-16 mark but byte {first.failed_at} is not UTF-16 text",
+            f"the file looks like {first.encoding.upper()} text but byte {first.failed_at} is not",
             file=file,
         )
     for encoding, label in (("cp1252", "Windows-1252 (cp1252)"), ("latin-1", "Latin-1")):

@@ -324,3 +324,32 @@ def test_a_workfile_refused_before_anything_is_applied(tmp_path, edit, needle):
         restore(load_workfile(bad))
     assert needle in info.value.message
     assert info.value.file == str(bad)
+
+
+@pytest.mark.parametrize(
+    ("encoding", "prefix", "note"),
+    [
+        ("utf-32-le", "\ufeff", "file is UTF-32 text"),  # FF FE 00 00: was taken as UTF-16
+        ("utf-32-be", "\ufeff", "file is UTF-32 text"),
+        ("utf-16-be", "", "without a byte-order mark (be)"),  # was read as UTF-8: NULs
+        ("utf-16-le", "", "without a byte-order mark (le)"),
+    ],
+)
+def test_utf32_and_unmarked_utf16_files_are_read(tmp_path, encoding, prefix, note):
+    text = prefix + "id,price,living_area\n"
+    text += "".join(f"s{i},{300_000 + 1_000 * i},{1_400 + 7 * i}\n" for i in range(20))
+    f = tmp_path / "s.csv"
+    f.write_bytes(text.encode(encoding))
+    table = load_sales(f, ImportSettings())
+    assert len(table.frame) == 20
+    assert table.frame["price"].tolist() == [300_000.0 + 1_000 * i for i in range(20)]
+    assert any(note in n for n in table.notes), table.notes
+
+
+def test_ascii_text_with_nul_bytes_here_and_there_is_not_taken_for_utf16(tmp_path):
+    f = tmp_path / "s.csv"
+    body = "".join(f"s{i},{300_000 + i},{1_400 + i}\n" for i in range(30))
+    f.write_bytes(("id,price,living_area\n" + body).replace("s1,", "s\x001,").encode())
+    table = load_sales(f, ImportSettings())
+    assert len(table.frame) == 30
+    assert not any("UTF-16" in n for n in table.notes)
