@@ -22,6 +22,8 @@ XLSX rows of one sheet           1,048,576    the most a spreadsheet program wri
 XLSX columns of one sheet        16,384       the same (column XFD)
 XLSX cells (rows x columns)      30,000,000   what fits in memory as a table of cells
 Parquet declared cells           30,000,000   the same, read from the footer
+XLSX part ratio (over 32 MiB)    100 x        real sheets compress 5-15 times; a bomb hundreds
+sales columns / subject keys     2,000        a listing export has a few hundred at most
 design columns                   2,000        a onehot of a sale id would give one per sale
 design cells (sales x columns)   40,000,000   320 MB of float64, needed a few times by OLS
 design value magnitude           1e100        sums of squares overflow near 1e154
