@@ -73,6 +73,22 @@ def main() -> None:
         _make_big_export(big, 2_000_000)
         tiny = d / "tiny.csv"
         tiny.write_text("id,price\na,300000\nb,310000\n", encoding="utf-8")
+        head = hostile_files._HEAD + b"<sheetData>"
+        quoted = hostile_files.workbook_with_sheet_xml(  # the far cell with single quotes
+            d / "quoted.xlsx",
+            head + b"<row r='1048576'><c r='XFD1048576'><v>1</v></c></row></sheetData></worksheet>",
+        )
+        wide = d / "wide.csv"  # a header of a million columns, no rows
+        wide.write_text(",".join(f"c{i}" for i in range(1_000_000)) + "\n", encoding="utf-8")
+
+        def strings_bomb():  # one sheet row repeated: 450 MB of XML stored in about 2 MB
+            yield head
+            row = b"<row><c t='inlineStr'><is><t>a</t></is></c></row>" * 100_000
+            for _ in range(90):
+                yield row
+            yield b"</sheetData></worksheet>"
+
+        bomb2 = hostile_files.workbook_with_sheet_xml(d / "bomb2.xlsx", strings_bomb())
         cases = [
             ("baseline: a 2-row CSV (start-up cost)", ["data", str(tiny)]),
             ("derived doubling 40 times", ["fit", str(SAMPLE), "-m", model("dbl.toml", "\n".join(doubling))]),
@@ -80,6 +96,9 @@ def main() -> None:
             ("XLSX, one cell at XFD1048576", ["data", str(hostile_files.far_cell_xlsx(d / "far.xlsx", honest_dimension=False))]),
             ("XLSX, 10,000,000 rows of sheet XML", ["data", str(hostile_files.many_rows_xlsx(d / "rows.xlsx", 10_000_000))]),
             ("XLSX zip bomb, 600 MiB unzipped", ["data", str(hostile_files.zip_bomb_xlsx(d / "bomb.xlsx", 600))]),
+            ("XLSX, far cell written r='XFD1048576'", ["data", str(quoted)]),
+            ("XLSX, 9,000,000 rows under 512 MiB", ["data", str(bomb2)]),
+            ("CSV, a header of 1,000,000 columns", ["data", str(wide)]),
             ("CSV, 2,000,000 rows (messy export)", ["data", str(big)]),
             ("subject JSON nested 100,000 deep", ["value", str(SAMPLE), "-m", str(ROOT / "sample_data" / "ashcombe_model.toml"), "-s", str(deep)]),
         ]  # fmt: skip
