@@ -51,7 +51,8 @@ def add_sales_arguments(parser: argparse.ArgumentParser) -> None:
         "--plausibility",
         metavar="RULES.toml",
         help="plausibility rules replacing the defaults (min_price, max_price, earliest_sale, "
-        "reference_date, future_margin_days, max_living_area, max_lot_area, year_built_margin)",
+        "reference_date, future_margin_days, min_living_area, max_living_area, max_lot_area, "
+        "year_built_margin)",
     )
     g.add_argument(
         "--read-recorded-path",

@@ -73,6 +73,12 @@ class PlausibilityRules:
         Below this a price is excluded whatever the file's scale.
     max_living_area, max_lot_area:
         Largest plausible areas, in the file's area unit; areas must be positive.
+    min_living_area:
+        Smallest plausible living area, in the file's area unit (5: absurd in square feet
+        and in square metres alike). A cell such as ``1,500 sq ft`` in a file whose decimal
+        mark was decided to be ``,`` reads as 1.5 and was used. As for prices, a file whose
+        median living area is below it is taken to state areas in another unit (thousands
+        of square feet) and noted, not excluded.
     year_built_margin:
         Years a building's year built may lie after its sale year (sold before
         completion) before the row is excluded; within the margin a note counts them.
@@ -89,6 +95,7 @@ class PlausibilityRules:
     max_price: float = 1_000_000_000.0
     min_price_absolute: float = 0.01
     max_living_area: float = 100_000.0
+    min_living_area: float = 5.0
     max_lot_area: float = 1_000_000_000.0
     year_built_margin: int = 1
     thousands_median: float = 1_000.0
@@ -202,6 +209,22 @@ class RowChecks:
             out.append(
                 (nonpos, lambda i, w=what, c=col: f"{w} '{self.cell(c, i)}' is not positive", col)
             )
+            if role == "living_area":
+                with np.errstate(invalid="ignore"):
+                    tiny = (area > 0) & (area < r.min_living_area)
+                    typical = area[open_rows & np.isfinite(area) & (area > 0)]
+                median = float(np.median(typical)) if len(typical) else np.nan
+                if median < r.min_living_area:  # a file stating areas in thousands: noted
+                    self.notes.append(
+                        f"living areas in '{col}' are mostly below {r.min_living_area:,g} "
+                        f"(median {median:,g}): taken to be stated in another unit "
+                        f"(thousands?) and kept as read ({int(np.count_nonzero(tiny)):,} below)"
+                    )
+                else:
+                    out.append(
+                        (tiny, lambda i, c=col: f"living area '{self.cell(c, i)}' is below the "
+                         f"plausible {r.min_living_area:,g}", col)
+                    )  # fmt: skip
             out.append(
                 (huge, lambda i, w=what, c=col, t=top: f"{w} '{self.cell(c, i)}' is above the "
                  f"plausible {t:,.0f}", col)
@@ -443,4 +466,6 @@ def rules_from_mapping(data: Mapping[str, object], *, source: str = "<rules>") -
     rules = dataclasses.replace(DEFAULT_RULES, **out)  # type: ignore[arg-type]
     if rules.min_price > rules.max_price:
         raise DataError("'min_price' is above 'max_price'", file=source)
+    if rules.min_living_area > rules.max_living_area:
+        raise DataError("'min_living_area' is above 'max_living_area'", file=source)
     return rules

@@ -353,3 +353,26 @@ def test_ascii_text_with_nul_bytes_here_and_there_is_not_taken_for_utf16(tmp_pat
     table = load_sales(f, ImportSettings())
     assert len(table.frame) == 30
     assert not any("UTF-16" in n for n in table.notes)
+
+
+def test_a_living_area_read_as_1_5_is_excluded_not_used(tmp_path):
+    # three cells decide the decimal mark ',' for the whole file; '1,500 sq ft' then reads
+    # as 1.5 square feet and went into the fit (only 'not positive' was a rule)
+    rows = ["id,price,living_area"]
+    rows += [f's{i},{300_000 + 1_000 * i},"{1_400 + 7 * i},5"' for i in range(20)]
+    rows.append('odd,350000,"1,500 sq ft"')
+    f = tmp_path / "s.csv"
+    f.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    table = load_sales(f, ImportSettings())
+    reasons = {e.sale_id: e.reason for e in table.excluded}
+    assert reasons == {"odd": "living area '1,500 sq ft' is below the plausible 5"}
+    assert len(table.frame) + len(table.excluded) == 21
+
+
+def test_living_areas_stated_in_thousands_are_noted_not_excluded(tmp_path):
+    f = tmp_path / "s.csv"
+    body = "".join(f"s{i},{300_000 + 1_000 * i},{1.2 + 0.05 * i:.2f}\n" for i in range(20))
+    f.write_text("id,price,living_area\n" + body, encoding="utf-8")
+    table = load_sales(f, ImportSettings())
+    assert len(table.frame) == 20
+    assert any("mostly below 5 (median 1.675)" in n for n in table.notes), table.notes
