@@ -111,6 +111,13 @@ _JSON_NAMES = {
 }
 
 
+_NUMBER_PART = re.compile(r"[\d+\-()]")
+_ONLY_SEPARATORS = re.compile(r"[.,'_eE\s]+")
+"""A currency symbol is stripped from the cells that carry it: one holding a digit, a sign
+or a bracket, or made only of separators, would change the number (``1`` made
+``1150,000 sq ft`` read 50,000; ``-`` made ``150,001-`` read +150,001). ``kr.`` is fine."""
+
+
 def _json_name(value: Any) -> str:
     for k in (bool, type(None), str, int, float, dict, list):
         if isinstance(value, k):
@@ -168,6 +175,9 @@ def validate_workfile_document(doc: Mapping[str, Any], source: str) -> None:
             c.text(value, where, limit=8)
             if _CONTROL.search(value):
                 raise c.fail(where, "holds a control character")
+            if _NUMBER_PART.search(value) or _ONLY_SEPARATORS.fullmatch(value):
+                # stripped from a cell, such a symbol would change the number it is part of
+                raise c.fail(where, "holds a digit, sign or bracket, or only separators")
 
     roles = c.kind(doc.get("roles"), (dict,), "roles")
     for role, column in roles.items():

@@ -312,6 +312,20 @@ def test_an_embedded_copy_that_fails_to_read_names_the_workfile(tmp_path):
             lambda d: d["subject"].update(living_area=float("inf")),
             "the subject it holds is invalid: 'living_area': 'inf' is not a finite number",
         ),
+        # a currency symbol stripped from cells: '1' read '1150,000 sq ft' as 50,000 and
+        # '-' read '150,001-' as +150,001, silently
+        (
+            lambda d: d["import_settings"].update(currency_symbol="1"),
+            "'import_settings.currency_symbol' holds a digit, sign or bracket",
+        ),
+        (
+            lambda d: d["import_settings"].update(currency_symbol="-"),
+            "'import_settings.currency_symbol' holds a digit, sign or bracket",
+        ),
+        (
+            lambda d: d["import_settings"].update(currency_symbol="."),
+            "or only separators",
+        ),
     ],
 )
 def test_a_workfile_refused_before_anything_is_applied(tmp_path, edit, needle):
