@@ -99,6 +99,8 @@ def run(args: argparse.Namespace) -> int:
     for target in (out, *(Path(x) for x in (args.html,) if x)):
         if not target.parent.is_dir():  # fail before the fit, not after it
             raise ReportError("the folder does not exist", file=str(target))
+        if len(target.name.encode("utf-8", "replace")) > 255:  # Qt failed only at the end
+            raise ReportError("the file name is too long (at most 255 bytes)", file=str(target))
     if args.sales_out and args.no_diagnostics:  # before anything is written, not after the PDF
         raise ReportError("--sales-out needs the model check (drop --no-diagnostics)")
     if args.tables_dir and Path(args.tables_dir).exists() and not Path(args.tables_dir).is_dir():

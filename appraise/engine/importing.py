@@ -638,10 +638,14 @@ def format_of(path: Path) -> str:
 
 
 def _check_readable(path: Path) -> None:
-    """DataError when ``path`` is missing or not a file."""
-    if not path.exists():
+    """DataError when ``path`` is missing, not a file, or a name the system refuses."""
+    try:
+        exists, is_file = path.exists(), path.is_file()
+    except (OSError, ValueError) as exc:  # a name too long (ENAMETOOLONG), a NUL byte
+        raise DataError(f"cannot be opened ({exc.strerror or exc})", file=str(path)) from None
+    if not exists:
         raise DataError("file not found", file=str(path))
-    if not path.is_file():
+    if not is_file:
         raise DataError("not a file", file=str(path))
 
 

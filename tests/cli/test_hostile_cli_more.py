@@ -242,3 +242,13 @@ def test_a_roll_lacking_a_column_names_the_roll(tmp_path, capsys):
     roll.write_text("foo,bar\n1,2\n", encoding="utf-8")
     argv = ["batch", SALES, "-m", MODEL, "--subjects", str(roll), "-o", str(tmp_path / "o.csv")]
     _fails(capsys, argv, f"error: {roll}, column ", "lacks column(s)")
+
+
+def test_file_names_too_long_for_the_system_are_one_line(tmp_path, capsys):
+    # OSError "File name too long" from Path.exists() was a traceback; a PDF name too long
+    # failed in Qt after the fit, with a warning on stderr and no file named
+    long = "a" * 300
+    _fails(capsys, ["data", str(tmp_path / f"{long}.csv")], "cannot be opened (File name too long)")
+    pdf = tmp_path / f"{long}.pdf"
+    argv = ["report", SALES, "-m", MODEL, "-s", SUBJECT, "-o", str(pdf), "--no-diagnostics"]
+    _fails(capsys, argv, "the file name is too long")
