@@ -575,8 +575,8 @@ def _typed_numbers(values: object) -> bool:
 def _typed_clean(values: np.ndarray) -> _Clean:
     """The cleaned form of a typed number column: the numbers, NaN missing and void, none
     bad -- what :func:`_clean_floats` gives it, without hashing every distinct value."""
-    v = np.array(values, dtype=float)
-    missing = np.isnan(v)
+    v = np.asarray(values, dtype=float)  # no copy of a float column: the frame's column
+    missing = np.isnan(v)  # is taken with a mask later (a copy of its own)
     n = len(v)
     return _Clean(
         "number", v, missing, missing.copy(), np.zeros(n, bool), np.zeros(n, np.intp), [None]
