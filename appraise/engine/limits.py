@@ -227,7 +227,9 @@ def check_xlsx(path: Path) -> None:
         zf = zipfile.ZipFile(path)
     except (zipfile.BadZipFile, OSError, ValueError) as exc:
         raise DataError(
-            f"cannot be read as an .xlsx workbook ({type(exc).__name__}: {exc})", file=file
+            f"cannot be read as an .xlsx workbook ({type(exc).__name__}: {exc})"
+            + _not_a_workbook_hint(path),
+            file=file,
         ) from None
     with zf:
         infos = zf.infolist()
@@ -298,6 +300,26 @@ def sheet_rows(rows: Iterable[Sequence[object]], file: str, sheet: str) -> list[
             )
         out.append(list(row))
     return out
+
+
+def _not_a_workbook_hint(path: Path) -> str:
+    """What a file named .xlsx that is no zip archive seems to hold (a CSV saved under the
+    wrong name is common), for the message."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(4096)
+    except OSError:
+        return ""
+    if head.startswith(b"\xd0\xcf\x11\xe0"):
+        return "; it is an old .xls or a password-protected workbook: save it as .xlsx or .csv"
+    try:
+        text = head.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        return ""
+    first = text.splitlines()[0] if text.strip() else ""
+    if any(d in first for d in (",", ";", "\t")):
+        return "; it looks like CSV text: rename it .csv"
+    return ""
 
 
 def _is_sheet(name: str) -> bool:

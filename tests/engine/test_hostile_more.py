@@ -390,3 +390,11 @@ def test_living_areas_stated_in_thousands_are_noted_not_excluded(tmp_path):
     table = load_sales(f, ImportSettings())
     assert len(table.frame) == 20
     assert any("mostly below 5 (median 1.675)" in n for n in table.notes), table.notes
+
+
+def test_a_csv_saved_as_xlsx_is_named_for_what_it_is(tmp_path):
+    f = tmp_path / "sales.xlsx"
+    f.write_text("id,price,living_area\na,300000,1500\n", encoding="utf-8")
+    with pytest.raises(DataError) as info:
+        _read(f)
+    assert info.value.message.endswith("; it looks like CSV text: rename it .csv")
