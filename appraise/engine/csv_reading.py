@@ -259,8 +259,40 @@ def read_csv_cells(
         if trailing:
             k = trailing
             notes.append(f"{k} blank row{'s' if k > 1 else ''} after the last sale ignored")
-        return CsvCells(header, columns, notes, {})
-    return _read_csv_rows(open_binary, scan, delimiter, file, notes, report)
+        cells = CsvCells(header, columns, notes, {})
+    else:
+        cells = _read_csv_rows(open_binary, scan, delimiter, file, notes, report)
+    cells.notes.extend(_unclosed_quote_notes(cells))
+    return cells
+
+
+SWALLOWED_LINES = 100
+"""Line breaks in one cell of the last row from which a quote is taken to be unclosed."""
+
+
+def _unclosed_quote_notes(cells: CsvCells) -> list[str]:
+    """A note when a cell of the last row spans :data:`SWALLOWED_LINES` lines or more.
+
+    A quote that is opened and never closed makes the rest of the file one cell, so the
+    cell is always in the last row: only that row is looked at (a cost per column, not per
+    cell). Without the note the file reads as a few rows, the last excluded for a reason
+    that hides the cause (``price is missing``).
+    """
+    out = []
+    for name, col in zip(cells.header, cells.columns, strict=False):
+        if not len(col.codes) or col.codes[-1] < 0:
+            continue
+        cell = col.uniques[col.codes[-1]]
+        breaks = cell.count("\n") if isinstance(cell, str) else 0
+        if breaks >= SWALLOWED_LINES:
+            row = len(col.codes) + 1  # the header is row 1
+            lines = breaks + (not cell.endswith("\n"))
+            out.append(
+                f"row {row:,}, column '{name}': one quoted cell runs over {lines:,} lines "
+                "to the end of the file (a quote opened and never closed?); the rows in it "
+                "were not read as sales"
+            )
+    return out
 
 
 _WIDTH_PIECE = 1 << 20  # characters of the first line read at a time

@@ -398,3 +398,26 @@ def test_a_csv_saved_as_xlsx_is_named_for_what_it_is(tmp_path):
     with pytest.raises(DataError) as info:
         _read(f)
     assert info.value.message.endswith("; it looks like CSV text: rename it .csv")
+
+
+def test_a_quote_never_closed_is_noted_with_its_row_and_column(tmp_path):
+    # the rest of the file became one sale id: "Rows in file: 2" and "price is missing",
+    # nothing said why 2,000 sales were not read
+    body = "".join(f"s{i},{300_000 + i},1500\n" for i in range(2_000))
+    f = tmp_path / "s.csv"
+    f.write_text('id,price,living_area\na,310000,1400\n"s,1,1500\n' + body, encoding="utf-8")
+    table = load_sales(f, ImportSettings())
+    assert len(table.frame) + len(table.excluded) == 2
+    assert (
+        "row 3, column 'id': one quoted cell runs over 2,001 lines to the end of the file "
+        "(a quote opened and never closed?); the rows in it were not read as sales"
+    ) in table.notes
+
+
+def test_quoted_line_breaks_of_ordinary_cells_are_not_noted(tmp_path):
+    body = "".join(f's{i},{300_000 + i},"12 Mill Lane\nAshcombe"\n' for i in range(300))
+    f = tmp_path / "s.csv"
+    f.write_text("id,price,address\n" + body, encoding="utf-8")
+    table = load_sales(f, ImportSettings())
+    assert len(table.frame) == 300
+    assert not any("never closed" in n for n in table.notes)
