@@ -26,7 +26,7 @@ to a condition index above the threshold).
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass
 
 import numpy as np
@@ -232,6 +232,36 @@ def collinearity(
     centred = bool(const)
     w = qr.inverse_factor()
     xtx_inv = w @ w.T
+    return collinearity_words(
+        names,
+        groups,
+        col_vif,
+        const,
+        lambda cols: group_gvif(X, cols, xtx_inv, centred),
+        condition_number(X, names, condition_threshold, qr),
+        vif_limit=vif_limit,
+        gvif_root_limit=gvif_root_limit,
+        condition_threshold=condition_threshold,
+    )
+
+
+def collinearity_words(
+    names: Sequence[str],
+    groups: Sequence[TermGroupRef],
+    col_vif: np.ndarray,
+    const: set[int],
+    gvif_of: Callable[[tuple[int, ...]], float],
+    cond: ConditionNumber,
+    *,
+    vif_limit: float,
+    gvif_root_limit: float,
+    condition_threshold: float,
+    notes: Sequence[str] = (),
+) -> Collinearity:
+    """The :class:`Collinearity` of a design from its column VIFs, its constant columns,
+    a term's GVIF (``gvif_of(columns)``) and its condition number: the terms flagged and
+    the warnings in words (``notes`` go before the condition number's). Shared by the
+    dense check-up and the structured one (:mod:`.structured`)."""
     terms = []
     warnings = []
     for g in groups:
@@ -239,7 +269,7 @@ def collinearity(
         if not cols:
             continue
         df = len(cols)
-        gvif = float(col_vif[cols[0]]) if df == 1 else group_gvif(X, cols, xtx_inv, centred)
+        gvif = float(col_vif[cols[0]]) if df == 1 else gvif_of(cols)
         root = gvif ** (1.0 / (2 * df))
         if df == 1:
             flagged, rule = gvif > vif_limit, f"VIF > {vif_limit:g}"
@@ -272,7 +302,7 @@ def collinearity(
                 f"'{g.expression}' is largely explained by the other terms ({shown}; "
                 f"{rule}): its own coefficient is unstable{why}"
             )
-    cond = condition_number(X, names, condition_threshold, qr)
+    warnings.extend(notes)
     if cond.exceeds:
         worst = cond.dependences[0].columns if cond.dependences else ()
         warnings.append(
@@ -282,6 +312,6 @@ def collinearity(
             + "; centring or rescaling inputs, or dropping a term, makes coefficients stabler"
         )
     columns = tuple(
-        ColumnVIF(names[j], float(col_vif[j])) for j in range(X.shape[1]) if j not in const
+        ColumnVIF(names[j], float(col_vif[j])) for j in range(len(names)) if j not in const
     )
     return Collinearity(columns, tuple(terms), cond, tuple(warnings))

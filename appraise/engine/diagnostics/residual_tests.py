@@ -144,7 +144,19 @@ def residual_tests(
 ) -> ResidualTests:
     """Run both tests and say in words what to do about what they find."""
     koenker, original = breusch_pagan(resid, X, qr)
-    jb = jarque_bera(resid)
+    return residual_words(koenker, original, jarque_bera(resid), alpha, response, cov_type)
+
+
+def residual_words(
+    koenker: BreuschPagan,
+    original: BreuschPagan,
+    jb: JarqueBera,
+    alpha: float,
+    response: str,
+    cov_type: str,
+) -> ResidualTests:
+    """The :class:`ResidualTests` of the three statistics, with what to do about what they
+    find in words (shared by the dense check-up and :mod:`.structured`)."""
     tips: list[str] = []
     if koenker.p_value < alpha:
         tips.append(

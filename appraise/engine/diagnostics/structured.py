@@ -59,15 +59,14 @@ from .checkup import Diagnostics, assemble_diagnostics, term_groups
 from .collinearity import (
     VARIANCE_SHARE_LIMIT,
     Collinearity,
-    ColumnVIF,
     ConditionNumber,
     NearDependence,
-    TermCollinearity,
     TermGroupRef,
+    collinearity_words,
 )
 from .crossval import ESTIMABLE_TOL, RANK_TOL, KFold, assign_folds, mdape, rmse, to_price
 from .influence import Influence, influence
-from .residual_tests import BreuschPagan, ResidualTests, _stats, jarque_bera
+from .residual_tests import BreuschPagan, ResidualTests, _stats, jarque_bera, residual_words
 from .settings import DEFAULT_SETTINGS, DiagnosticSettings
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -331,62 +330,19 @@ def structured_collinearity(
     xtx_inv = design.fit.xtx_inv
     col_vif = design.sum_squares * np.diag(xtx_inv)
     col_vif[design.const] = np.nan
-    const = set(design.const.tolist())
-    terms = []
-    warnings = []
-    for g in groups:
-        cols = tuple(c for c in g.columns if c not in const)
-        if not cols:
-            continue
-        df = len(cols)
-        gvif = float(col_vif[cols[0]]) if df == 1 else _group_gvif(design, cols, xtx_inv)
-        root = gvif ** (1.0 / (2 * df))
-        if df == 1:
-            flagged, rule = gvif > vif_limit, f"VIF > {vif_limit:g}"
-        else:
-            flagged = root > gvif_root_limit
-            rule = f"GVIF^(1/(2 df)) > {gvif_root_limit:.3g}"
-        terms.append(
-            TermCollinearity(
-                g.expression,
-                g.kind,
-                tuple(names[c] for c in cols),
-                df,
-                gvif,
-                float(root),
-                bool(flagged),
-                rule,
-            )
-        )
-        if flagged:
-            shown = f"VIF {gvif:.1f}" if df == 1 else f"GVIF^(1/(2df)) {root:.2f}"
-            kin = [o.expression for o in groups if o is not g and set(o.inputs) & set(g.inputs)]
-            why = (
-                f"; partly by construction, as it reads the same inputs as "
-                f"{', '.join(repr(k) for k in kin)}: the joint effect of those terms is still "
-                "estimated well"
-                if kin
-                else ""
-            )
-            warnings.append(
-                f"'{g.expression}' is largely explained by the other terms ({shown}; "
-                f"{rule}): its own coefficient is unstable{why}"
-            )
     cond, skipped = _condition_number(design, names, condition_threshold)
-    if skipped:
-        warnings.append(skipped)
-    if cond.exceeds:
-        worst = cond.dependences[0].columns if cond.dependences else ()
-        warnings.append(
-            f"condition number {cond.number:.0f} > {condition_threshold:g} (columns scaled to "
-            "unit length): near-dependence among the columns"
-            + (f" {', '.join(worst)}" if worst else "")
-            + "; centring or rescaling inputs, or dropping a term, makes coefficients stabler"
-        )
-    columns = tuple(
-        ColumnVIF(names[j], float(col_vif[j])) for j in range(len(names)) if j not in const
+    return collinearity_words(
+        names,
+        groups,
+        col_vif,
+        set(design.const.tolist()),
+        lambda cols: _group_gvif(design, cols, xtx_inv),
+        cond,
+        vif_limit=vif_limit,
+        gvif_root_limit=gvif_root_limit,
+        condition_threshold=condition_threshold,
+        notes=(skipped,) if skipped else (),
     )
-    return Collinearity(columns, tuple(terms), cond, tuple(warnings))
 
 
 # --- residual tests ----------------------------------------------------------------------------
@@ -423,35 +379,7 @@ def structured_residual_tests(
     sigma2_ml = float(e @ e) / n
     lm_orig = ess / sigma2_ml**2 / 2.0
     original = BreuschPagan("original", lm_orig, df, float(stats.chi2.sf(lm_orig, df)), f, f_p)
-    jb = jarque_bera(e)
-    # the words of residual_tests(), for the same findings
-    tips: list[str] = []
-    if koenker.p_value < alpha:
-        tips.append(
-            f"the spread of the residuals changes with the attributes (Breusch-Pagan p = "
-            f"{koenker.p_value:.3g} < {alpha:g})"
-        )
-        if cov_type == "classical":
-            tips.append(
-                'use robust standard errors: cov_type = "HC3" in the model file '
-                "(coefficients stay the same, their uncertainty is estimated honestly)"
-            )
-        if response == "linear":
-            tips.append(
-                'try response = "log": errors in price usually grow with price, and a log '
-                "response often evens the spread"
-            )
-        tips.append(
-            "prediction intervals assume an even spread: too narrow for some properties, "
-            "too wide for others"
-        )
-    if jb.p_value < alpha:
-        tips.append(
-            f"residuals are not normal (Jarque-Bera p = {jb.p_value:.3g}; skewness "
-            f"{jb.skewness:.2f}, kurtosis {jb.kurtosis:.2f}): intervals rely on normality; "
-            "look at the flagged sales first"
-        )
-    return ResidualTests(koenker, original, jb, alpha, tuple(tips))
+    return residual_words(koenker, original, jarque_bera(e), alpha, response, cov_type)
 
 
 # --- k-fold cross-validation -------------------------------------------------------------------
