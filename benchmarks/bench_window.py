@@ -59,13 +59,22 @@ months = "months_between(sale_date, '2026-06-30')"
 """
 
 
-def make_sales(path: Path, rows: int, seed: int = 5) -> None:
+def region_names(count: int) -> tuple[str, ...]:
+    """The six neighbourhoods, or ``count`` invented tracts ("Heronmoor 0001", ...) for a
+    county of small regions (the first is the model's reference)."""
+    if count <= len(REGIONS):
+        return REGIONS[:count]
+    return ("Old Mill",) + tuple(f"{REGIONS[k % 6]} {k:04d}" for k in range(1, count))
+
+
+def make_sales(path: Path, rows: int, seed: int = 5, regions: int = 6) -> None:
     import numpy as np
     import pandas as pd
 
+    names = region_names(regions)
     rng = np.random.default_rng(seed)
     area = rng.uniform(700, 4000, rows).round()
-    region = rng.integers(0, len(REGIONS), rows)
+    region = rng.integers(0, len(names), rows)
     cond = rng.choice(["poor", "average", "good"], rows, p=[0.2, 0.5, 0.3])
     built = rng.integers(1880, 2025, rows)
     lat = 44.0412 + rng.normal(0, 0.03, rows)
@@ -74,7 +83,7 @@ def make_sales(path: Path, rows: int, seed: int = 5) -> None:
     log_price = (
         11.2
         + 0.55 * np.log(area)
-        + 0.03 * region
+        + 0.03 * (region % 6)
         - 0.002 * (2026 - built)
         + 0.0004 * days
         + rng.normal(0, 0.15, rows)
@@ -90,7 +99,7 @@ def make_sales(path: Path, rows: int, seed: int = 5) -> None:
             "Baths": rng.integers(2, 9, rows) / 2,
             "Latitude": lat.round(6),
             "Longitude": lon.round(6),
-            "Neighbourhood": np.array(REGIONS, dtype=object)[region],
+            "Neighbourhood": np.array(names, dtype=object)[region],
             "Condition": cond,
         }
     )
@@ -138,6 +147,9 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--rows", type=int, default=1_000_000)
     ap.add_argument("--timeout", type=float, default=900.0)
+    ap.add_argument(
+        "--regions", type=int, default=6, help="neighbourhoods (6) or small tracts (e.g. 1000)"
+    )
     ap.add_argument("--profile", type=Path, default=None, help="write a UI-thread profile here")
     ap.add_argument(
         "--trace-stalls", type=float, default=None, help="print stacks after a gap this long (s)"
@@ -156,7 +168,7 @@ def main(argv: list[str] | None = None) -> int:
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         sales_path = folder / "county_sales.parquet"
-        make_sales(sales_path, args.rows)
+        make_sales(sales_path, args.rows, regions=args.regions)
         model_path = folder / "county_model.toml"
         model_path.write_text(MODEL, encoding="utf-8")
         prefs = Preferences(QSettings(str(folder / "prefs.ini"), QSettings.Format.IniFormat))

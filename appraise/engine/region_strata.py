@@ -142,7 +142,9 @@ def stratified_study(
     ids = fit.sale_ids
 
     def study(mask: np.ndarray) -> RatioStudy:
-        idx = np.flatnonzero(mask)
+        return study_at(np.flatnonzero(mask))
+
+    def study_at(idx: np.ndarray) -> RatioStudy:
         return ratio_study(
             pred[idx], price[idx], trim=trim, rows=rows[idx], sale_ids=[ids[i] for i in idx]
         )
@@ -150,11 +152,11 @@ def stratified_study(
     warnings: list[str] = []
     by_region: list[Stratum] = []
     if region_column is not None and region_column in fit.frame.columns:
-        from .regions import level_labels
+        from .regions import level_labels, level_positions
 
-        labels = level_labels(fit.frame[region_column])
-        for lv in sorted(set(labels) - {""}, key=_level_order):
-            s = study(labels == lv)
+        at_level = level_positions(level_labels(fit.frame[region_column]))
+        for lv in sorted(set(at_level) - {""}, key=_level_order):
+            s = study_at(at_level[lv])  # positions in file order, as the mask gave them
             by_region.append(Stratum("region", lv, s.n, s.n < min_sales, s))
     tier, edges = price_tiers(price)
     bounds = [(None, edges[0]), (edges[0], edges[1]), (edges[1], edges[2]), (edges[2], None)]

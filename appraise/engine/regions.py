@@ -658,6 +658,15 @@ def _is_name(text: str) -> bool:
 
 
 # --- the analysis ------------------------------------------------------------------------
+def level_positions(labels: np.ndarray) -> dict[str, np.ndarray]:
+    """The positions of each label's rows, in order: one sort for all of them (a county's
+    thousand tracts would otherwise compare a million labels a thousand times)."""
+    codes, uniques = pd.factorize(labels)
+    order = np.argsort(codes, kind="stable")
+    bounds = np.cumsum(np.bincount(codes, minlength=len(uniques)))[:-1]
+    return dict(zip(uniques.tolist(), np.split(order, bounds), strict=True))
+
+
 def level_labels(values: pd.Series) -> np.ndarray:
     """Each value written as the design writes a level (3.0 -> '3', dates ISO), so rows
     can be matched with the levels of a ``onehot`` term; missing values become ''."""
@@ -684,6 +693,11 @@ def subject_record_frame(fit: FitResult, record: Mapping[str, object]) -> pd.Dat
         if col in fit.frame.columns and pd.api.types.is_datetime64_any_dtype(fit.frame[col]):
             frame[col] = pd.to_datetime(frame[col], errors="coerce").astype("datetime64[ns]")
     return frame
+
+
+MAX_PAIRWISE_LEVELS = 40
+"""Most regions whose every pair is tested (780 pairs); beyond, the subject's region (or
+the reference) is compared with each other region and no groups are formed."""
 
 
 def analyse_regions(
@@ -779,12 +793,25 @@ def analyse_regions(
             + ", ".join(sorted(lone - {region.reference}))
         )
 
-    pairs = [
-        (a, c)
-        for i, a in enumerate(region.levels)
-        for c in region.levels[i + 1 :]
-        if a not in lone and c not in lone
-    ]
+    subject_region = None
+    if subject is not None and region.column in subject.columns and len(subject):
+        v = subject[region.column].iloc[0]
+        subject_region = None if pd.isna(v) else level_label(v)
+    usable = [lv for lv in region.levels if lv not in lone]
+    every_pair = len(usable) <= MAX_PAIRWISE_LEVELS
+    if every_pair:
+        pairs = [(a, c) for i, a in enumerate(usable) for c in usable[i + 1 :]]
+    else:  # k(k-1)/2 tests would be a table nobody reads and Holm would drown them
+        anchor = subject_region if subject_region in usable else region.reference
+        who = "the subject's region" if anchor == subject_region else "the reference"
+        pairs = [(anchor, c) for c in usable if c != anchor]
+        every = len(usable) * (len(usable) - 1) // 2
+        warnings.append(
+            f"{len(usable):,} regions: every pair would be {every:,} comparisons, so the "
+            f"pairwise table compares {anchor} ({who}) with each other region, Holm-adjusted "
+            f"over those {len(pairs):,}; no groups are formed (they need every pair; at most "
+            f"{MAX_PAIRWISE_LEVELS} regions)"
+        )
     diffs = [combination(b, V, g_level[a] - g_level[c], df, level, q=q) for a, c in pairs]
     adjusted = holm([d.p for d in diffs])
     pairwise = tuple(
@@ -804,7 +831,17 @@ def analyse_regions(
         for e in sorted(effects, key=lambda e: (e.effect.value, e.level))
         if e.level not in lone
     ]
-    groups = group_regions(order, differ, alpha)
+    if every_pair:
+        groups = group_regions(order, differ, alpha)
+    else:
+        groups = RegionGroups(
+            alpha,
+            tuple(order),
+            (),
+            (),
+            f"not formed: groups need a test of every pair, and {len(order):,} regions "
+            f"are more than {MAX_PAIRWISE_LEVELS}",
+        )
 
     slopes = tuple(
         _slopes(fit, region, g, b, V, df, level, counts) for g in _products_on(fit, region)
@@ -819,10 +856,6 @@ def analyse_regions(
     area_col = fit.sales.roles.column("living_area")
     per_area = area_prices(fit, region, level) if area_col in fit.design.inputs else ()
 
-    subject_region = None
-    if subject is not None and region.column in subject.columns and len(subject):
-        v = subject[region.column].iloc[0]
-        subject_region = None if pd.isna(v) else level_label(v)
     centroids = region_centroids(fit, region, subject)
     premium = location_premium(fit, subject=subject, level=level) if location else None
 
@@ -872,7 +905,7 @@ def _slopes(
     base = np.zeros(p)
     if main is not None:
         base[names.index(main)] = 1.0
-    labels = level_labels(fit.frame[region.column])
+    at_level = level_positions(level_labels(fit.frame[region.column]))
     out = []
     for lv in group.levels:
         g = base.copy()
@@ -882,7 +915,8 @@ def _slopes(
         est = combination(b, V, g, df, level, q=q)
         ppu = None
         if fit.response == "log" and _is_name(factor):
-            med = float(np.median(fit.price[labels == lv])) if (labels == lv).any() else NAN
+            idx = at_level.get(lv)
+            med = float(np.median(fit.price[idx])) if idx is not None and idx.size else NAN
             ppu = Estimate(
                 est.value * med, est.se * med, est.low * med, est.high * med, est.t, est.p
             )
@@ -921,11 +955,11 @@ def area_prices(
     b = np.asarray(fit.params, dtype=float)
     V = np.asarray(fit.cov_params, dtype=float)
     q = float(stats.t.ppf(0.5 + level / 2, fit.df_resid))
-    labels = level_labels(fit.frame[region.column])
+    at_level = level_positions(level_labels(fit.frame[region.column]))
     out = []
     for lv in region.levels:
-        idx = np.flatnonzero(labels == lv)
-        if idx.size == 0:
+        idx = at_level.get(lv)
+        if idx is None or idx.size == 0:
             continue
         pos = int(idx[np.argsort(fit.fitted[idx], kind="stable")[idx.size // 2]])
         row = fit.frame.iloc[[pos, pos]].reset_index(drop=True)
@@ -974,21 +1008,23 @@ def region_centroids(
         return ()
     lat = pd.to_numeric(frame[lat_col], errors="coerce").to_numpy(dtype=float)
     lon = pd.to_numeric(frame[lon_col], errors="coerce").to_numpy(dtype=float)
-    labels = level_labels(frame[region.column])
+    at_level = level_positions(level_labels(frame[region.column]))
+    located = np.isfinite(lat) & np.isfinite(lon)
     s_lat = s_lon = None
     if subject is not None and lat_col in subject.columns and lon_col in subject.columns:
         s_lat = pd.to_numeric(subject[lat_col], errors="coerce").to_numpy(dtype=float)[:1]
         s_lon = pd.to_numeric(subject[lon_col], errors="coerce").to_numpy(dtype=float)[:1]
     out = []
     for lv in region.levels:
-        m = (labels == lv) & np.isfinite(lat) & np.isfinite(lon)
-        if not m.any():
+        idx = at_level.get(lv, np.zeros(0, dtype=np.intp))
+        m = idx[located[idx]]
+        if not m.size:
             continue
         c_lat, c_lon = float(lat[m].mean()), float(lon[m].mean())
         km = None
         if s_lat is not None and np.isfinite(s_lat).all() and np.isfinite(s_lon).all():
             km = float(distance_km(s_lat, s_lon, np.array([c_lat]), np.array([c_lon]))[0])
-        out.append(RegionCentroid(lv, int(m.sum()), c_lat, c_lon, km))
+        out.append(RegionCentroid(lv, int(m.size), c_lat, c_lon, km))
     return tuple(out)
 
 

@@ -463,3 +463,35 @@ def test_stratified_cod_and_prd_match_a_direct_computation(kielmc):
         assert_allclose([s.measure("cod"), s.measure("prd")], [cod, prd], rtol=1e-10, atol=0)
     assert sum(s.n for s in study.by_tier) == fit.n
     assert [s.label for s in study.by_region if s.thin] == ["3"]  # 7 sales (value_counts)
+
+
+def test_many_regions_are_compared_with_one_not_in_every_pair():
+    # 60 simulated tracts with known effects (a tract's effect is its number / 100):
+    # every pair would be 1,770 tests; the subject's tract is compared with the other 59,
+    # Holm over those (statsmodels' multipletests as the reference), and no groups formed.
+    rng = np.random.default_rng(3)
+    n, k = 3_000, 60
+    tract = rng.integers(0, k, n)
+    x = rng.normal(size=n)
+    frame = pd.DataFrame(
+        {
+            "rprice": 100 + 2 * x + tract / 100 + rng.normal(0, 1, n),
+            "x": x,
+            "tract": [f"T{t:02d}" for t in tract],
+        }
+    )
+    fit = _fit(frame, ["x", "onehot(tract, ref='T00')"], region="tract")
+    ra = analyse_regions(fit, subject={"x": 0.0, "tract": "T07"}, strata=True)
+    assert len(ra.pairwise) == k - 1
+    assert {c.first for c in ra.pairwise} == {"T07"}
+    assert {c.second for c in ra.pairwise} == {f"T{t:02d}" for t in range(k)} - {"T07"}
+    raw = [c.difference.p for c in ra.pairwise]
+    want = multipletests(raw, method="holm")[1]
+    assert_allclose([c.p_holm for c in ra.pairwise], want, rtol=1e-12, atol=0)
+    assert ra.groups.groups == () and "not formed" in ra.groups.method
+    assert any("1,770 comparisons" in w and "T07 (the subject's region)" in w for w in ra.warnings)
+    # without a subject the reference is the one compared
+    assert {c.first for c in analyse_regions(fit, strata=False).pairwise} == {"T00"}
+    # the ratio study by region still has every tract, as masks would give them
+    by_region = {s.label: s.study.n for s in ra.strata.by_region}
+    assert by_region == frame["tract"].value_counts().to_dict()
