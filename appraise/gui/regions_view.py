@@ -228,7 +228,11 @@ class RegionsView(QWidget):
     def _show(self, ra: RegionAnalysis) -> None:
         self.analysis = ra
         j = ra.joint
-        groups = "; ".join("{" + ", ".join(g) + "}" for g in ra.groups.groups)
+        groups = (
+            "; ".join("{" + ", ".join(g) + "}" for g in ra.groups.groups)
+            if ra.groups.groups
+            else ra.groups.method
+        )
         subject = f" The subject is in {ra.subject_region}." if ra.subject_region else ""
         self.summary.setText(
             f"{len(ra.term.levels)} regions against {ra.term.reference} "
@@ -412,10 +416,12 @@ class RegionsView(QWidget):
             self.map_sales.append(item)
         note = subsample_note(len(pts[0]), MAP_MAX_DRAWN)
         lat0, lon0 = self._map_origin
-        for c in ra.centroids:
+        labelled = labelled_centroids(ra)
+        effects = {e.level: e for e in ra.effects}
+        for c in labelled:
             x = (c.longitude - lon0) * KM_PER_DEGREE * math.cos(math.radians(lat0))
             y = (c.latitude - lat0) * KM_PER_DEGREE
-            e = ra.effect(c.level)
+            e = effects[c.level]
             text = pg.TextItem(
                 f"{c.level}\n{_effect_text(ra, e.effect.value)}", color="#000000", anchor=(0.5, 0.5)
             )
@@ -423,8 +429,31 @@ class RegionsView(QWidget):
             plot.addItem(text)
         plot.setTitle(
             "Sales coloured by their region's effect (blue lower, vermillion higher than "
-            f"{ra.term.reference}); labels at each region's centre" + (f"; {note}" if note else "")
+            f"{ra.term.reference}); "
+            + (
+                "labels at each region's centre"
+                if len(labelled) == len(ra.centroids)
+                else f"labels at the centres of the {len(labelled)} regions with the most sales "
+                f"(of {len(ra.centroids):,}) and the subject's"
+            )
+            + (f"; {note}" if note else "")
         )
+
+
+MAP_MAX_LABELS = 30
+"""Most regions labelled on the map (those with the most sales, and the subject's): a
+county's thousand tract labels would cover the map and take a second to lay out."""
+
+
+def labelled_centroids(ra: RegionAnalysis) -> list:
+    """The centroids the map labels: all, or the :data:`MAP_MAX_LABELS` with the most
+    sales and the subject's region."""
+    cs = list(ra.centroids)
+    if len(cs) <= MAP_MAX_LABELS:
+        return cs
+    top = sorted(cs, key=lambda c: (-c.count, c.level))[:MAP_MAX_LABELS]
+    chosen = {c.level for c in top}
+    return [c for c in cs if c.level in chosen or c.level == ra.subject_region]
 
 
 MAP_MAX_DRAWN = 5_000

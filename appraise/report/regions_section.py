@@ -411,6 +411,8 @@ def neighbourhood_blocks(fit, valuation=None, currency: str = "$") -> tuple[Bloc
 
 
 def _groups_text(ra: RegionAnalysis) -> str:
+    if not ra.groups.groups:  # too many regions to test every pair
+        return ra.groups.method
     return (
         "; ".join("{" + ", ".join(g) + "}" for g in ra.groups.groups)
         + f" (at {alpha_text(1 - ra.level)})"

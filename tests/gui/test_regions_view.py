@@ -107,3 +107,17 @@ def test_the_map_draws_a_seeded_subsample_beyond_its_limit(view, monkeypatch):
         f"100 of {ra.n:,} sales drawn (a seeded random sample)"
         in view.map.getPlotItem().titleLabel.text
     )
+
+
+def test_a_map_of_many_regions_labels_the_largest_and_the_subjects(view, monkeypatch):
+    from appraise.gui import regions_view
+
+    ra = view.analysis
+    monkeypatch.setattr(regions_view, "MAP_MAX_LABELS", 2)
+    chosen = regions_view.labelled_centroids(ra)
+    biggest = sorted(ra.centroids, key=lambda c: (-c.count, c.level))[:2]
+    want = {c.level for c in biggest} | ({ra.subject_region} if ra.subject_region else set())
+    assert {c.level for c in chosen} == want
+    view._draw_map(ra)
+    title = view.map.getPlotItem().titleLabel.text
+    assert f"the centres of the {len(chosen)} regions with the most sales (of 6)" in title
