@@ -12,7 +12,10 @@ answer a click. The process's peak resident memory is printed at the end.
 ``--profile DIR`` writes a cProfile of the UI thread for each phase to DIR (and prints
 its ten most expensive calls), to find what a gap is made of; ``--trace-stalls 0.2``
 prints every thread's stack whenever the UI thread has not ticked for 0.2 s (a watchdog
-that needs no lock Python holds, so it also catches a pool thread holding the GIL).
+that needs no lock Python holds, so it also catches a pool thread holding the GIL; for
+the same reason it reads the other threads' frames while they run, and once, in a
+thousand-region run, it crashed the process in the middle of a dump: use it to find a
+stall, not to measure). ``--regions 1000`` makes a county of small tracts.
 After the fit each result tab is shown in turn (the plots, checks, comparables and
 neighbourhoods draw when shown), then the sales are sorted by price. This is a script,
 not a test.
