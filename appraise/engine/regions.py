@@ -624,12 +624,18 @@ def find_region_term(fit: FitResult, term: str | None = None) -> RegionTerm:
             f"{g.expression}: the fit holds no coefficients for {', '.join(missing)}, so the "
             "region effects cannot be read from it"
         )
+    # each level's column, found once ("region[Old Mill]" ends with "[Old Mill]"); the
+    # first column ending so wins, as a search per level would give it
+    of_level: dict[str, str] = {}
+    for c in g.columns:
+        for lv in _bracketed_suffixes(c):
+            of_level.setdefault(lv, c)
     cols: list[str | None] = []
     for lv in g.levels:
         if lv == g.reference:
             cols.append(None)
         else:
-            cols.append(next(c for c in g.columns if c.endswith(f"[{lv}]")))
+            cols.append(of_level[lv])
     return RegionTerm(
         expression=g.expression,
         column=g.inputs[0],
@@ -658,6 +664,13 @@ def _is_name(text: str) -> bool:
 
 
 # --- the analysis ------------------------------------------------------------------------
+def _bracketed_suffixes(column: str) -> list[str]:
+    """Every ``x`` for which ``column`` ends with ``[x]`` (a level may hold brackets)."""
+    if not column.endswith("]"):
+        return []
+    return [column[i + 1 : -1] for i, ch in enumerate(column) if ch == "["]
+
+
 def level_positions(labels: np.ndarray) -> dict[str, np.ndarray]:
     """The positions of each label's rows, in order: one sort for all of them (a county's
     thousand tracts would otherwise compare a million labels a thousand times)."""

@@ -79,11 +79,13 @@ def fill_table(widget: QTableWidget, table: Table, note: QLabel | None = None) -
     widget.setColumnCount(len(table.columns))
     widget.setRowCount(len(table.rows))
     widget.setHorizontalHeaderLabels(list(table.columns))
+    right = Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter  # once, not a cell
+    on_right = [table.alignment(j) == "r" for j in range(len(table.columns))]
     for i, row in enumerate(table.rows):
         for j, text in enumerate(row):
             item = QTableWidgetItem(text)
-            if table.alignment(j) == "r":
-                item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+            if on_right[j]:
+                item.setTextAlignment(right)
             widget.setItem(i, j, item)
     widget.setToolTip(table.note)
     if note is not None:

@@ -495,3 +495,13 @@ def test_many_regions_are_compared_with_one_not_in_every_pair():
     # the ratio study by region still has every tract, as masks would give them
     by_region = {s.label: s.study.n for s in ra.strata.by_region}
     assert by_region == frame["tract"].value_counts().to_dict()
+
+
+def test_bracketed_suffixes_find_a_level_holding_brackets():
+    # A design column "region[level]": the level is what follows a "[" to the last "]",
+    # and a level may itself hold brackets (each opening one is a candidate).
+    from appraise.engine.regions import _bracketed_suffixes
+
+    assert _bracketed_suffixes("r[a[1]]") == ["a[1]", "1]"]
+    assert _bracketed_suffixes("r[Old Mill]") == ["Old Mill"]
+    assert _bracketed_suffixes("living_area") == []
