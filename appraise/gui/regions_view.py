@@ -39,6 +39,8 @@ from appraise.report.content import Table
 from appraise.report.numbers import fixed, money, pvalue, signed_percent
 from appraise.report.plotdata import drawn_positions, subsample_note
 from appraise.report.regions_section import (
+    REFERENCE_MARK,
+    SUBJECT_MARK,
     area_price_table,
     effects_table,
     level_name,
@@ -300,7 +302,7 @@ class RegionsView(QWidget):
             x=x, y=y, symbol=symbols, brush=brushes, pen=pens, size=11
         )
         plot.addItem(self.forest_points)
-        plot.getAxis("left").setTicks([[(float(i), r[0]) for i, r in enumerate(rows)]])
+        plot.getAxis("left").setTicks([sparse_ticks([r[0] for r in rows])])
         unit = "% effect (e^b - 1)" if ra.response == "log" else "effect (price)"
         plot.setLabel(
             "bottom", f"{unit} against {ra.term.reference}, {level_text(ra.level)} interval"
@@ -327,8 +329,7 @@ class RegionsView(QWidget):
         plot.addItem(
             pg.ScatterPlotItem(x=x, y=y, size=10, brush=pg.mkBrush(*rgba(OKABE_ITO["orange"])))
         )
-        ticks = [(float(i), level_name(ra, a.level)) for i, a in enumerate(rows)]
-        plot.getAxis("left").setTicks([ticks])
+        plot.getAxis("left").setTicks([sparse_ticks([level_name(ra, a.level) for a in rows])])
         plot.setLabel("bottom", "price per unit of living area at the region's typical sale")
         plot.setTitle(f"Price per unit of living area, {level_text(ra.level)} interval")
 
@@ -440,6 +441,24 @@ class RegionsView(QWidget):
             )
             + (f"; {note}" if note else "")
         )
+
+
+MAX_TICK_LABELS = 60
+"""Most region names written along a plot's axis; beyond, every k-th row is named (and
+the reference and the subject's), the others are still drawn and listed in the tables."""
+
+
+def sparse_ticks(labels: list[str]) -> list[tuple[float, str]]:
+    """Axis ticks (row, name) for ``labels``: every one up to :data:`MAX_TICK_LABELS`,
+    else every k-th and those marked as the reference or the subject's."""
+    if len(labels) <= MAX_TICK_LABELS:
+        return [(float(i), t) for i, t in enumerate(labels)]
+    step = -(-len(labels) // MAX_TICK_LABELS)
+    return [
+        (float(i), t)
+        for i, t in enumerate(labels)
+        if i % step == 0 or REFERENCE_MARK in t or SUBJECT_MARK in t
+    ]
 
 
 MAP_MAX_LABELS = 30

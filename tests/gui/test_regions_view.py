@@ -121,3 +121,19 @@ def test_a_map_of_many_regions_labels_the_largest_and_the_subjects(view, monkeyp
     view._draw_map(ra)
     title = view.map.getPlotItem().titleLabel.text
     assert f"the centres of the {len(chosen)} regions with the most sales (of 6)" in title
+
+
+def test_sparse_ticks_name_every_kth_region_and_the_marked_ones(monkeypatch):
+    from appraise.gui import regions_view
+
+    monkeypatch.setattr(regions_view, "MAX_TICK_LABELS", 10)
+    labels = [f"T{i:03d}" for i in range(95)]
+    labels[37] += " (subject)"
+    labels[50] += " (reference)"
+    ticks = regions_view.sparse_ticks(labels)
+    named = [int(pos) for pos, _ in ticks]
+    assert named == sorted({*range(0, 95, 10), 37, 50})
+    assert all(labels[int(pos)] == text for pos, text in ticks)
+    assert regions_view.sparse_ticks(labels[:10]) == [
+        (float(i), t) for i, t in enumerate(labels[:10])
+    ]
