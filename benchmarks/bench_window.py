@@ -106,7 +106,10 @@ def make_sales(path: Path, rows: int, seed: int = 5, regions: int = 6) -> None:
             "Condition": cond,
         }
     )
-    frame.to_parquet(path, index=False)
+    if path.suffix == ".csv":
+        frame.to_csv(path, index=False)
+    else:
+        frame.to_parquet(path, index=False)
 
 
 class StallMeter:
@@ -153,6 +156,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument(
         "--regions", type=int, default=6, help="neighbourhoods (6) or small tracts (e.g. 1000)"
     )
+    ap.add_argument("--format", choices=["parquet", "csv"], default="parquet")
     ap.add_argument("--profile", type=Path, default=None, help="write a UI-thread profile here")
     ap.add_argument(
         "--trace-stalls", type=float, default=None, help="print stacks after a gap this long (s)"
@@ -170,7 +174,7 @@ def main(argv: list[str] | None = None) -> int:
     app = ensure_app()
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
-        sales_path = folder / "county_sales.parquet"
+        sales_path = folder / f"county_sales.{args.format}"
         make_sales(sales_path, args.rows, regions=args.regions)
         model_path = folder / "county_model.toml"
         model_path.write_text(MODEL, encoding="utf-8")
